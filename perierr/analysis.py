@@ -1,0 +1,253 @@
+"""The main job in one call: a star in, perihelion with intervals and budget out.
+
+:func:`analyze` runs the forward model at the nominal inputs, the linearized
+propagation, the Monte Carlo propagation and the linearized error budget, and
+collects the warnings a reader needs. Its :class:`Analysis` result renders to
+the JSON contract with :meth:`Analysis.to_dict`.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import __version__
+from ._constants import AU_PER_PC, OUTPUTS
+from .budget import LinearBudget, linear_budget
+from .errors import PerierrWarning
+from .models import ForwardModel, StraightLine, make_model
+from .propagate.linear import LinearResult, linearize
+from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
+from .star import ObservedStar
+from .summary import DEFAULT_LEVELS
+from .thresholds import DEFAULT_THRESHOLDS
+
+__all__ = ["Analysis", "analyze"]
+
+#: Fractional parallax error above which 1/parallax is a biased distance
+#: (Bailer-Jones 2015, PASP 127, 994, Sect. 4).
+BIASED_PARALLAX_FRACTION = 0.2
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Everything perierr computed for one star.
+
+    Attributes
+    ----------
+    star : ObservedStar
+    model : dict
+        ``describe()`` of the forward model used.
+    linear : LinearResult or None
+        None when the nominal parallax is <= 0 (only a prior can help then).
+    monte_carlo : MonteCarloResult
+    budget : LinearBudget or None
+    warnings : list of str
+        Messages for cases where a reader could be misled.
+    comparison : dict
+        For models other than the straight line: the straight-line answer on
+        the same samples and the difference.
+    prior : dict or None
+        The distance-prior block (name, parameters, method, diagnostics).
+    """
+
+    star: ObservedStar
+    model: dict
+    linear: LinearResult | None
+    monte_carlo: MonteCarloResult
+    budget: LinearBudget | None
+    warnings: list = field(default_factory=list)
+    comparison: dict = field(default_factory=dict)
+    prior: dict | None = None
+
+    def to_dict(self) -> dict:
+        """The JSON document (see the README for the contract)."""
+        out = {
+            "perierr_version": __version__,
+            "model": self.model,
+            "inputs": self.star.to_dict(),
+            "linearized": None if self.linear is None else self.linear.to_dict(),
+            "monte_carlo": self.monte_carlo.to_dict(),
+            "budget": None if self.budget is None else self.budget.to_dict(),
+            "warnings": list(self.warnings),
+        }
+        if self.linear is not None:
+            out["linearized"]["distance_au"] = {
+                "value": float(self.linear.value[1] * AU_PER_PC),
+                "sigma": float(self.linear.sigma[1] * AU_PER_PC),
+            }
+        if self.prior is not None:
+            out["prior"] = self.prior
+        if self.comparison:
+            out["straight_line_comparison"] = self.comparison
+        out["notes"] = list(self.star.notes)
+        return out
+
+
+def analyze(
+    star: ObservedStar,
+    *,
+    model: ForwardModel | str = "straight_line",
+    n_samples: int = 100_000,
+    seed=None,
+    levels=DEFAULT_LEVELS,
+    thresholds=DEFAULT_THRESHOLDS,
+    target_error: float | None = None,
+    max_samples: int = 10_000_000,
+    distance_prior=None,
+    prior_method: str = "auto",
+) -> Analysis:
+    """Perihelion of a star with linear and Monte Carlo intervals and a budget.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel or str
+        A model or a name accepted by :func:`perierr.models.make_model`.
+    n_samples : int
+        Monte Carlo draws (first round in the adaptive mode).
+    seed : int or None
+        None picks a seed and records it in the result.
+    levels : sequence of float
+        Extra quantile levels to report.
+    thresholds : sequence
+        Distances for P(d_ph < D), e.g. ``("1 pc", "20000 au")``.
+    target_error : float, optional
+        Adaptive Monte Carlo: draw until quantile errors are below this
+        fraction of each output's (q84 - q16) / 2.
+    max_samples : int
+        Cap of the adaptive mode.
+    distance_prior : str or prior object, optional
+        A distance prior (see :mod:`perierr.priors`); None inverts the parallax.
+    prior_method : {"auto", "reweight", "mcmc"}
+        How to sample the posterior under ``distance_prior``.
+
+    Returns
+    -------
+    Analysis
+    """
+    if isinstance(model, str):
+        model = make_model(model)
+    notes = []
+    prior_block = None
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", PerierrWarning)
+        if distance_prior is None:
+            linear = linearize(star, model)
+            mc = monte_carlo(
+                star,
+                model,
+                n=n_samples,
+                seed=seed,
+                levels=levels,
+                thresholds=thresholds,
+                target_error=target_error,
+                max_samples=max_samples,
+            )
+        else:
+            from .priors import posterior_samples, resolve_prior
+
+            prior = resolve_prior(distance_prior)
+            linear = linearize(star, model) if star.mean[2] > 0 else None
+            samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
+            mc = propagate_samples(samples, model, reference=star.mean, levels=levels, thresholds=thresholds)
+            prior_block = {"name": prior.name, "parameters": prior.parameters, **samples.info}
+            prior_block["method"] = samples.method
+    notes.extend(str(w.message) for w in caught if issubclass(w.category, PerierrWarning))
+    budget = None if linear is None else linear_budget(linear.jacobian, star.cov)
+    notes.extend(_reading_warnings(star, linear, mc, distance_prior is not None))
+    comparison = {}
+    if not isinstance(model, StraightLine):
+        comparison = _compare_straight_line(star, linear, mc)
+    for message in notes:
+        warnings.warn(message, PerierrWarning, stacklevel=2)
+    return Analysis(star, model.describe(), linear, mc, budget, notes, comparison, prior_block)
+
+
+def _compare_straight_line(star, linear, mc) -> dict:
+    """Straight-line answer on the same samples, and the difference."""
+    straight = StraightLine()
+    valid = mc.valid
+    ph = straight.evaluate(mc.samples.values[valid], reference=star.mean)
+    w = None if mc.samples.weights is None else mc.samples.weights[valid]
+    out = {}
+    for k, q in enumerate(OUTPUTS):
+        x = ph.output(q)
+        med = float(np.median(x)) if w is None else float(_weighted_median(x, w))
+        entry = {"median": med, "difference_of_medians": mc.summaries[q].median - med}
+        if linear is not None:
+            nominal = float(straight.evaluate(star.mean[None, :]).as_array()[0, k])
+            entry["nominal"] = nominal
+            entry["difference_of_nominal"] = float(linear.value[k] - nominal)
+        out[q] = entry
+    return out
+
+
+def _weighted_median(x, w):
+    order = np.argsort(x)
+    cdf = np.cumsum(w[order]) / w.sum()
+    return x[order][np.searchsorted(cdf, 0.5)]
+
+
+def _reading_warnings(star, linear, mc, with_prior) -> list:
+    """Cases where the numbers could mislead a reader, in plain words."""
+    out = []
+    frac = star.fractional_parallax_error
+    if not with_prior and frac > BIASED_PARALLAX_FRACTION:
+        out.append(
+            f"the fractional parallax error is {frac:.0%} (> {BIASED_PARALLAX_FRACTION:.0%}): "
+            "1/parallax is a biased distance and the intervals assume an implicit prior; "
+            "use a distance prior (--distance-prior)"
+        )
+    d = mc.summaries["distance_pc"]
+    if d.std > 0:
+        asym = (d.quantiles[0.84] - d.median) / max(d.median - d.quantiles[0.16], 1e-300)
+        if abs(d.skewness) > 1.0 or not 0.67 < asym < 1.5:
+            out.append(
+                f"the Monte Carlo distribution of d_ph is skewed (skewness {d.skewness:.2f}, "
+                f"upper/lower half-width ratio {asym:.2f}): quote the quantiles, not +/- sigma"
+            )
+    if linear is not None:
+        d_nom, d_sig = linear.value[1], linear.sigma[1]
+        if d_sig > 0 and d_nom < 2.0 * d_sig:
+            out.append(
+                f"d_ph ({d_nom:.3g} pc) is comparable to its linear sigma ({d_sig:.3g} pc): the "
+                "star heads almost straight at the Sun and a linearized distance error is "
+                "meaningless; use the Monte Carlo quantiles"
+            )
+        for k, q in enumerate(OUTPUTS):
+            s_lin, s_mc = linear.sigma[k], mc.summaries[q].std
+            if s_lin > 0 and s_mc > 0 and not 0.8 < s_mc / s_lin < 1.25:
+                out.append(
+                    f"{q}: Monte Carlo std {s_mc:.3g} differs from the linear sigma {s_lin:.3g} by "
+                    f"more than 20 %: the model is not linear over the error ellipsoid"
+                )
+    n_bad = mc.n_nonpositive_parallax
+    if n_bad:
+        out.append(
+            f"{n_bad} of {mc.n} samples ({n_bad / mc.n:.2%}) have parallax <= 0: they are left "
+            "out of the quantiles and count as not passing within any threshold"
+        )
+    flags = mc.perihelion.flags
+    if flags is not None and np.any(flags):
+        out.append(f"{int(np.count_nonzero(flags))} samples were flagged by the model (see model info)")
+    t = abs(mc.summaries["time_myr"].median)
+    if (
+        linear is not None
+        and isinstance(linear, LinearResult)
+        and t > 10
+        and mc.perihelion.info.get("model") == "straight_line"
+    ):
+        out.append(
+            f"|t_ph| is about {t:.0f} Myr: over such times the Galactic tide bends both paths "
+            "and straight lines are unreliable; use the orbit model"
+        )
+    for name in star.held_exact:
+        if name not in ("ra", "dec"):
+            out.append(f"{name} has zero error and is held exact")
+    if not math.isfinite(mc.summaries["distance_pc"].median):
+        out.append("the median perihelion distance is not finite")
+    return out

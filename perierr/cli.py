@@ -1,0 +1,137 @@
+"""Command line: ``perierr demo``, ``perierr run STAR_FILE``, ``perierr screen TABLE``.
+
+The CLI only parses arguments, calls the API and prints or writes results.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from pathlib import Path
+
+from . import __version__
+from .analysis import analyze
+from .demo import demo_path
+from .errors import InputError, PerierrWarning
+from .models import MODEL_NAMES, make_model
+from .report import format_analysis, write_json
+from .star import read_star_file
+from .thresholds import DEFAULT_THRESHOLDS
+
+__all__ = ["main"]
+
+
+def _floats(text: str) -> list:
+    try:
+        return [float(x) for x in text.split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected comma-separated numbers, got {text!r}") from None
+
+
+def _strings(text: str) -> list:
+    return [x.strip() for x in text.split(",") if x.strip()]
+
+
+def _add_analysis_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--samples", type=int, default=100_000, metavar="N", help="Monte Carlo draws (default 100000)")
+    p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
+    p.add_argument("--json", type=Path, default=None, metavar="PATH", help="also write the full result as JSON")
+    p.add_argument("--levels", type=_floats, default=(), metavar="Q,Q", help="extra quantile levels, e.g. 0.025,0.975")
+    p.add_argument(
+        "--within",
+        type=_strings,
+        default=list(DEFAULT_THRESHOLDS),
+        metavar="D,D",
+        help="distances for P(d_ph < D), with units (default '0.5pc,1pc,2pc,20000au,100000au')",
+    )
+    p.add_argument(
+        "--target-error",
+        type=float,
+        default=None,
+        metavar="F",
+        help="draw until every quantile's MC error is below F x (q84-q16)/2 (e.g. 0.01)",
+    )
+    p.add_argument("--max-samples", type=int, default=10_000_000, metavar="N", help="cap for --target-error")
+    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="perierr",
+        description="Perihelion of a star passing the Sun, with uncertainties and an error budget.",
+    )
+    parser.add_argument("--version", action="version", version=f"perierr {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True)
+    demo = sub.add_parser("demo", help="run the whole job on the bundled (invented) demo survey")
+    _add_analysis_options(demo)
+    run = sub.add_parser("run", help="analyse one star from a TOML star file")
+    run.add_argument("star_file", type=Path, metavar="STAR_FILE")
+    _add_analysis_options(run)
+    screen = sub.add_parser("screen", help="nominal perihelion and linear errors for every row of a table")
+    screen.add_argument("table", type=Path, metavar="TABLE", help="ECSV/FITS/VOTable with catalogue columns")
+    return parser
+
+
+def _analysis_kwargs(args) -> dict:
+    return dict(
+        model=make_model(args.model),
+        n_samples=args.samples,
+        seed=args.seed,
+        levels=args.levels,
+        thresholds=args.within,
+        target_error=args.target_error,
+        max_samples=args.max_samples,
+    )
+
+
+def _run_star(star, args, out) -> None:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)  # the report lists them
+        result = analyze(star, **_analysis_kwargs(args))
+    print(format_analysis(result), file=out)
+    if args.json is not None:
+        write_json(result.to_dict(), args.json)
+        print(f"\nJSON written to {args.json}", file=out)
+
+
+def _screen(path, out) -> None:
+    from .screen import nearest_first, screen_catalogue
+
+    rows = screen_catalogue(path)
+    print(f"Screening {len(rows)} rows of {path} (straight-line model, nominal ± linear 1σ)", file=out)
+    print(f"  {'row':>3}  {'star':<24}{'t_ph [Myr]':>18}{'d_ph [pc]':>20}{'d_ph [au]':>12}", file=out)
+    for r in nearest_first(rows):
+        if r.status != "ok":
+            print(f"  {r.row:>3}  {r.name:<24}{r.status}", file=out)
+            continue
+        print(
+            f"  {r.row:>3}  {r.name:<24}{r.time_myr:>+10.4f} ± {r.time_sigma:<6.2g}"
+            f"{r.distance_pc:>11.4g} ± {r.distance_sigma:<6.2g}{r.distance_au:>12,.0f}",
+            file=out,
+        )
+
+
+def main(argv=None, out=None) -> int:
+    """Entry point of the ``perierr`` command; returns the exit status."""
+    out = out or sys.stdout
+    args = _parser().parse_args(argv)
+    try:
+        if args.command == "demo":
+            survey = demo_path("kestrel_survey.ecsv")
+            print("Demo on invented data: the Kestrel survey and its stars are fictional.\n", file=out)
+            _screen(survey, out)
+            print("\nFull analysis of the closest pass:\n", file=out)
+            _run_star(read_star_file(demo_path("kestrel-4.toml")), args, out)
+        elif args.command == "run":
+            _run_star(read_star_file(args.star_file), args, out)
+        elif args.command == "screen":
+            _screen(args.table, out)
+    except (InputError, ValueError) as exc:
+        print(f"perierr: error: {exc}", file=sys.stderr)
+        return 2
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

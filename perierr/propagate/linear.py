@@ -1,0 +1,78 @@
+"""Linearized (Jacobian) propagation: Sigma_out = J Sigma J^T."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .._constants import OBSERVABLES, OUTPUTS
+from ..models.base import ForwardModel
+from ..star import ObservedStar
+from .checks import require_positive_parallax
+
+__all__ = ["LinearResult", "linearize"]
+
+_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
+
+
+@dataclass(frozen=True)
+class LinearResult:
+    """First-order propagation of the input covariance through a model.
+
+    Attributes
+    ----------
+    value : ndarray, shape (3,)
+        The model at the nominal inputs: t_ph [Myr], d_ph [pc], v_ph [km/s].
+    jacobian : ndarray, shape (3, 6)
+        d output / d observable in internal units.
+    cov : ndarray, shape (3, 3)
+        ``J Sigma J^T``.
+    """
+
+    value: np.ndarray
+    jacobian: np.ndarray
+    cov: np.ndarray
+
+    @property
+    def sigma(self) -> np.ndarray:
+        """Linear standard errors of the three outputs, shape (3,)."""
+        return np.sqrt(np.diag(self.cov))
+
+    @property
+    def corr(self) -> np.ndarray:
+        """Correlation matrix of the three outputs, shape (3, 3)."""
+        s = self.sigma
+        safe = np.where(s > 0, s, 1.0)
+        out = self.cov / np.outer(safe, safe)
+        np.fill_diagonal(out, 1.0)
+        return out
+
+    def to_dict(self) -> dict:
+        """``{Q: {"value", "sigma", "unit"}}`` plus the output correlations."""
+        out = {
+            q: {"value": float(v), "sigma": float(s), "unit": _UNITS[q]}
+            for q, v, s in zip(OUTPUTS, self.value, self.sigma)
+        }
+        c = self.corr
+        out["correlations"] = {f"{OUTPUTS[i]}|{OUTPUTS[j]}": float(c[i, j]) for i in range(3) for j in range(i + 1, 3)}
+        out["jacobian"] = {q: dict(zip(OBSERVABLES, row.tolist())) for q, row in zip(OUTPUTS, self.jacobian)}
+        return out
+
+
+def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
+    """Propagate the star's covariance to first order through ``model``.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel
+
+    Returns
+    -------
+    LinearResult
+    """
+    require_positive_parallax(star.mean[2], method="linearized propagation")
+    value = model.evaluate(star.mean[None, :], reference=star.mean).as_array()[0]
+    jac = np.asarray(model.jacobian(star.mean), dtype=float)
+    return LinearResult(value=value, jacobian=jac, cov=jac @ star.cov @ jac.T)

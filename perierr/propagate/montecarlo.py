@@ -1,0 +1,223 @@
+"""Monte Carlo propagation: draw, push through the model, summarize.
+
+Samples whose parallax is <= 0 cannot be inverted; they are counted and
+reported, carry an unbounded (infinite) perihelion distance in the threshold
+probabilities, and are left out of the quantiles, which therefore describe the
+samples at a finite distance.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .._constants import OUTPUTS
+from ..errors import PerierrWarning
+from ..models.base import ForwardModel, Perihelion
+from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..star import ObservedStar
+from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
+from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
+from .checks import require_positive_parallax
+
+__all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
+
+_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
+
+
+@dataclass(frozen=True)
+class MonteCarloResult:
+    """Outcome of a Monte Carlo propagation.
+
+    Attributes
+    ----------
+    samples : Samples
+        The input draws (with weights, for reweighted samples).
+    perihelion : Perihelion
+        Outputs of the samples with parallax > 0 (``valid``).
+    valid : ndarray of bool, shape (n,)
+    summaries : dict
+        Output name -> :class:`~perierr.summary.OutputSummary`.
+    thresholds : list of ThresholdProbability
+    levels : tuple of float
+    convergence : dict
+        For the adaptive mode: target, achieved worst relative error, rounds.
+    """
+
+    samples: Samples
+    perihelion: Perihelion
+    valid: np.ndarray
+    summaries: dict
+    thresholds: list
+    levels: tuple
+    convergence: dict = field(default_factory=dict)
+
+    @property
+    def n(self) -> int:
+        """Number of samples drawn."""
+        return self.samples.n
+
+    @property
+    def n_nonpositive_parallax(self) -> int:
+        """Samples with parallax <= 0 (counted, not silently dropped)."""
+        return int(self.n - np.count_nonzero(self.valid))
+
+    def interval(self, output: str = "distance_pc", level: float = 0.9) -> tuple:
+        """Central ``level`` interval of an output, from the kept samples."""
+        x = self.perihelion.output(output)
+        w = None if self.samples.weights is None else self.samples.weights[self.valid]
+        s = summarize(x, levels=(0.5 - level / 2, 0.5 + level / 2), weights=w)
+        return s.quantiles[round(0.5 - level / 2, 12)], s.quantiles[round(0.5 + level / 2, 12)]
+
+    def worst_relative_error(self) -> float:
+        """Largest quantile MC error relative to the output's (q84 - q16) / 2."""
+        worst = 0.0
+        for s in self.summaries.values():
+            half = 0.5 * (s.quantiles.get(0.84, s.median) - s.quantiles.get(0.16, s.median))
+            if half > 0:
+                worst = max(worst, max(s.quantile_se.values()) / half)
+        return worst
+
+    def to_dict(self) -> dict:
+        """JSON block: ``n``, ``seed`` and one summary per output."""
+        out = {
+            "n": self.n,
+            "seed": self.samples.seed,
+            "method": self.samples.method,
+            "effective_size": self.samples.effective_size,
+            "n_nonpositive_parallax": self.n_nonpositive_parallax,
+        }
+        for q in OUTPUTS:
+            out[q] = self.summaries[q].to_dict()
+        out["thresholds"] = [t.to_dict() for t in self.thresholds]
+        flags = self.perihelion.flags
+        out["n_flagged"] = 0 if flags is None else int(np.count_nonzero(flags))
+        if self.convergence:
+            out["convergence"] = dict(self.convergence)
+        return out
+
+
+def propagate_samples(
+    samples: Samples,
+    model: ForwardModel,
+    *,
+    reference=None,
+    levels=DEFAULT_LEVELS,
+    thresholds=DEFAULT_THRESHOLDS,
+) -> MonteCarloResult:
+    """Push samples through a forward model and summarize the outputs.
+
+    Parameters
+    ----------
+    samples : Samples
+    model : ForwardModel
+    reference : array_like, shape (6,), optional
+        Nominal observables (for models that linearize around them).
+    levels : sequence of float
+        Quantile levels to report (the defaults are always included).
+    thresholds : sequence
+        Distances for P(d_ph < D); see :func:`perierr.thresholds.parse_thresholds`.
+    """
+    values = samples.values
+    valid = values[:, 2] > 0
+    all_valid = bool(valid.all())
+    rows = values if all_valid else values[valid]
+    if rows.shape[0] == 0:
+        raise ValueError(
+            "every sample has parallax <= 0, so no perihelion can be computed by "
+            "inverting parallaxes; use a distance prior"
+        )
+    ph = model.evaluate(rows, reference=reference)
+    w_all = samples.weights
+    w = None if w_all is None else (w_all if all_valid else w_all[valid])
+    levels = tuple(sorted(set(DEFAULT_LEVELS) | {round(float(q), 12) for q in levels}))
+    summaries = {q: summarize(ph.output(q), name=q, unit=_UNITS[q], levels=levels, weights=w) for q in OUTPUTS}
+    if all_valid:
+        d_all = ph.distance_pc
+    else:
+        d_all = np.full(values.shape[0], np.inf)
+        d_all[valid] = ph.distance_pc
+    probs = [threshold_probability(d_all, pc, label=label, weights=w_all) for label, pc in parse_thresholds(thresholds)]
+    return MonteCarloResult(samples, ph, valid, summaries, probs, levels)
+
+
+def monte_carlo(
+    star: ObservedStar,
+    model: ForwardModel,
+    *,
+    n: int = 100_000,
+    seed=None,
+    levels=DEFAULT_LEVELS,
+    thresholds=DEFAULT_THRESHOLDS,
+    target_error: float | None = None,
+    max_samples: int = 10_000_000,
+) -> MonteCarloResult:
+    """Monte Carlo propagation of a star's Gaussian errors through a model.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel
+    n : int
+        Number of draws (the first round, in the adaptive mode).
+    seed : int or None
+        Seed of the ``numpy.random.Generator``; None picks one and records it.
+    levels, thresholds
+        See :func:`propagate_samples`.
+    target_error : float, optional
+        Adaptive mode: keep drawing until every reported quantile's Monte Carlo
+        error is below ``target_error`` times the output's (q84 - q16) / 2.
+    max_samples : int
+        Cap on the adaptive mode; a warning says when the target was not met.
+
+    Returns
+    -------
+    MonteCarloResult
+    """
+    require_positive_parallax(star.mean[2], method="Monte Carlo by parallax inversion")
+    if int(n) < 100:
+        raise ValueError(f"n = {n!r}: expected at least 100 samples")
+    seed = resolve_seed(seed)
+    rng = np.random.default_rng(seed)
+    values = draw_gaussian(star.mean, star.cov, n, rng)
+
+    def run(vals):
+        return propagate_samples(
+            Samples(vals, seed=seed), model, reference=star.mean, levels=levels, thresholds=thresholds
+        )
+
+    result = run(values)
+    if target_error is None:
+        return result
+    if not target_error > 0:
+        raise ValueError(f"target_error = {target_error!r}: expected a positive fraction, e.g. 0.01")
+    rounds = 1
+    worst = result.worst_relative_error()
+    while worst > target_error and values.shape[0] < max_samples:
+        need = math.ceil(values.shape[0] * 1.2 * (worst / target_error) ** 2)
+        extra = min(max(need, values.shape[0] + 1000), max_samples) - values.shape[0]
+        values = np.concatenate([values, draw_gaussian(star.mean, star.cov, extra, rng)])
+        result = run(values)
+        worst = result.worst_relative_error()
+        rounds += 1
+    met = worst <= target_error
+    if not met:
+        warnings.warn(
+            f"Monte Carlo error target {target_error} not met with the cap of {max_samples} "
+            f"samples (worst relative quantile error {worst:.3g}); raise max_samples",
+            PerierrWarning,
+            stacklevel=2,
+        )
+    convergence = {"target_error": target_error, "achieved": worst, "rounds": rounds, "met": met}
+    return MonteCarloResult(
+        result.samples,
+        result.perihelion,
+        result.valid,
+        result.summaries,
+        result.thresholds,
+        result.levels,
+        convergence,
+    )

@@ -1,0 +1,126 @@
+"""Plain-text report of an :class:`~perierr.analysis.Analysis`.
+
+Numbers are rounded to the precision their uncertainty supports (two
+significant digits of the error).
+"""
+
+from __future__ import annotations
+
+import math
+
+from .._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
+
+__all__ = ["format_analysis", "format_value"]
+
+_LABEL = {"time_myr": "time [Myr]", "distance_pc": "distance [pc]", "speed_kms": "speed [km/s]"}
+_UNIT_OBS = {
+    "ra": "deg",
+    "dec": "deg",
+    "parallax": "mas",
+    "pmra": "mas/yr",
+    "pmdec": "mas/yr",
+    "radial_velocity": "km/s",
+}
+
+
+def _decimals(err: float) -> int:
+    if not err > 0 or not math.isfinite(err):
+        return 4
+    return max(0, min(10, 1 - int(math.floor(math.log10(err)))))
+
+
+def format_value(value: float, err: float, *, signed: bool = False) -> str:
+    """``value`` with as many decimals as two significant digits of ``err`` allow."""
+    spec = f"{'+' if signed else ''}.{_decimals(err)}f"
+    return format(value, spec)
+
+
+def _row(label, nominal, sigma, s, scale=1.0, signed=False):
+    q = s.quantiles
+    err = max(sigma * scale if sigma is not None else 0.0, (q[0.84] - q[0.16]) * 0.5 * scale) / 10
+    f = lambda x: format_value(x * scale, err, signed=signed)  # noqa: E731
+    lin = "" if nominal is None else f"{f(nominal):>11} ± {format_value(sigma * scale, err):<9}"
+    return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q[0.16])} … {f(q[0.84])}   {f(q[0.05])} … {f(q[0.95])}"
+
+
+def format_analysis(analysis) -> str:
+    """Render an analysis as a readable multi-line report."""
+    a = analysis
+    star, mc = a.star, a.monte_carlo
+    lines = []
+    model_name = a.model.get("description", a.model.get("name", "?"))
+    epoch = f"J{star.ref_epoch:g}" if star.ref_epoch is not None else "epoch not given"
+    lines.append(f"perierr · closest approach to the Sun of {star.name} ({epoch}; model: {model_name})")
+    lines.append("")
+    lines.append("Input (catalogue units)")
+    cat = star.catalogue_errors()
+    for name in OBSERVABLES:
+        value, err = star.mean[OBSERVABLES.index(name)], cat[f"{name}_error"]
+        shown = f"{value:.7f}" if name in ("ra", "dec") else format_value(value, err)
+        lines.append(
+            f"  {name:<16}{shown:>14} ± {err:<10.4g} {_UNIT_OBS[name]}{'  (error in mas)' if name in ('ra', 'dec') else ''}"
+        )
+    if star.fractional_parallax_error < math.inf:
+        lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
+    lines.append("")
+    head = f"  {'':<15}{'nominal ± linear 1σ':<24}{'MC median':>11}   {'16 % … 84 %':<23}   5 % … 95 %"
+    lines.append("Perihelion (time relative to the epoch; negative = past)")
+    lines.append(head)
+    lin = a.linear
+    for k, q in enumerate(OUTPUTS):
+        nominal = None if lin is None else lin.value[k]
+        sigma = None if lin is None else lin.sigma[k]
+        lines.append(_row(_LABEL[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
+        if q == "distance_pc":
+            lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
+    worst = mc.worst_relative_error()
+    lines.append(
+        f"  Monte Carlo: {mc.n:,} draws ({mc.samples.method}), seed {mc.samples.seed}; every quantile's "
+        f"MC error ≤ {worst:.2%} of its (q84 − q16)/2"
+    )
+    if mc.samples.weights is not None:
+        lines.append(f"  effective sample size {mc.samples.effective_size:,.0f}")
+    if mc.n_nonpositive_parallax:
+        lines.append(
+            f"  {mc.n_nonpositive_parallax:,} draws with parallax <= 0 (counted as never passing within any threshold)"
+        )
+    lines.append("")
+    lines.append("Chance that the star passes within")
+    for t in mc.thresholds:
+        if t.count == 0:
+            text = f"< {t.upper95:.2g} (95 % bound; no draw passed)"
+        else:
+            text = f"{t.probability:8.2%} ± {t.se:.2%}"
+        lines.append(f"  {t.label:<12} {text}")
+    if a.budget is not None:
+        lines.append("")
+        lines.append("Who sets the error: share of the variance (linearized Shapley; covariance term in brackets)")
+        lines.append(f"  {'input':<17}{'distance':>18}{'time':>18}")
+        b = a.budget
+        sd, st = b.share("distance_pc"), b.share("time_myr")
+        cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
+        for name in OBSERVABLES:
+            lines.append(f"  {name:<17}{sd[name]:>8.1%} ({cd[name]:>6.1%}){st[name]:>9.1%} ({ct[name]:>6.1%})")
+        lines.append(
+            f"  largest share: {b.dominant('distance_pc')} for the distance, {b.dominant('time_myr')} for the time"
+        )
+    if a.comparison:
+        lines.append("")
+        lines.append("Against straight-line motion on the same draws (this model minus straight line)")
+        for q in OUTPUTS:
+            c = a.comparison[q]
+            lines.append(f"  {_LABEL[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
+    if a.prior:
+        lines.append("")
+        lines.append(f"Distance prior: {a.prior['name']} {a.prior.get('parameters', {})} via {a.prior.get('method')}")
+    if a.warnings or star.notes:
+        lines.append("")
+        lines.append("Read with care")
+        for message in list(a.warnings) + [n for n in star.notes]:
+            lines.append(f"  - {message}")
+    lines.append("")
+    lines.append(
+        "perierr predicts a statistical encounter from the measured motion; it is not an impact-hazard "
+        "assessment for comets or the Oort cloud."
+    )
+    return "\n".join(lines)

@@ -1,0 +1,109 @@
+"""Gaussian draws of the observables from a star's mean and covariance."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["Samples", "draw_gaussian", "psd_factor", "resolve_seed"]
+
+
+@dataclass(frozen=True)
+class Samples:
+    """Draws of the six observables, optionally weighted.
+
+    Attributes
+    ----------
+    values : ndarray, shape (n, 6)
+        Observables in internal units.
+    weights : ndarray, shape (n,), or None
+        Importance weights (None means equal weights).
+    method : str
+        How the samples were made (``"gaussian"``, ``"reweight"``, ``"mcmc"``).
+    seed : int or None
+        The seed that reproduces them.
+    info : dict
+        Sampler diagnostics (effective sample size, autocorrelation time ...).
+    """
+
+    values: np.ndarray
+    weights: np.ndarray | None = None
+    method: str = "gaussian"
+    seed: int | None = None
+    info: dict = field(default_factory=dict)
+
+    @property
+    def n(self) -> int:
+        """Number of samples."""
+        return int(self.values.shape[0])
+
+    @property
+    def effective_size(self) -> float:
+        """Kish effective sample size ``(sum w)^2 / sum w^2`` (n when unweighted)."""
+        if self.weights is None:
+            return float(self.n)
+        w = self.weights
+        return float(w.sum() ** 2 / np.dot(w, w))
+
+
+def psd_factor(cov) -> np.ndarray:
+    """Lower-triangular factor L with ``L @ L.T == cov`` for a PSD matrix.
+
+    A Cholesky decomposition that tolerates zero pivots (inputs held exact or
+    perfectly correlated): a pivot below rounding level zeroes its column. It
+    has no sign ambiguity, so the same seed gives the same draws on any
+    machine, unlike an eigen-decomposition.
+
+    Parameters
+    ----------
+    cov : array_like, shape (k, k)
+        Symmetric positive semi-definite matrix.
+
+    Returns
+    -------
+    ndarray, shape (k, k)
+    """
+    a = np.array(cov, dtype=float)
+    k = a.shape[0]
+    scale = np.sqrt(np.diag(a))
+    safe = np.where(scale > 0, scale, 1.0)
+    r = a / np.outer(safe, safe)  # correlation-scaled, so one tolerance fits all
+    low = np.zeros_like(r)
+    for j in range(k):
+        pivot = r[j, j] - np.dot(low[j, :j], low[j, :j])
+        if scale[j] == 0 or pivot <= 1e-12:
+            continue
+        low[j, j] = np.sqrt(pivot)
+        low[j + 1 :, j] = (r[j + 1 :, j] - low[j + 1 :, :j] @ low[j, :j]) / low[j, j]
+    return low * safe[:, None]
+
+
+def resolve_seed(seed) -> int:
+    """Turn ``None`` into a fresh recorded seed; pass integers through."""
+    if seed is None:
+        return int(np.random.SeedSequence().entropy % (2**63))
+    if isinstance(seed, (int, np.integer)) and seed >= 0:
+        return int(seed)
+    raise ValueError(f"seed = {seed!r}: expected a non-negative integer or None")
+
+
+def draw_gaussian(mean, cov, n, rng) -> np.ndarray:
+    """Draw ``n`` rows from the 6-D Gaussian N(mean, cov).
+
+    Parameters
+    ----------
+    mean : array_like, shape (6,)
+    cov : array_like, shape (6, 6)
+    n : int
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    ndarray, shape (n, 6)
+    """
+    low = psd_factor(cov)
+    z = rng.standard_normal((int(n), low.shape[0]))
+    out = z @ low.T
+    out += np.asarray(mean, dtype=float)
+    return out

@@ -1,0 +1,88 @@
+"""Quick screening of a catalogue: nominal perihelion and linear errors per row.
+
+Every row of the input comes back, in input order, with a status: rows that
+cannot be computed say why instead of disappearing.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._constants import AU_PER_PC
+from .errors import InputError
+from .models import ForwardModel, StraightLine
+from .propagate.linear import linearize
+from .star import ObservedStar
+
+__all__ = ["ScreenRow", "screen_catalogue"]
+
+
+@dataclass(frozen=True)
+class ScreenRow:
+    """One catalogue row after screening.
+
+    Attributes
+    ----------
+    row : int
+    name : str
+    status : str
+        ``"ok"`` or the reason the row could not be computed.
+    time_myr, time_sigma, distance_pc, distance_sigma, speed_kms : float or None
+    """
+
+    row: int
+    name: str
+    status: str
+    time_myr: float | None = None
+    time_sigma: float | None = None
+    distance_pc: float | None = None
+    distance_sigma: float | None = None
+    speed_kms: float | None = None
+
+    @property
+    def distance_au(self) -> float | None:
+        """Nominal perihelion distance in au."""
+        return None if self.distance_pc is None else self.distance_pc * AU_PER_PC
+
+
+def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
+    """Nominal perihelion with linear errors for every row of a table.
+
+    Parameters
+    ----------
+    table : astropy.table.Table or str or Path
+        Catalogue-named columns (see :mod:`perierr.star`).
+    model : ForwardModel, optional
+        Defaults to the straight-line model.
+
+    Returns
+    -------
+    list of ScreenRow
+        One per input row, in input order.
+    """
+    from astropy.table import Table
+
+    if not isinstance(table, Table):
+        table = Table.read(table)
+    model = model or StraightLine()
+    out = []
+    for i, row in enumerate(table):
+        name = str(row["name"]) if "name" in table.colnames else f"row {i}"
+        try:
+            star = ObservedStar.from_mapping(row, row=i, strict=False)
+            lin = linearize(star, model)
+        except InputError as exc:
+            reason = exc.expected.split(";")[0]
+            out.append(ScreenRow(i, name, f"not computed: {exc.field} = {exc.value!r}: {reason}"))
+            continue
+        t, d, v = (float(x) for x in lin.value)
+        st, sd = float(lin.sigma[0]), float(lin.sigma[1])
+        out.append(ScreenRow(i, star.name, "ok", t, st, d, sd, v))
+    return out
+
+
+def nearest_first(rows) -> list:
+    """Rows ordered by nominal perihelion distance (uncomputed rows last)."""
+    return sorted(rows, key=lambda r: (r.distance_pc is None, r.distance_pc or np.inf, r.row))

@@ -1,0 +1,231 @@
+"""Summaries of sampled outputs: quantiles with Monte Carlo errors, thresholds.
+
+All functions accept optional weights, so plain Monte Carlo, importance
+reweighting and MCMC samples flow through the same code.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = [
+    "DEFAULT_LEVELS",
+    "OutputSummary",
+    "ThresholdProbability",
+    "summarize",
+    "threshold_probability",
+    "weighted_quantiles",
+]
+
+#: Quantile levels always reported.
+DEFAULT_LEVELS = (0.05, 0.16, 0.5, 0.84, 0.95)
+
+
+def level_key(q: float) -> str:
+    """JSON/report key of a quantile level: 0.05 -> 'q05', 0.025 -> 'q02.5'."""
+    pct = 100.0 * q
+    return f"q{int(round(pct)):02d}" if abs(pct - round(pct)) < 1e-9 else f"q{pct:04.1f}"
+
+
+def weighted_quantiles(x, probs, weights=None) -> np.ndarray:
+    """Quantiles of ``x`` at ``probs``, with optional weights.
+
+    Unweighted: numpy's default (linear interpolation of order statistics).
+    Weighted: linear interpolation of the mid-point weighted CDF.
+    """
+    probs = np.asarray(probs, dtype=float)
+    if weights is None:
+        return np.quantile(x, probs)
+    order = np.argsort(x, kind="stable")
+    xs, ws = x[order], weights[order]
+    cdf = (np.cumsum(ws) - 0.5 * ws) / ws.sum()
+    return np.interp(probs, cdf, xs)
+
+
+@dataclass(frozen=True)
+class OutputSummary:
+    """Sample summary of one output, with Monte Carlo standard errors.
+
+    Attributes
+    ----------
+    name, unit : str
+    n : int
+        Samples summarized.
+    effective_size : float
+        Kish effective sample size (``n`` when unweighted).
+    mean, std, median : float
+    mean_se, std_se : float
+        Monte Carlo standard errors of the mean and the standard deviation.
+    quantiles : dict
+        Level -> value.
+    quantile_se : dict
+        Level -> Monte Carlo standard error of that quantile.
+    skewness : float
+    """
+
+    name: str
+    unit: str
+    n: int
+    effective_size: float
+    mean: float
+    std: float
+    median: float
+    mean_se: float
+    std_se: float
+    skewness: float
+    quantiles: dict = field(default_factory=dict)
+    quantile_se: dict = field(default_factory=dict)
+
+    def interval(self, level: float = 0.9) -> tuple:
+        """Central interval holding ``level`` of the samples, from stored quantiles."""
+        lo, hi = round(0.5 - level / 2, 10), round(0.5 + level / 2, 10)
+        for q in (lo, hi):
+            if q not in self.quantiles:
+                have = ", ".join(f"{k:g}" for k in sorted(self.quantiles))
+                raise KeyError(f"quantile {q:g} was not computed (have {have}); pass it in levels=")
+        return self.quantiles[lo], self.quantiles[hi]
+
+    def to_dict(self) -> dict:
+        """Plain dict for JSON (q05, q16, ... keys, errors under 'mc_error')."""
+        out = {"median": self.median, "mean": self.mean, "std": self.std}
+        out.update({level_key(q): v for q, v in sorted(self.quantiles.items())})
+        out["mc_error"] = {"mean": self.mean_se, "std": self.std_se}
+        out["mc_error"].update({level_key(q): v for q, v in sorted(self.quantile_se.items())})
+        out["skewness"] = self.skewness
+        out["n"] = self.n
+        out["effective_size"] = self.effective_size
+        out["unit"] = self.unit
+        return out
+
+
+def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:
+    """Summarize samples of one output.
+
+    The Monte Carlo error of the q-quantile is half the distance between the
+    quantiles at ``q -+ sqrt(q (1 - q) / n_eff)``: the distribution-free
+    interval from the binomial count of samples below the quantile (e.g.
+    Conover 1999, Practical Nonparametric Statistics, 3rd ed., Sect. 3.2).
+
+    Parameters
+    ----------
+    x : array_like, shape (n,)
+    levels : sequence of float
+        Quantile levels in (0, 1); 0.5 is always included.
+    weights : array_like, shape (n,), optional
+    """
+    x = np.asarray(x, dtype=float)
+    if x.size == 0:
+        raise ValueError(f"{name}: no samples to summarize")
+    levels = tuple(sorted({round(float(q), 12) for q in levels} | {0.5}))
+    for q in levels:
+        if not 0.0 < q < 1.0:
+            raise ValueError(f"quantile level {q!r}: expected a number strictly between 0 and 1")
+    w = None if weights is None else np.asarray(weights, dtype=float)
+    if w is None:
+        n_eff = float(x.size)
+        mean = float(x.mean())
+        dev = x - mean
+        m2 = float(np.dot(dev, dev) / x.size)
+        m3 = float(np.dot(dev * dev, dev) / x.size)
+        m4 = float(np.dot(dev * dev, dev * dev) / x.size)
+    else:
+        wsum = w.sum()
+        n_eff = float(wsum**2 / np.dot(w, w))
+        mean = float(np.dot(w, x) / wsum)
+        dev = x - mean
+        m2 = float(np.dot(w, dev * dev) / wsum)
+        m3 = float(np.dot(w, dev**3) / wsum)
+        m4 = float(np.dot(w, dev**4) / wsum)
+    std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
+    skew = m3 / m2**1.5 if m2 > 0 else 0.0
+    kurt = m4 / m2**2 if m2 > 0 else 3.0
+    spread = np.sqrt(np.asarray(levels) * (1 - np.asarray(levels)) / n_eff)
+    probs = np.concatenate(
+        [levels, np.clip(np.asarray(levels) - spread, 0, 1), np.clip(np.asarray(levels) + spread, 0, 1)]
+    )
+    qs = weighted_quantiles(x, probs, w)
+    k = len(levels)
+    values, lo, hi = qs[:k], qs[k : 2 * k], qs[2 * k :]
+    return OutputSummary(
+        name=name,
+        unit=unit,
+        n=int(x.size),
+        effective_size=n_eff,
+        mean=mean,
+        std=std,
+        median=float(values[levels.index(0.5)]),
+        mean_se=std / math.sqrt(n_eff),
+        # SE of a standard deviation for any distribution: s sqrt((kurtosis - 1) / n) / 2
+        std_se=0.5 * std * math.sqrt(max(kurt - 1.0, 0.0) / n_eff),
+        skewness=float(skew),
+        quantiles={q: float(v) for q, v in zip(levels, values)},
+        quantile_se={q: float(0.5 * (b - a)) for q, a, b in zip(levels, lo, hi)},
+    )
+
+
+@dataclass(frozen=True)
+class ThresholdProbability:
+    """Probability that the perihelion distance is below a threshold.
+
+    Attributes
+    ----------
+    label : str
+        The threshold as the user gave it (e.g. ``"20000 au"``).
+    distance_pc : float
+    probability : float
+    se : float
+        Binomial Monte Carlo standard error ``sqrt(p (1 - p) / n_eff)``.
+    upper95 : float
+        95 % upper bound on the probability when no sample passed
+        (``1 - 0.05^(1/n_eff)``), else equal to ``probability + 2 se``.
+    count : int
+        Samples below the threshold.
+    """
+
+    label: str
+    distance_pc: float
+    probability: float
+    se: float
+    upper95: float
+    count: int
+
+    def to_dict(self) -> dict:
+        """Plain dict for JSON."""
+        return {
+            "threshold": self.label,
+            "distance_pc": self.distance_pc,
+            "probability": self.probability,
+            "mc_error": self.se,
+            "upper95": self.upper95,
+            "count": self.count,
+        }
+
+
+def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> ThresholdProbability:
+    """P(d_ph < threshold) over all samples.
+
+    Parameters
+    ----------
+    distance_pc : array_like, shape (n,)
+        Perihelion distance of every sample; samples whose distance is
+        unbounded (parallax <= 0) carry ``inf`` and so count as not passing.
+    threshold_pc : float
+    label : str
+    weights : array_like, shape (n,), optional
+    """
+    d = np.asarray(distance_pc)
+    below = d < threshold_pc
+    count = int(np.count_nonzero(below))
+    if weights is None:
+        n_eff = float(d.size)
+        p = count / n_eff
+    else:
+        w = np.asarray(weights, dtype=float)
+        p = float(w[below].sum() / w.sum())
+        n_eff = float(w.sum() ** 2 / np.dot(w, w))
+    se = math.sqrt(p * (1 - p) / n_eff)
+    upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
+    return ThresholdProbability(label, float(threshold_pc), p, se, upper, count)
