@@ -326,6 +326,7 @@ def _is_missing(value) -> bool:
 
 def _to_float(name, value, row, unit="default") -> float:
     target = _UNITS.get(name) if unit == "default" else unit
+    given = value
     try:
         if isinstance(value, str):
             value = u.Quantity(value) if target is not None else float(value)
@@ -336,7 +337,9 @@ def _to_float(name, value, row, unit="default") -> float:
                 value = value.to_value(target)
         out = float(value)
     except u.UnitConversionError:
-        raise InputError(name, str(value), f"expected a quantity convertible to {target}", row) from None
+        raise InputError(
+            name, given if isinstance(given, str) else str(given), f"expected a quantity convertible to {target}", row
+        ) from None
     except (TypeError, ValueError):
         raise InputError(name, value, f"expected a number{' in ' + str(target) if target else ''}", row) from None
     if not math.isfinite(out):

@@ -1,0 +1,171 @@
+"""Linearized and Monte Carlo propagation against outside references."""
+
+import warnings
+
+import numpy as np
+import pytest
+import uncertainties
+from numpy.testing import assert_allclose
+from scipy import stats
+from uncertainties import umath
+
+from perierr import InputError, ObservedStar, StraightLine, linearize, monte_carlo
+from perierr._constants import KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
+from perierr.sampling.gaussian import draw_gaussian, psd_factor
+from perierr.summary import summarize, threshold_probability
+
+
+def test_linear_sigma_matches_uncertainties_package(close_star):
+    # Reference: the `uncertainties` package propagating the same LMA formulas with the same
+    # correlated inputs (first-order, like J Sigma J^T).
+    s = close_star
+    names = ["ra", "dec", "plx", "pmra", "pmdec", "rv"]
+    vals = uncertainties.correlated_values(list(s.mean), np.array(s.cov), tags=names)
+    _, _, plx, pmra, pmdec, rv = vals
+    dist = 1000.0 / plx
+    vt = KMS_PER_MASYR_AT_1MAS * 1e-3 * umath.sqrt(pmra**2 + pmdec**2) * dist
+    v2 = rv**2 + vt**2
+    t = -MYR_PER_PC_PER_KMS * dist * rv / v2
+    d = dist * vt / umath.sqrt(v2)
+    lin = linearize(s, StraightLine())
+    assert_allclose(lin.value[:2], [t.nominal_value, d.nominal_value], rtol=1e-12)
+    assert_allclose(lin.sigma[:2], [t.std_dev, d.std_dev], rtol=1e-7)
+    assert_allclose(lin.cov[0, 1], uncertainties.covariance_matrix([t, d])[0][1], rtol=1e-6)
+
+
+@pytest.mark.parametrize("shrink", [1.0, 0.1, 0.01])
+def test_monte_carlo_std_tends_to_linear_sigma(close_star, shrink):
+    # As the errors shrink the model is linear over the error ellipsoid: MC std -> linear sigma
+    # (Taylor expansion; the residual is second order in the errors).
+    star = ObservedStar(close_star.mean, close_star.cov * shrink**2)
+    lin = linearize(star, StraightLine())
+    mc = monte_carlo(star, StraightLine(), n=200_000, seed=4)
+    for k, q in enumerate(["time_myr", "distance_pc", "speed_kms"]):
+        ratio = mc.summaries[q].std / lin.sigma[k]
+        # 200k samples: MC error of a std about 0.16 %; nonlinearity ~ few % at full errors
+        tol = 0.05 if shrink == 1.0 else 0.01
+        assert abs(ratio - 1) < tol, (q, ratio)
+
+
+def test_same_seed_same_numbers(close_star):
+    a = monte_carlo(close_star, StraightLine(), n=5000, seed=123)
+    b = monte_carlo(close_star, StraightLine(), n=5000, seed=123)
+    c = monte_carlo(close_star, StraightLine(), n=5000, seed=124)
+    assert np.array_equal(a.samples.values, b.samples.values)
+    assert a.summaries["distance_pc"].median == b.summaries["distance_pc"].median
+    assert a.summaries["distance_pc"].median != c.summaries["distance_pc"].median
+
+
+def test_seed_none_is_recorded_and_reproduces(close_star):
+    a = monte_carlo(close_star, StraightLine(), n=2000, seed=None)
+    b = monte_carlo(close_star, StraightLine(), n=2000, seed=a.samples.seed)
+    assert np.array_equal(a.samples.values, b.samples.values)
+
+
+def test_draws_have_the_requested_covariance(close_star):
+    # Seeded statistical check: the sample covariance of 400k draws matches Sigma (4 sigma of
+    # the sampling error of each correlation, ~ 1/sqrt(n)).
+    rng = np.random.default_rng(7)
+    x = draw_gaussian(close_star.mean, close_star.cov, 400_000, rng)
+    s = close_star.sigma
+    emp = np.cov(x, rowvar=False)
+    assert_allclose(np.sqrt(np.diag(emp)), s, rtol=4 * np.sqrt(0.5 / 400_000) * 1.5)
+    corr = emp / np.outer(s, s)
+    want = close_star.cov / np.outer(s, s)
+    assert np.all(np.abs(corr - want) < 4 / np.sqrt(400_000))
+
+
+def test_psd_factor_copes_with_zero_variance_and_perfect_correlation():
+    cov = np.diag([0.0, 1.0, 4.0, 0.0, 9.0, 1.0])
+    cov[1, 2] = cov[2, 1] = 2.0  # correlation exactly 1
+    low = psd_factor(cov)
+    assert_allclose(low @ low.T, cov, atol=1e-12)
+    assert np.all(low[0] == 0) and np.all(low[3] == 0)
+    assert np.all(np.triu(low, 1) == 0)
+
+
+def test_quantile_mc_error_matches_asymptotic_formula():
+    # Asymptotic standard error of a sample quantile: sqrt(q (1-q) / n) / f(x_q)
+    # (e.g. Stuart & Ord, Kendall's Advanced Theory of Statistics, Vol. 1, eq. 10.29).
+    rng = np.random.default_rng(1)
+    n = 200_000
+    x = rng.standard_normal(n)
+    s = summarize(x, levels=(0.05, 0.16, 0.5, 0.84, 0.95))
+    for q in (0.05, 0.16, 0.5, 0.84, 0.95):
+        want = np.sqrt(q * (1 - q) / n) / stats.norm.pdf(stats.norm.ppf(q))
+        assert abs(s.quantile_se[q] / want - 1) < 0.1, q
+    assert_allclose(s.mean_se, 1 / np.sqrt(n), rtol=0.01)
+    assert_allclose(s.std_se, 1 / np.sqrt(2 * n), rtol=0.05)  # normal: s / sqrt(2n)
+
+
+def test_quantile_mc_error_is_honest_over_repeats():
+    # The reported MC error predicts the scatter of the median over independent repeats.
+    rng = np.random.default_rng(2)
+    meds, ses = [], []
+    for _ in range(200):
+        x = rng.lognormal(0.0, 0.8, 4000)
+        s = summarize(x)
+        meds.append(s.median)
+        ses.append(s.quantile_se[0.5])
+    assert abs(np.std(meds) / np.mean(ses) - 1) < 0.15
+
+
+def test_threshold_probability_and_binomial_error():
+    # Binomial: p = k/n, se = sqrt(p(1-p)/n); zero count: 95 % bound 1 - 0.05^(1/n) (~3/n).
+    d = np.array([0.1, 0.2, 0.3, 0.9, np.inf, 5.0, 0.05, 2.0])
+    t = threshold_probability(d, 0.5, label="0.5 pc")
+    assert t.count == 4 and t.probability == 0.5
+    assert_allclose(t.se, np.sqrt(0.25 / 8))
+    z = threshold_probability(np.full(1000, 3.0), 1.0, label="1 pc")
+    assert z.count == 0 and z.probability == 0.0
+    assert_allclose(z.upper95, 1 - 0.05 ** (1 / 1000))
+    assert abs(z.upper95 * 1000 - 3.0) < 0.01
+
+
+def test_nonpositive_parallax_samples_are_counted_not_dropped():
+    star = ObservedStar.from_values(
+        ra=10, dec=10, parallax=2.0, parallax_error=1.5, pmra=1.0, pmra_error=0.1, pmdec=-1.0,
+        pmdec_error=0.1, radial_velocity=-40, radial_velocity_error=1.0,
+    )
+    mc = monte_carlo(star, StraightLine(), n=100_000, seed=5)
+    # P(parallax <= 0) = Phi(-2/1.5) for a Gaussian parallax (scipy.stats.norm)
+    expected = stats.norm.cdf(-2 / 1.5)
+    frac = mc.n_nonpositive_parallax / mc.n
+    assert abs(frac - expected) < 4 * np.sqrt(expected * (1 - expected) / mc.n)
+    assert mc.perihelion.distance_pc.size == mc.n - mc.n_nonpositive_parallax
+    big = mc.thresholds[-1]  # 100000 au
+    assert big.count <= mc.n - mc.n_nonpositive_parallax
+    assert mc.to_dict()["n_nonpositive_parallax"] == mc.n_nonpositive_parallax
+
+
+def test_adaptive_mode_reaches_its_target(close_star):
+    mc = monte_carlo(close_star, StraightLine(), n=1000, seed=9, target_error=0.01)
+    assert mc.convergence["met"]
+    assert mc.worst_relative_error() <= 0.01
+    assert mc.n > 1000
+    with pytest.warns(UserWarning, match="not met"):
+        capped = monte_carlo(close_star, StraightLine(), n=1000, seed=9, target_error=0.001, max_samples=5000)
+    assert capped.n == 5000 and not capped.convergence["met"]
+
+
+def test_nonpositive_nominal_parallax_is_refused_with_the_remedy():
+    star = ObservedStar.from_values(
+        ra=1, dec=1, parallax=-0.3, parallax_error=0.5, pmra=1, pmra_error=0.1, pmdec=1,
+        pmdec_error=0.1, radial_velocity=-10, radial_velocity_error=1,
+    )
+    with pytest.raises(InputError, match="parallax = -0.3.*distance prior"):
+        linearize(star, StraightLine())
+    with pytest.raises(InputError, match="distance prior"):
+        monte_carlo(star, StraightLine(), n=1000, seed=1)
+
+
+def test_interval_from_kept_samples(close_star):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mc = monte_carlo(close_star, StraightLine(), n=50_000, seed=3, levels=(0.025, 0.975))
+    lo, hi = mc.interval("distance_pc", 0.95)
+    s = mc.summaries["distance_pc"]
+    assert_allclose([lo, hi], [s.quantiles[0.025], s.quantiles[0.975]], rtol=1e-3)
+    assert_allclose(s.interval(0.9), (s.quantiles[0.05], s.quantiles[0.95]))
+    with pytest.raises(KeyError, match="not computed"):
+        s.interval(0.5)
