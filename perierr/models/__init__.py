@@ -6,7 +6,7 @@ from .straight import StraightLine
 __all__ = ["ForwardModel", "Perihelion", "StraightLine", "MODEL_NAMES", "make_model"]
 
 #: Names accepted by :func:`make_model` (and the CLI's ``--model``).
-MODEL_NAMES = ("straight_line",)
+MODEL_NAMES = ("straight_line", "orbit")
 
 
 def make_model(name: str = "straight_line", **options) -> ForwardModel:
@@ -15,10 +15,48 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
     Parameters
     ----------
     name : str
-        One of :data:`MODEL_NAMES`.
+        One of :data:`MODEL_NAMES`: "straight_line" (no options) or "orbit"
+        (options of :class:`perierr.models.orbit.OrbitModel`, e.g.
+        ``potential="MWPotential2014"``, ``sun="bovy2015"``, ``horizon_myr=20``).
     **options
-        Passed to the model's constructor.
+        Passed to the model's constructor, except ``star_mass_msun``,
+        ``star_mass_error_msun`` and ``rng``: if ``star_mass_msun`` is given the
+        model is wrapped in :class:`perierr.models.focusing.Focused`
+        (gravitational focusing by the star's mass, with either model).
     """
+    focus = {k: options.pop(k) for k in ("star_mass_msun", "star_mass_error_msun", "rng")
+             if k in options}
     if name == "straight_line":
-        return StraightLine(**options)
-    raise ValueError(f"unknown model {name!r}; expected one of {', '.join(MODEL_NAMES)}")
+        if options:
+            raise ValueError(
+                f"model 'straight_line' takes no option {sorted(options)[0]!r} "
+                f"(value {options[sorted(options)[0]]!r}); accepted: star_mass_msun, "
+                "star_mass_error_msun, rng"
+            )
+        model = StraightLine()
+    elif name == "orbit":
+        from .orbit import ORBIT_OPTIONS, OrbitModel
+
+        unknown = sorted(set(options) - set(ORBIT_OPTIONS))
+        if unknown:
+            raise ValueError(
+                f"model 'orbit' has no option {unknown[0]!r} (value {options[unknown[0]]!r}); "
+                f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun, rng"
+            )
+        model = OrbitModel(**options)
+    else:
+        raise ValueError(f"unknown model {name!r}; expected one of {', '.join(MODEL_NAMES)}")
+    if "star_mass_msun" in focus:
+        from .focusing import Focused
+
+        model = Focused(
+            model,
+            mass_msun=focus["star_mass_msun"],
+            mass_error_msun=focus.get("star_mass_error_msun", 0.0),
+            rng=focus.get("rng"),
+        )
+    elif focus:
+        raise ValueError(
+            f"option {sorted(focus)[0]!r} needs star_mass_msun; got star_mass_msun=None"
+        )
+    return model

@@ -1,0 +1,359 @@
+"""The orbit model: perihelion of a star integrated with the Sun in a Galactic potential.
+
+Monte Carlo samples of one star go through a second-order state-transition
+map of a few reference orbits (one per distance bin), which is checked
+against direct integration of the samples farthest from their reference;
+bins whose check fails, and all rows evaluated without a reference, are
+integrated directly (vectorized over samples). See
+:mod:`perierr.models.orbit.transition` and
+:mod:`perierr.models.orbit.integrate`.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..._constants import AU_PER_PC
+from ..._constants import MYR_PER_PC_PER_KMS as _C
+from ...frames import cartesian_jacobian, observables_to_cartesian
+from ..base import ForwardModel, Perihelion
+from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
+from .potentials import Potential
+from .presets import PotentialPreset, get_potential
+from .sun import SolarParameters, get_solar_parameters
+from .transition import features, variational_tables
+
+__all__ = ["OrbitModel", "OrbitOptionError", "ORBIT_OPTIONS"]
+
+#: Keyword options of :class:`OrbitModel` (and ``make_model("orbit", ...)``).
+ORBIT_OPTIONS = (
+    "potential", "sun", "horizon_myr", "max_horizon_myr", "grid_step_myr", "method",
+    "bin_width_pc", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
+)  # fmt: skip
+_METHODS = ("auto", "map", "direct")
+
+
+class OrbitOptionError(ValueError):
+    """An option of the orbit model has an invalid value."""
+
+
+def _bad(option, value, expected):
+    return OrbitOptionError(f"orbit model option {option}={value!r} is invalid; expected {expected}")
+
+
+def _positive(option, value):
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise _bad(option, value, "a positive number") from None
+    if not math.isfinite(v) or v <= 0:
+        raise _bad(option, value, "a positive number")
+    return v
+
+
+class OrbitModel(ForwardModel):
+    """Perihelion from orbits of the Sun and the star in a Milky Way potential.
+
+    Parameters
+    ----------
+    potential : str or Potential, default "MWPotential2014"
+        Preset name (see :data:`~perierr.models.orbit.presets.POTENTIAL_PRESETS`)
+        or any :class:`~perierr.models.orbit.potentials.Potential`.
+    sun : str or SolarParameters, default "bovy2015"
+        Solar parameter set name ("bovy2015", "astropy_v4") or an object.
+    horizon_myr : None, float or (float, float), default None
+        Search window [Myr]. None: from 1.5 times the most extreme
+        straight-line times of the rows plus 1 Myr, always containing now, capped
+        at ``max_horizon_myr``; a number h: (-h, h); a pair: (t_min, t_max)
+        with t_min <= 0 <= t_max. Perihelia outside are flagged and given
+        the straight-line extrapolation from the window edge.
+    max_horizon_myr : float, default 100
+        Cap of the automatic window [Myr].
+    grid_step_myr : float, default 0.5
+        Largest step of the tabulation grid [Myr] (the integrator's own steps
+        are adaptive; the perihelion is refined far below this step).
+    method : {"auto", "map", "direct"}, default "auto"
+        "map": state-transition map (needs ``reference``), checked but never
+        replaced; "direct": integrate every row; "auto": map with automatic
+        fallback to direct integration where the check fails.
+    bin_width_pc : float, default 2
+        Width of the distance bins [pc]; each occupied bin gets its own
+        reference orbit.
+    map_tolerance_au : float, default 0.5
+        Largest allowed map error in d_ph [au] on the checked samples.
+    n_check : int, default 4
+        Samples per bin checked against direct integration (those farthest
+        from their reference orbit).
+    rtol, atol : float, default 1e-12, 1e-11
+        DOP853 tolerances of every integration.
+    chunk_size : int, default 20000
+        Samples per direct-integration call (bounds memory).
+    """
+
+    name = "orbit"
+
+    def __init__(
+        self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
+        max_horizon_myr=100.0, grid_step_myr=0.5, method="auto", bin_width_pc=2.0,
+        map_tolerance_au=0.5, n_check=4, rtol=1e-12, atol=1e-11, chunk_size=20000,
+    ):  # fmt: skip
+        if isinstance(potential, str):
+            self._preset = get_potential(potential)
+            self.potential = self._preset.potential
+        elif isinstance(potential, PotentialPreset):
+            self._preset, self.potential = potential, potential.potential
+        elif isinstance(potential, Potential):
+            self._preset, self.potential = None, potential
+        else:
+            raise _bad("potential", potential, "a preset name or a Potential object")
+        if isinstance(sun, str):
+            self.sun = get_solar_parameters(sun)
+        elif isinstance(sun, SolarParameters):
+            self.sun = sun
+        else:
+            raise _bad("sun", sun, "a solar parameter set name or a SolarParameters object")
+        self._rotation, self._sun_state = self.sun.frame()
+        if horizon_myr is not None:
+            if np.ndim(horizon_myr) == 0:
+                h = _positive("horizon_myr", horizon_myr)
+                horizon_myr = (-h, h)
+            else:
+                lo_hi = tuple(float(v) for v in horizon_myr)
+                if len(lo_hi) != 2 or not (lo_hi[0] <= 0.0 <= lo_hi[1] and lo_hi[0] < lo_hi[1]):
+                    raise _bad("horizon_myr", horizon_myr, "(t_min, t_max) with t_min <= 0 <= t_max")
+                horizon_myr = lo_hi
+        self.horizon_myr = horizon_myr
+        self.max_horizon_myr = _positive("max_horizon_myr", max_horizon_myr)
+        self.grid_step_myr = _positive("grid_step_myr", grid_step_myr)
+        if method not in _METHODS:
+            raise _bad("method", method, f"one of {', '.join(_METHODS)}")
+        self.method = method
+        self.bin_width_pc = _positive("bin_width_pc", bin_width_pc)
+        self.map_tolerance_au = _positive("map_tolerance_au", map_tolerance_au)
+        if not isinstance(n_check, int | np.integer) or n_check < 1:
+            raise _bad("n_check", n_check, "a positive integer")
+        self.n_check = int(n_check)
+        self.rtol = _positive("rtol", rtol)
+        self.atol = _positive("atol", atol)
+        if not isinstance(chunk_size, int | np.integer) or chunk_size < 1:
+            raise _bad("chunk_size", chunk_size, "a positive integer")
+        self.chunk_size = int(chunk_size)
+
+    # ------------------------------------------------------------------ setup
+    def describe(self) -> dict:
+        """Potential, solar parameters, window and numerical settings."""
+        pot = self._preset.describe() if self._preset else {"name": "custom",
+                                                             **self.potential.describe()}
+        return {
+            "name": self.name,
+            "potential": pot,
+            "sun": self.sun.as_dict(),
+            "horizon_myr": "auto" if self.horizon_myr is None else list(self.horizon_myr),
+            "max_horizon_myr": self.max_horizon_myr,
+            "grid_step_myr": self.grid_step_myr,
+            "method": self.method,
+            "bin_width_pc": self.bin_width_pc,
+            "map_tolerance_au": self.map_tolerance_au,
+            "n_check": self.n_check,
+            "integrator": {"scheme": "DOP853", "rtol": self.rtol, "atol": self.atol},
+        }
+
+    def _relative(self, observables):
+        obs = np.asarray(observables, dtype=float)
+        if obs.ndim == 1:
+            obs = obs[None, :]
+        if obs.ndim != 2 or obs.shape[1] != 6:
+            raise ValueError(f"observables have shape {obs.shape}; expected (n, 6)")
+        if not np.all(np.isfinite(obs)):
+            raise ValueError("observables contain non-finite values; expected finite numbers")
+        if np.any(obs[:, 2] <= 0):
+            bad = obs[obs[:, 2] <= 0, 2][0]
+            raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
+        xv = observables_to_cartesian(obs)
+        rot = self._rotation
+        return obs, np.concatenate([xv[:, :3] @ rot.T, xv[:, 3:] @ rot.T], axis=1)
+
+    def _grid(self, t_lin):
+        """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times [pc/(km/s)]."""
+        if self.horizon_myr is None:
+            tl = t_lin * _C
+            cap = self.max_horizon_myr
+            lo = max(-cap, min(0.0, 1.5 * float(np.min(tl))) - 1.0)
+            hi = min(cap, max(0.0, 1.5 * float(np.max(tl))) + 1.0)
+        else:
+            lo, hi = self.horizon_myr
+        parts = [np.zeros(1)]
+        if lo < 0:
+            n = math.ceil(-lo / self.grid_step_myr)
+            parts.insert(0, np.linspace(lo, 0.0, n + 1)[:-1])
+        if hi > 0:
+            n = math.ceil(hi / self.grid_step_myr)
+            parts.append(np.linspace(0.0, hi, n + 1)[1:])
+        return (lo, hi), np.concatenate(parts) / _C
+
+    # ---------------------------------------------------------------- solvers
+    def _direct(self, rel, nodes):
+        """Direct integration of every row (chunked); returns t, state, outside, conv."""
+        n = rel.shape[0]
+        t = np.empty(n)
+        state = np.empty((n, 6))
+        outside = np.empty(n, dtype=bool)
+        conv = np.empty(n, dtype=bool)
+        for start in range(0, n, self.chunk_size):
+            sl = slice(start, min(n, start + self.chunk_size))
+            states, derivs, _ = integrate_relative(
+                self.potential, self._sun_state, rel[sl], nodes, rtol=self.rtol, atol=self.atol
+            )
+
+            def values(k, rows, states=states, derivs=derivs):
+                return states[k, rows], derivs[k, rows]
+
+            t0 = grid_minimum_start(nodes, states)
+            t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, values, t0)
+        return t, state, outside, conv
+
+    def _bins(self, rel, ref_rel):
+        dist = np.linalg.norm(rel[:, :3], axis=1)
+        dref = np.linalg.norm(ref_rel[:3])
+        labels = np.rint((dist - dref) / self.bin_width_pc).astype(np.int64)
+        uniq, bidx = np.unique(labels, return_inverse=True)
+        refs = np.empty((uniq.size, 6))
+        sums = np.zeros((uniq.size, 6))
+        np.add.at(sums, bidx, rel)
+        refs[:] = sums / np.bincount(bidx, minlength=uniq.size)[:, None]
+        refs[uniq == 0] = ref_rel
+        return bidx, refs
+
+    def _map(self, rel, ref_rel, nodes, t_lin):
+        bidx, refs = self._bins(rel, ref_rel)
+        tables = variational_tables(
+            self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol
+        )
+        # each reference's own perihelion from its grid global minimum, to
+        # shift the samples' straight-line starting times
+        kref = refs.shape[0]
+        ref_feats = features(np.zeros((kref, 6)))
+        ref_vals = tables.node_values(np.arange(kref), ref_feats)
+        grid_states = np.moveaxis(tables.table[:, :, 0, :6], 1, 0)  # (m, K, 6)
+        t_ref, _, _, _ = newton_perihelion(nodes, ref_vals, grid_minimum_start(nodes, grid_states))
+        v_ref = refs[:, 3:]
+        t_lin_ref = -np.sum(refs[:, :3] * v_ref, axis=1) / np.sum(v_ref * v_ref, axis=1)
+        start = t_lin + (t_ref - t_lin_ref)[bidx]
+        delta = rel - refs[bidx]
+        feats = features(delta)
+        t, state, outside, conv = newton_perihelion(nodes, tables.node_values(bidx, feats), start)
+        # check against direct integration: the samples farthest from their reference
+        score = np.linalg.norm(delta[:, :3], axis=1) + np.linalg.norm(delta[:, 3:], axis=1) * (
+            np.abs(t) + 1.0
+        )
+        order = np.lexsort((-score, bidx))
+        first = np.searchsorted(bidx[order], np.arange(kref))
+        rank = np.arange(order.size) - first[bidx[order]]
+        check = order[rank < self.n_check]
+        tc, sc, oc, _ = self._direct(rel[check], nodes)
+        err_au = np.abs(np.linalg.norm(sc[:, :3], axis=1) - np.linalg.norm(state[check, :3], axis=1))
+        err_au *= AU_PER_PC
+        err_t = np.abs(tc - t[check]) * _C
+        bin_err = np.zeros(kref)
+        np.maximum.at(bin_err, bidx[check], err_au)
+        diag = {
+            "n_reference_orbits": int(kref),
+            "n_checked": int(check.size),
+            "map_error_au_max": float(err_au.max()),
+            "map_error_time_myr_max": float(err_t.max()),
+            "map_error_au_per_orbit": bin_err.tolist(),
+        }
+        redo = ~conv
+        if self.method == "auto":
+            redo |= (bin_err > self.map_tolerance_au)[bidx]
+        n_redo = int(redo.sum())
+        diag["fallback_samples"] = n_redo
+        if n_redo:
+            rows = np.flatnonzero(redo)
+            t[rows], state[rows], outside[rows], conv[rows] = self._direct(rel[rows], nodes)
+            diag["fallback_reason"] = (
+                f"{n_redo} of {rel.shape[0]} samples integrated directly: map error above "
+                f"{self.map_tolerance_au} au in {int(np.sum(bin_err > self.map_tolerance_au))} "
+                f"of {kref} reference orbits or Newton not converged"
+            )
+        return t, state, outside, conv, diag
+
+    # --------------------------------------------------------------- interface
+    def evaluate(self, observables, *, reference=None) -> Perihelion:
+        """Perihelion of every row; see :meth:`ForwardModel.evaluate`.
+
+        ``info`` holds "method" ("state_transition_map", "direct" or
+        "state_transition_map+direct_fallback"), the window, the number of
+        reference orbits, the map errors found by the check [au, Myr], the
+        number of fallback samples with the reason, and the number of
+        perihelia outside the window (flagged).
+        """
+        _, rel = self._relative(observables)
+        v = rel[:, 3:]
+        vv = np.sum(v * v, axis=1)
+        if np.any(vv == 0):
+            raise ValueError("a row has zero velocity relative to the Sun; expected motion")
+        t_lin = -np.sum(rel[:, :3] * v, axis=1) / vv
+        window, nodes = self._grid(t_lin)
+        info = {"model": self.name, "window_myr": list(window)}
+        if reference is None or self.method == "direct":
+            t, state, outside, conv = self._direct(rel, nodes)
+            info["method"] = "direct"
+        else:
+            _, ref_rel = self._relative(reference)
+            t, state, outside, conv, diag = self._map(rel, ref_rel[0], nodes, t_lin)
+            info.update(diag)
+            info["method"] = (
+                "state_transition_map+direct_fallback" if diag["fallback_samples"]
+                else "state_transition_map"
+            )  # fmt: skip
+        x, w = state[:, :3], state[:, 3:]
+        if outside.any():
+            # straight-line extrapolation from the window edge, flagged
+            dt = np.where(outside, -np.sum(x * w, axis=1) / np.sum(w * w, axis=1), 0.0)
+            t = t + dt
+            x = x + w * dt[:, None]
+        info["n_outside_window"] = int(outside.sum())
+        info["n_not_converged"] = int((~conv).sum())
+        flags = outside | ~conv
+        return Perihelion(
+            t * _C, np.linalg.norm(x, axis=1), np.linalg.norm(w, axis=1), flags=flags, info=info
+        )
+
+    def jacobian(self, point) -> np.ndarray:
+        """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.
+
+        Uses ``s . w = 0`` at perihelion: ``dt = -(w . ds + s . dw) / (w.w + s.a)``,
+        ``d d_ph = u . (ds + w dt)`` and ``d v_ph = (w/|w|) . (dw + a dt)``,
+        with ``(ds, dw) = Phi1(t_ph) delta``.
+        """
+        obs, rel = self._relative(point)
+        v = rel[0, 3:]
+        t_lin = np.array([-np.dot(rel[0, :3], v) / np.dot(v, v)])
+        _, nodes = self._grid(t_lin)
+        tables = variational_tables(
+            self.potential, self._sun_state, rel, nodes, rtol=self.rtol, atol=self.atol
+        )
+        vals = tables.node_values(np.zeros(1, dtype=int), features(np.zeros((1, 6))))
+        grid_states = tables.table[:, :, 0, :6].swapaxes(0, 1)
+        t, _, _, _ = newton_perihelion(nodes, vals, grid_minimum_start(nodes, grid_states))
+        k = int(np.clip(np.searchsorted(nodes, t[0], side="right") - 1, 0, len(nodes) - 2))
+        tab = tables.table[0]
+        p, dp = hermite(
+            t, nodes[k : k + 1], nodes[k + 1 : k + 2],
+            tab[k][None, :7, :6], tab[k][None, :7, 6:], tab[k + 1][None, :7, :6],
+            tab[k + 1][None, :7, 6:],
+        )  # fmt: skip
+        y, phi = p[0, 0], p[0, 1:].T  # state (6,), Phi1 (6, 6) [state_i, delta_a]
+        acc = dp[0, 0, 3:]
+        s, w = y[:3], y[3:]
+        dt = -(w @ phi[:3] + s @ phi[3:]) / (w @ w + s @ acc)
+        unit = s / np.linalg.norm(s)
+        dd = unit @ (phi[:3] + np.outer(w, dt))
+        dv = (w / np.linalg.norm(w)) @ (phi[3:] + np.outer(acc, dt))
+        jac_gc = np.stack([dt * _C, dd, dv])
+        rot6 = np.zeros((6, 6))
+        rot6[:3, :3] = rot6[3:, 3:] = self._rotation
+        return jac_gc @ rot6 @ cartesian_jacobian(obs[0])

@@ -1,0 +1,166 @@
+"""Second-order state-transition map of Sun-relative orbits.
+
+A reference orbit ``y(t)`` (relative to the Sun) is integrated with its
+first- and second-order variational equations. A nearby orbit that starts at
+``y(0) + delta`` is then, to second order,
+
+    y(t) + Phi1(t) delta + 1/2 Phi2(t)[delta, delta],
+
+with ``Phi1' = A Phi1`` and
+``Phi2'^i_ab = A^i_j Phi2^j_ab + f^i_jk Phi1^j_a Phi1^k_b`` where ``A`` is the
+Jacobian of the equations of motion (the potential's Hessian) and ``f^i_jk``
+their second derivatives (the potential's third derivatives). Everything is
+tabulated on a time grid as a linear map from the 28 features
+``(1, delta_a, delta_a delta_b [a <= b])`` to the state and its time
+derivative, so mapping a sample costs one small matrix product per node.
+
+References
+----------
+Park, R. S. & Scheeres, D. J. 2006, J. Guid. Control Dyn. 29, 1367 (higher
+order state-transition tensors); Hairer, Norsett & Wanner 1993, Solving
+Ordinary Differential Equations I, Sect. I.14 (variational equations).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .integrate import _solve_both_ways
+
+__all__ = ["N_FEATURES", "features", "variational_tables", "MapTables"]
+
+_IA, _IB = np.triu_indices(6)
+#: Number of map features: constant, 6 linear, 21 quadratic monomials.
+N_FEATURES = 1 + 6 + _IA.size
+_NVAR = 6 + 36 + 216
+
+
+def features(delta) -> np.ndarray:
+    """Map features of initial offsets.
+
+    Parameters
+    ----------
+    delta : ndarray, shape (n, 6)
+        Offsets from the reference initial state [pc, km/s].
+
+    Returns
+    -------
+    ndarray, shape (n, 28)
+    """
+    n = delta.shape[0]
+    return np.concatenate([np.ones((n, 1)), delta, delta[:, _IA] * delta[:, _IB]], axis=1)
+
+
+def _derivative(potential, sun, y):
+    """Derivatives of Sun (B, 6) and variational states (B, K, 258)."""
+    s = y[..., :6]
+    p1 = y[..., 6:42].reshape(y.shape[:-1] + (6, 6))
+    p2 = y[..., 42:].reshape(y.shape[:-1] + (6, 6, 6))
+    xg = sun[..., None, :3] + s[..., :3]
+    a_sun = potential.acceleration(sun[..., :3])
+    acc = potential.acceleration(xg) - a_sun[..., None, :]
+    jac = -potential.hessian(xg)  # d a / d x
+    ten = -potential.third_derivatives(xg)  # d2 a / dx dx
+    ds = np.concatenate([s[..., 3:], acc], axis=-1)
+    dp1 = np.concatenate([p1[..., 3:, :], jac @ p1[..., :3, :]], axis=-2)
+    px = p1[..., :3, :]
+    low = np.einsum("...ij,...jab->...iab", jac, p2[..., :3, :, :])
+    low = low + np.einsum("...ijl,...ja,...lb->...iab", ten, px, px)
+    dp2 = np.concatenate([p2[..., 3:, :, :], low], axis=-3)
+    dsun = np.concatenate([sun[..., 3:], a_sun], axis=-1)
+    flat = np.concatenate(
+        [ds, dp1.reshape(ds.shape[:-1] + (36,)), dp2.reshape(ds.shape[:-1] + (216,))], axis=-1
+    )
+    return dsun, flat
+
+
+class MapTables:
+    """Tabulated second-order maps of K reference orbits on a time grid.
+
+    Attributes
+    ----------
+    nodes : ndarray, shape (m,)
+        Grid times [pc/(km/s)].
+    refs : ndarray, shape (K, 6)
+        Reference initial states relative to the Sun.
+    table : ndarray, shape (K, m, 28, 12)
+        Feature -> (state, time derivative) coefficients at each node.
+    """
+
+    def __init__(self, nodes, refs, table):
+        self.nodes = nodes
+        self.refs = refs
+        self.table = table
+
+    def node_values(self, ref_index, feats):
+        """Return a callable for :func:`newton_perihelion` over samples.
+
+        Parameters
+        ----------
+        ref_index : ndarray of int, shape (n,)
+            Reference orbit of each sample.
+        feats : ndarray, shape (n, 28)
+            Features of each sample's offset from its reference.
+        """
+        m = len(self.nodes)
+
+        def values(k, rows):
+            key = ref_index[rows] * m + k
+            order = np.argsort(key, kind="stable")
+            sk = key[order]
+            cuts = np.flatnonzero(np.diff(sk)) + 1
+            out = np.empty((rows.size, 12))
+            for grp in np.split(order, cuts):
+                b, kk = divmod(int(key[grp[0]]), m)
+                out[grp] = feats[rows[grp]] @ self.table[b, kk]
+            return out[:, :6], out[:, 6:]
+
+        return values
+
+
+def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol) -> MapTables:
+    """Integrate reference orbits with their variational equations and tabulate the maps.
+
+    Parameters
+    ----------
+    potential : Potential
+    sun_state : ndarray, shape (6,)
+        The Sun's Galactocentric state at t = 0.
+    refs : ndarray, shape (K, 6)
+        Reference initial states relative to the Sun (all integrated in one
+        solver call).
+    nodes : ndarray, shape (m,)
+        Increasing grid times containing 0 [pc/(km/s)].
+    rtol, atol : float
+        DOP853 tolerances.
+
+    Returns
+    -------
+    MapTables
+    """
+    refs = np.atleast_2d(np.asarray(refs, dtype=float))
+    k = refs.shape[0]
+    y0 = np.zeros((k, _NVAR))
+    y0[:, :6] = refs
+    y0[:, 6:42] = np.eye(6).ravel()
+
+    def fun(_t, y):
+        dsun, dy = _derivative(potential, y[:6], y[6:].reshape(k, _NVAR))
+        return np.concatenate([dsun, dy.ravel()])
+
+    sol = _solve_both_ways(fun, np.concatenate([sun_state, y0.ravel()]), nodes, rtol, atol)
+    sun = sol[:, :6]
+    ys = sol[:, 6:].reshape(len(nodes), k, _NVAR)
+    _, dys = _derivative(potential, sun, ys)
+    table = np.empty((k, len(nodes), N_FEATURES, 12))
+    for col, arr in ((0, ys), (6, dys)):
+        arr = np.moveaxis(arr, 1, 0)  # (K, m, 258)
+        p1 = arr[..., 6:42].reshape(k, len(nodes), 6, 6)
+        p2 = arr[..., 42:].reshape(k, len(nodes), 6, 6, 6)
+        p2 = 0.5 * (p2 + np.swapaxes(p2, -1, -2))
+        coef = np.where(_IA == _IB, 0.5, 1.0)
+        table[..., 0, col : col + 6] = arr[..., :6]
+        table[..., 1:7, col : col + 6] = np.swapaxes(p1, -1, -2)
+        quad = p2[..., :, _IA, _IB] * coef  # (K, m, 6, 21)
+        table[..., 7:, col : col + 6] = np.swapaxes(quad, -1, -2)
+    return MapTables(nodes, refs, table)
