@@ -1,0 +1,132 @@
+"""Choose how to sample the posterior under a distance prior, and do it.
+
+``method="auto"`` reweights Gaussian draws (fast, exact in the limit) and
+switches to MCMC when reweighting degenerates: a nominal parallax <= 0, or a
+Kish effective sample size below ``min_effective_size``. The reason for a
+switch is recorded in ``Samples.info["switched_to_mcmc"]``.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+
+from .._constants import OBSERVABLES
+from ..errors import InputError, PerierrWarning
+from ..propagate.checks import require_positive_parallax
+from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from .densities import DistancePrior, NoPrior
+from .mcmc import sample_posterior_mcmc
+from .reweight import reweight
+
+__all__ = ["METHODS", "posterior_samples"]
+
+#: Accepted values of ``method``.
+METHODS = ("auto", "reweight", "mcmc")
+_PLX = OBSERVABLES.index("parallax")
+
+
+def posterior_samples(
+    star,
+    prior: DistancePrior,
+    *,
+    n: int = 100_000,
+    seed=None,
+    method: str = "auto",
+    min_effective_size: float | None = None,
+    mcmc_effective_size: int = 4000,
+    n_walkers: int = 64,
+    max_steps: int = 100_000,
+) -> Samples:
+    """Samples of the six observables from their posterior under ``prior``.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    prior : DistancePrior
+        :class:`NoPrior` gives plain Gaussian draws (parallax inversion).
+    n : int
+        Gaussian draws for reweighting.
+    seed : int or None
+        One seed drives every random number (None picks and records one).
+    method : {"auto", "reweight", "mcmc"}
+    min_effective_size : float, optional
+        Reweighting below this Kish effective sample size switches to MCMC
+        (auto) or warns (reweight). Default ``min(1000, n / 10)``.
+    mcmc_effective_size : int
+        Effective sample size the MCMC run must reach (capped at ``n``).
+    n_walkers, max_steps : int
+        Passed to :func:`~perierr.priors.mcmc.sample_posterior_mcmc`.
+
+    Returns
+    -------
+    Samples
+        ``method`` is ``"gaussian"`` (no prior), ``"reweight"`` or ``"mcmc"``;
+        ``info`` is JSON-able and always has ``effective_size``.
+    """
+    if method not in METHODS:
+        raise InputError("prior_method", method, f"expected one of {', '.join(METHODS)}")
+    seed = resolve_seed(seed)
+    rng = np.random.default_rng(seed)
+    plx, sig = float(star.mean[_PLX]), float(star.sigma[_PLX])
+    if isinstance(prior, NoPrior):
+        require_positive_parallax(plx, method="The 'none' distance prior (parallax inversion)")
+        values = draw_gaussian(star.mean, star.cov, int(n), rng)
+        return Samples(values, method="gaussian", seed=seed,
+                       info={"effective_size": float(n), "note": "no prior: parallaxes inverted"})
+    if sig == 0:
+        if not plx > 0 or not np.isfinite(prior.log_density(np.array([1000.0 / plx])))[0]:
+            raise InputError("parallax", plx, "with parallax_error = 0 the distance is fixed at "
+                             "1000 / parallax, which must be > 0 and inside the prior's support")
+        values = draw_gaussian(star.mean, star.cov, int(n), rng)
+        return Samples(values, method="reweight", weights=np.full(int(n), 1.0 / int(n)), seed=seed,
+                       info={"effective_size": float(n),
+                             "note": "parallax_error = 0: the distance is fixed and the prior has no effect"})
+    if not plx > 0 or plx < sig:
+        what = "<= 0" if not plx > 0 else f"below its error ({plx:.3g} < {sig:.3g} mas)"
+        warnings.warn(
+            f"the parallax is {what}: the distance, and with it the perihelion, is dominated by "
+            f"the {prior.name} prior {prior.parameters}; the result states the prior's "
+            "assumption more than the measurement",
+            PerierrWarning, stacklevel=2,
+        )
+    threshold = float(min(1000.0, n / 10)) if min_effective_size is None else float(min_effective_size)
+    switched = None
+    tried = None
+    if method == "reweight" or (method == "auto" and plx > 0):
+        samples = reweight(star, prior, n=n, seed=seed, rng=rng) if _overlaps(star, prior, n, rng) else None
+        ess = 0.0 if samples is None else samples.info["effective_size"]
+        if ess >= threshold:
+            return samples
+        if method == "reweight":
+            if samples is None:
+                return reweight(star, prior, n=n, seed=seed, rng=np.random.default_rng(seed))
+            warnings.warn(
+                f"reweighting kept an effective sample size of {ess:.0f} (< {threshold:.0f}) out of "
+                f"{n} draws: its quantiles are noisy; use prior_method='mcmc' or 'auto'",
+                PerierrWarning, stacklevel=2,
+            )
+            return samples
+        tried = ess
+        switched = f"reweighting effective sample size {ess:.0f} < {threshold:.0f}"
+    elif method == "auto":
+        switched = "nominal parallax <= 0"
+    out = sample_posterior_mcmc(
+        star, prior, n_effective=min(int(mcmc_effective_size), int(n)), seed=seed, rng=rng,
+        n_walkers=n_walkers, max_steps=max_steps,
+    )
+    info = dict(out.info)
+    if switched is not None:
+        info["switched_to_mcmc"] = switched
+    if tried is not None:
+        info["reweight_effective_size"] = tried
+    return Samples(out.values, method="mcmc", seed=seed, info=info)
+
+
+def _overlaps(star, prior, n, rng) -> bool:
+    """Whether reweighting can have any positive weight (cheap pre-check)."""
+    lo, hi = prior.support
+    plx, sig = float(star.mean[_PLX]), float(star.sigma[_PLX])
+    top = plx + 8 * sig  # largest plausible parallax draw
+    return top > 0 and (not np.isfinite(hi) or 1000.0 / hi <= top) and 1000.0 / max(lo, 1e-300) > plx - 8 * sig

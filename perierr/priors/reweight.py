@@ -1,0 +1,104 @@
+"""Importance reweighting of Gaussian draws to the posterior under a distance prior.
+
+The Gaussian draws of the six observables are samples of the posterior under
+a flat prior in parallax. Written in distance r = 1000 / parallax, their
+density carries the Jacobian ``|d parallax / d r| = 1000 / r^2``. The
+posterior under a prior P(r) is the same Gaussian likelihood times P(r), so
+each draw gets the importance weight
+
+    w_i  proportional to  P(r_i) r_i^2 ,
+
+which undoes the implied ``1 / r^2`` and applies the prior. Draws with
+parallax <= 0 have no distance and weight zero; they, and draws outside the
+prior's support, are removed and counted in ``info``. The quality of the
+weights is the Kish effective sample size ``(sum w)^2 / sum w^2``
+(Kish 1965, Survey Sampling, Sect. 11.7; Owen 2013, Monte Carlo theory,
+methods and examples, Sect. 9.3).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .._constants import OBSERVABLES
+from ..errors import InputError
+from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+
+__all__ = ["log_weights", "reweight"]
+
+_PLX = OBSERVABLES.index("parallax")
+
+
+def log_weights(parallax, prior) -> np.ndarray:
+    """Unnormalized log importance weights ``ln P(r) + 2 ln r`` of parallax draws.
+
+    Parameters
+    ----------
+    parallax : array_like, shape (n,)
+        Sampled parallaxes [mas]; entries <= 0 get ``-inf``.
+    prior : DistancePrior
+
+    Returns
+    -------
+    ndarray, shape (n,)
+    """
+    plx = np.asarray(parallax, dtype=float)
+    out = np.full(plx.shape, -np.inf)
+    pos = plx > 0
+    r = 1000.0 / plx[pos]
+    out[pos] = prior.log_density(r) + 2.0 * np.log(r)
+    return out
+
+
+def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
+    """Gaussian draws of a star's observables, weighted to the posterior.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    prior : DistancePrior
+    n : int
+        Draws before removing the zero-weight ones.
+    seed : int or None
+        Seed of ``numpy.random.default_rng`` (None picks and records one).
+    rng : numpy.random.Generator, optional
+        Use this generator instead (``seed`` is then only recorded).
+
+    Returns
+    -------
+    Samples
+        ``method="reweight"``; ``weights`` sum to 1; ``info`` holds
+        ``effective_size`` (Kish), ``n_drawn``, ``n_zero_weight`` and
+        ``max_weight`` (largest normalized weight).
+
+    Raises
+    ------
+    InputError
+        When no draw has positive weight (the prior and the parallax do not
+        overlap): use ``method="mcmc"``.
+    """
+    if int(n) < 100:
+        raise InputError("n_samples", n, "expected at least 100 samples")
+    seed = resolve_seed(seed)
+    if rng is None:
+        rng = np.random.default_rng(seed)
+    values = draw_gaussian(star.mean, star.cov, int(n), rng)
+    logw = log_weights(values[:, _PLX], prior)
+    keep = np.isfinite(logw)
+    if not keep.any():
+        raise InputError(
+            "distance prior", prior.name,
+            f"no Gaussian draw of the parallax lies where the prior is non-zero "
+            f"({prior.parameters}); importance reweighting cannot work, use method='mcmc'",
+        )
+    logw = logw[keep]
+    w = np.exp(logw - logw.max())
+    w /= w.sum()
+    ess = float(1.0 / np.dot(w, w))
+    info = {
+        "effective_size": ess,
+        "n_drawn": int(n),
+        "n_zero_weight": int(n - np.count_nonzero(keep)),
+        "max_weight": float(w.max()),
+    }
+    return Samples(values[keep], weights=w, method="reweight", seed=seed, info=info)
