@@ -47,7 +47,8 @@ class StraightLine(ForwardModel):
             obs = obs[None, :]
         plx, pmra, pmdec, vr = obs[:, 2], obs[:, 3], obs[:, 4], obs[:, 5]
         inv = _A / plx  # distance [pc]
-        vt = (_K * 1e-3) * np.hypot(pmra, pmdec) * inv  # km/s
+        # sqrt of the sum of squares: np.hypot is ~8x slower and proper motions cannot overflow
+        vt = (_K * 1e-3) * np.sqrt(pmra * pmra + pmdec * pmdec) * inv  # km/s
         v2 = vr * vr + vt * vt
         at_rest = v2 == 0.0
         if at_rest.any():

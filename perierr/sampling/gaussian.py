@@ -103,7 +103,9 @@ def draw_gaussian(mean, cov, n, rng) -> np.ndarray:
     ndarray, shape (n, 6)
     """
     low = psd_factor(cov)
-    z = rng.standard_normal((int(n), low.shape[0]))
-    out = z @ low.T
-    out += np.asarray(mean, dtype=float)
-    return out
+    # draw (k, n) so that each observable is contiguous in memory: the (n, k) result
+    # is a Fortran-ordered view, which makes column-wise model evaluation faster
+    z = rng.standard_normal((low.shape[0], int(n)))
+    out = low @ z
+    out += np.asarray(mean, dtype=float)[:, None]
+    return out.T
