@@ -29,7 +29,8 @@ __all__ = ["OrbitModel", "OrbitOptionError", "ORBIT_OPTIONS"]
 
 #: Keyword options of :class:`OrbitModel` (and ``make_model("orbit", ...)``).
 ORBIT_OPTIONS = (
-    "potential", "sun", "horizon_myr", "max_horizon_myr", "grid_step_myr", "method",
+    "potential", "sun", "horizon_myr", "max_horizon_myr", "grid_step_myr", "grid_travel_pc",
+    "method",
     "bin_width_pc", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
@@ -74,6 +75,11 @@ class OrbitModel(ForwardModel):
     grid_step_myr : float, default 0.5
         Largest step of the tabulation grid [Myr] (the integrator's own steps
         are adaptive; the perihelion is refined far below this step).
+    grid_travel_pc : float, default 10
+        The grid step is also at most this distance divided by the largest
+        relative speed of the rows: the Hermite error grows as (speed *
+        step)^2 step^2 times the third derivatives of the potential (the disk's
+        vertical structure), about 0.02 au at the default.
     method : {"auto", "map", "direct"}, default "auto"
         "map": state-transition map (needs ``reference``), checked but never
         replaced; "direct": integrate every row; "auto": map with automatic
@@ -96,7 +102,7 @@ class OrbitModel(ForwardModel):
 
     def __init__(
         self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
-        max_horizon_myr=100.0, grid_step_myr=0.5, method="auto", bin_width_pc=2.0,
+        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto", bin_width_pc=2.0,
         map_tolerance_au=0.5, n_check=4, rtol=1e-12, atol=1e-11, chunk_size=20000,
     ):  # fmt: skip
         if isinstance(potential, str):
@@ -127,6 +133,7 @@ class OrbitModel(ForwardModel):
         self.horizon_myr = horizon_myr
         self.max_horizon_myr = _positive("max_horizon_myr", max_horizon_myr)
         self.grid_step_myr = _positive("grid_step_myr", grid_step_myr)
+        self.grid_travel_pc = _positive("grid_travel_pc", grid_travel_pc)
         if method not in _METHODS:
             raise _bad("method", method, f"one of {', '.join(_METHODS)}")
         self.method = method
@@ -153,6 +160,7 @@ class OrbitModel(ForwardModel):
             "horizon_myr": "auto" if self.horizon_myr is None else list(self.horizon_myr),
             "max_horizon_myr": self.max_horizon_myr,
             "grid_step_myr": self.grid_step_myr,
+            "grid_travel_pc": self.grid_travel_pc,
             "method": self.method,
             "bin_width_pc": self.bin_width_pc,
             "map_tolerance_au": self.map_tolerance_au,
@@ -169,14 +177,14 @@ class OrbitModel(ForwardModel):
         if not np.all(np.isfinite(obs)):
             raise ValueError("observables contain non-finite values; expected finite numbers")
         if np.any(obs[:, 2] <= 0):
-            bad = obs[obs[:, 2] <= 0, 2][0]
+            bad = float(obs[obs[:, 2] <= 0, 2][0])
             raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
         xv = observables_to_cartesian(obs)
         rot = self._rotation
         return obs, np.concatenate([xv[:, :3] @ rot.T, xv[:, 3:] @ rot.T], axis=1)
 
-    def _grid(self, t_lin):
-        """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times [pc/(km/s)]."""
+    def _grid(self, t_lin, speed):
+        """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times and speeds."""
         if self.horizon_myr is None:
             tl = t_lin * _C
             cap = self.max_horizon_myr
@@ -184,12 +192,13 @@ class OrbitModel(ForwardModel):
             hi = min(cap, max(0.0, 1.5 * float(np.max(tl))) + 1.0)
         else:
             lo, hi = self.horizon_myr
+        step = min(self.grid_step_myr, self.grid_travel_pc / max(float(speed), 1e-3) * _C)
         parts = [np.zeros(1)]
         if lo < 0:
-            n = math.ceil(-lo / self.grid_step_myr)
+            n = math.ceil(-lo / step)
             parts.insert(0, np.linspace(lo, 0.0, n + 1)[:-1])
         if hi > 0:
-            n = math.ceil(hi / self.grid_step_myr)
+            n = math.ceil(hi / step)
             parts.append(np.linspace(0.0, hi, n + 1)[1:])
         return (lo, hi), np.concatenate(parts) / _C
 
@@ -293,11 +302,10 @@ class OrbitModel(ForwardModel):
         _, rel = self._relative(observables)
         v = rel[:, 3:]
         vv = np.sum(v * v, axis=1)
-        if np.any(vv == 0):
-            raise ValueError("a row has zero velocity relative to the Sun; expected motion")
-        t_lin = -np.sum(rel[:, :3] * v, axis=1) / vv
-        window, nodes = self._grid(t_lin)
-        info = {"model": self.name, "window_myr": list(window)}
+        # straight-line times start the search (0 for a star at rest)
+        t_lin = -np.sum(rel[:, :3] * v, axis=1) / np.where(vv > 0, vv, 1.0)
+        window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
+        info = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}
         if reference is None or self.method == "direct":
             t, state, outside, conv = self._direct(rel, nodes)
             info["method"] = "direct"
@@ -332,7 +340,7 @@ class OrbitModel(ForwardModel):
         obs, rel = self._relative(point)
         v = rel[0, 3:]
         t_lin = np.array([-np.dot(rel[0, :3], v) / np.dot(v, v)])
-        _, nodes = self._grid(t_lin)
+        _, nodes = self._grid(t_lin, np.linalg.norm(v))
         tables = variational_tables(
             self.potential, self._sun_state, rel, nodes, rtol=self.rtol, atol=self.atol
         )

@@ -1,0 +1,224 @@
+"""The orbit model against galpy, astropy and textbook invariants (invented stars only)."""
+
+import math
+
+import astropy.coordinates as coord
+import astropy.units as u
+import numpy as np
+import pytest
+from galpy.orbit import Orbit
+from galpy.potential import MWPotential2014 as GALPY_MW2014
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from perierr._constants import AU_PER_PC, MYR_PER_PC_PER_KMS
+from perierr.frames import cartesian_to_observables, observables_to_cartesian
+from perierr.models import StraightLine, make_model
+from perierr.models.base import ForwardModel
+from perierr.models.orbit import OrbitModel, OrbitOptionError, Plummer, get_solar_parameters
+from perierr.models.orbit.integrate import integrate_relative
+
+GALPY_KW = dict(ro=8.0, vo=220.0, zo=0.0208, solarmotion="schoenrich")
+
+
+def invented_stars(n, seed, dmax=50.0, tmax=10.0):
+    """Random invented stars within dmax pc with straight-line |t_ph| in (0.2, tmax) Myr."""
+    rng = np.random.default_rng(seed)
+    out = []
+    while len(out) < n:
+        x = rng.normal(size=3)
+        x *= rng.uniform(5.0, dmax) / np.linalg.norm(x)
+        v = rng.normal(0.0, 30.0, size=3)
+        t = -np.dot(x, v) / np.dot(v, v) * MYR_PER_PC_PER_KMS
+        if 0.2 < abs(t) < tmax - 1.0:
+            out.append(cartesian_to_observables(np.concatenate([x, v])))
+    return np.array(out)
+
+
+def galpy_perihelion(obs, t_guess_myr):
+    """Perihelion from galpy 1.12 orbits of the star and the Sun (test-only reference).
+
+    Both are integrated with galpy's dop853_c (default tolerance 1e-12) on a
+    fine grid of 3001 points +/- 0.3 Myr around the straight-line time; the
+    minimum of the squared separation is refined with a parabola.
+    """
+    sign = 1.0 if t_guess_myr > 0 else -1.0
+    near = sign * max(abs(t_guess_myr) - 0.3, 1e-3)
+    grid = np.concatenate([[0.0], np.linspace(near, t_guess_myr + 0.3 * sign, 3001)])
+    ts = grid * u.Myr
+    star = Orbit(
+        [obs[0], obs[1], 1.0 / obs[2], obs[3], obs[4], obs[5]], radec=True, **GALPY_KW
+    )
+    sun = Orbit(**GALPY_KW)
+    star.integrate(ts, GALPY_MW2014, method="dop853_c")
+    sun.integrate(ts, GALPY_MW2014, method="dop853_c")
+
+    def rect(o):
+        a = o.getOrbit()  # natural units: R, vR, vT, z, vz, phi (read once)
+        r, vr, vt, z, vz, phi = a.T
+        c, s = np.cos(phi), np.sin(phi)
+        pos = np.stack([r * c, r * s, z], axis=1) * 8000.0
+        vel = np.stack([vr * c - vt * s, vr * s + vt * c, vz], axis=1) * 220.0
+        return pos, vel
+
+    ps, vs = rect(star)
+    pu, vu = rect(sun)
+    d2 = np.sum((ps - pu) ** 2, axis=1)[1:]
+    tt = grid[1:]
+    i = int(np.argmin(d2))
+    assert 0 < i < len(tt) - 1
+    y0, y1, y2 = d2[i - 1 : i + 2]
+    h = tt[i + 1] - tt[i]
+    off = 0.5 * (y0 - y2) / (y0 - 2 * y1 + y2)
+    tmin = tt[i] + off * h
+    d2min = y1 - 0.25 * (y0 - y2) * off
+    speed = np.linalg.norm((vs - vu)[1:][i])
+    return tmin, math.sqrt(d2min), speed
+
+
+STARS = invented_stars(22, seed=20261202)
+
+
+@pytest.fixture(scope="module")
+def galpy_results():
+    t_lin = StraightLine().evaluate(STARS).time_myr
+    return np.array([galpy_perihelion(o, t) for o, t in zip(STARS, t_lin, strict=True)])
+
+
+def test_direct_integration_agrees_with_galpy(galpy_results):
+    # galpy 1.12 with the same potential (MWPotential2014, Bovy 2015) and the same
+    # solar parameters (ro = 8 kpc, vo = 220 km/s, zo = 20.8 pc, Schoenrich 2010
+    # solar motion). Issue 3 tolerance: 1 au or 1e-5 relative in d_ph, 1e-5 in t_ph.
+    ph = OrbitModel(horizon_myr=10.0).evaluate(STARS)
+    tg, dg, vg = galpy_results.T
+    assert not ph.flags.any()
+    tol_d = np.maximum(1.0 / AU_PER_PC, 1e-5 * dg)
+    assert np.all(np.abs(ph.distance_pc - dg) < tol_d)
+    assert np.all(np.abs(ph.time_myr - tg) < 1e-5 * np.abs(tg))
+    assert np.all(np.abs(ph.speed_kms - vg) < 1e-6 * vg)
+    # stricter than the issue: both are converged integrations, found to agree to
+    # ~0.001 au here; 0.01 au leaves room for the parabola refinement of galpy's grid
+    assert np.all(np.abs(ph.distance_pc - dg) * AU_PER_PC < 0.01)
+    # the orbit differs measurably from the straight line for these stars (the
+    # comparison is not trivially passed by an unbent path)
+    sl = StraightLine().evaluate(STARS)
+    assert np.max(np.abs(sl.distance_pc - dg)) > 100 * np.max(tol_d)
+
+
+def test_map_nominal_agrees_with_galpy(galpy_results):
+    # the state-transition path evaluated at its own reference orbit (galpy as above)
+    model = OrbitModel(horizon_myr=10.0)
+    tg, dg, _ = galpy_results.T
+    for i in range(0, len(STARS), 7):
+        ph = model.evaluate(STARS[i : i + 1], reference=STARS[i])
+        assert ph.info["method"] == "state_transition_map"
+        assert abs(ph.distance_pc[0] - dg[i]) < max(1.0 / AU_PER_PC, 1e-5 * dg[i])
+        assert abs(ph.time_myr[0] - tg[i]) < 1e-5 * abs(tg[i])
+
+
+def test_sun_orbit_conserves_energy_and_angular_momentum():
+    # a static axisymmetric potential conserves E and L_z (Binney & Tremaine 2008,
+    # Sect. 3.2); issue 3 asks for 1e-10 over the horizon.
+    model = OrbitModel()
+    nodes = np.linspace(-20.0, 20.0, 81) / MYR_PER_PC_PER_KMS
+    rel = observables_to_cartesian(STARS[:1])
+    _, _, sun = integrate_relative(
+        model.potential, model._sun_state, rel, nodes, rtol=1e-12, atol=1e-11
+    )
+    energy = 0.5 * np.sum(sun[:, 3:] ** 2, axis=1) + model.potential.potential(sun[:, :3])
+    lz = sun[:, 0] * sun[:, 4] - sun[:, 1] * sun[:, 3]
+    assert np.max(np.abs(energy / energy[40] - 1)) < 1e-10
+    assert np.max(np.abs(lz / lz[40] - 1)) < 1e-10
+
+
+def test_solar_sets_match_astropy_and_the_issue():
+    # astropy 8 Galactocentric defaults (galactocentric_frame_defaults "latest")
+    reg = coord.galactocentric_frame_defaults.get_from_registry("latest")["parameters"]
+    sun = get_solar_parameters("astropy_v4")
+    assert math.hypot(sun.r0_pc, sun.z_pc) == pytest.approx(
+        reg["galcen_distance"].to_value(u.pc), rel=1e-14
+    )
+    assert sun.z_pc == pytest.approx(reg["z_sun"].to_value(u.pc), rel=1e-14)
+    vsun = reg["galcen_v_sun"].xyz.to_value(u.km / u.s)
+    assert [sun.u_kms, sun.v_circ_kms + sun.v_kms, sun.w_kms] == pytest.approx(vsun, rel=1e-14)
+    # issue 3 / galpy note: with the default set galpy has R = 8 kpc,
+    # vR = -11.1, vT = 232.24, vz = 7.25 km/s for the Sun
+    rot, state = get_solar_parameters("bovy2015").frame()
+    g = Orbit(**GALPY_KW)
+    assert math.hypot(state[0], state[1]) == pytest.approx(g.R() * 1000.0, rel=1e-12)
+    assert state[2] == pytest.approx(g.z() * 1000.0, rel=1e-9)
+    assert -state[3] == pytest.approx(g.vR(), rel=1e-12)
+    assert state[4] == pytest.approx(g.vT(), rel=1e-12)
+    # a star's Galactocentric position against astropy's own transformation
+    obs = STARS[0]
+    xv = observables_to_cartesian(obs)
+    frame = coord.Galactocentric(
+        galcen_distance=math.hypot(8000.0, 20.8) * u.pc, z_sun=20.8 * u.pc,
+        galcen_v_sun=coord.CartesianDifferential([11.1, 232.24, 7.25] * u.km / u.s),
+    )  # fmt: skip
+    icrs = coord.SkyCoord(ra=obs[0] * u.deg, dec=obs[1] * u.deg, distance=1000 / obs[2] * u.pc)
+    gc = icrs.transform_to(frame).cartesian.xyz.to_value(u.pc)
+    assert np.allclose(state[:3] + rot @ xv[:3], gc, rtol=0, atol=1e-9)
+
+
+def test_perihelion_outside_window_is_flagged_not_clipped():
+    # straight line (Matthews 1994) is the limit for the extrapolation from the edge;
+    # an invented star 5 Myr ahead with a 1 Myr window
+    obs = np.array([[120.0, -30.0, 50.0, 3.0, 1.0, -4.0]])  # 20 pc, slow
+    sl = StraightLine().evaluate(obs)
+    ph = OrbitModel(horizon_myr=1.0).evaluate(obs)
+    assert ph.flags[0] and ph.info["n_outside_window"] == 1
+    assert ph.time_myr[0] == pytest.approx(sl.time_myr[0], rel=0.02)
+    assert ph.time_myr[0] > 1.0
+    full = OrbitModel(horizon_myr=10.0).evaluate(obs)
+    assert not full.flags[0]
+    assert ph.distance_pc[0] == pytest.approx(full.distance_pc[0], rel=0.05)
+
+
+def test_jacobian_from_transition_matrix_matches_finite_differences():
+    # central finite differences of direct integrations (textbook numerics; the
+    # finite-difference noise sets the per-row absolute tolerance)
+    model = OrbitModel(horizon_myr=10.0)
+    point = STARS[3]
+    jac = model.jacobian(point)
+    fd = ForwardModel.jacobian(OrbitModel(horizon_myr=10.0, method="direct"), point)
+    atol = 1e-6 * np.abs(fd).max(axis=1, keepdims=True)
+    assert np.all(np.abs(jac - fd) <= 1e-5 * np.abs(fd) + atol)
+    # and it differs from the straight-line Jacobian (Matthews 1994) by the bending
+    assert np.abs(jac - StraightLine().jacobian(point)).max() > 100 * atol.max()
+
+
+def test_options_raise_clear_errors():
+    # bad input names the option, value and what is accepted (project rule)
+    with pytest.raises(OrbitOptionError, match="method='fast'"):
+        OrbitModel(method="fast")
+    with pytest.raises(OrbitOptionError, match=r"horizon_myr=\(1.0, 2.0\)"):
+        OrbitModel(horizon_myr=(1.0, 2.0))
+    with pytest.raises(ValueError, match="sun='nowhere'"):
+        OrbitModel(sun="nowhere")
+    with pytest.raises(ValueError, match="no option 'horizon'.*accepted"):
+        make_model("orbit", horizon=3)
+    with pytest.raises(ValueError, match="parallax=-1.0"):
+        OrbitModel().evaluate(np.array([[1.0, 2.0, -1.0, 0.0, 0.0, 5.0]]))
+    desc = make_model("orbit", sun="astropy_v4").describe()
+    assert desc["potential"]["name"] == "MWPotential2014"
+    assert desc["sun"]["name"] == "astropy_v4" and desc["sun"]["z_pc"] == 20.8
+
+
+@settings(max_examples=15, deadline=None)
+@given(
+    st.floats(0.0, 360.0), st.floats(-89.0, 89.0), st.floats(20.0, 200.0),
+    st.floats(-300.0, 300.0), st.floats(-300.0, 300.0), st.floats(5.0, 60.0),
+)
+def test_negligible_potential_gives_the_straight_line(ra, dec, plx, pmra, pmdec, vr):
+    # Newton's first law: with a 1 Msun Plummer sphere at the Galactic centre the
+    # tidal field is ~1e-11 of MWPotential2014's, so orbits are straight lines
+    # (Matthews 1994 formulas in StraightLine).
+    obs = np.array([[ra, dec, plx, pmra, pmdec, vr]])
+    sl = StraightLine().evaluate(obs)
+    if abs(sl.time_myr[0]) > 9.0:
+        return
+    ph = OrbitModel(potential=Plummer(mass_msun=1.0, b_pc=100.0), horizon_myr=10.0).evaluate(obs)
+    assert ph.distance_pc[0] == pytest.approx(sl.distance_pc[0], rel=1e-7, abs=1e-7)
+    assert ph.time_myr[0] == pytest.approx(sl.time_myr[0], rel=1e-7, abs=1e-9)
+    assert ph.speed_kms[0] == pytest.approx(sl.speed_kms[0], rel=1e-9)
