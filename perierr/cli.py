@@ -99,7 +99,7 @@ def _screen(path, out) -> None:
     from .screen import nearest_first, screen_catalogue
 
     rows = screen_catalogue(path)
-    print(f"Screening {len(rows)} rows of {path} (straight-line model, nominal ± linear 1σ)", file=out)
+    print(f"Screening {len(rows)} rows of {Path(path).name} (straight-line model, nominal ± linear 1σ)", file=out)
     print(f"  {'row':>3}  {'star':<24}{'t_ph [Myr]':>18}{'d_ph [pc]':>20}{'d_ph [au]':>12}", file=out)
     for r in nearest_first(rows):
         if r.status != "ok":
