@@ -1,0 +1,49 @@
+"""Re-observation planner: which measurement to take next, and how good it must be.
+
+* :func:`what_if` - today's answer and the answer after a hypothetical new
+  measurement, on common random numbers;
+* :func:`gain_curves` - width, sigma and a threshold probability vs precision;
+* :func:`required_precision` - the largest precision reaching a goal, or the
+  floor that makes it unreachable;
+* :func:`rank_measurements` - (star, measurement) pairs for a proposal,
+  optionally per telescope hour (:class:`PhotonLimitedCost`);
+* :func:`plan` - all of it for one star.
+
+perierr predicts statistical encounters, not impact hazards.
+"""
+
+from .cost import PhotonLimitedCost, Reference
+from .curves import GainCurves, gain_curves
+from .goals import Goal, decide_goal, parse_goal, spread_goal
+from .planner import Plan, plan
+from .rank import Ranking, rank_measurements
+from .required import RequiredPrecision, required_precision
+from .update import Measurement, make_measurement, parse_measure, update_covariance, updated_star
+from .whatif import CommonDraws, WhatIf, common_draws, scenario_metrics, what_if
+
+__all__ = [
+    "CommonDraws",
+    "GainCurves",
+    "Goal",
+    "Measurement",
+    "PhotonLimitedCost",
+    "Plan",
+    "Ranking",
+    "Reference",
+    "RequiredPrecision",
+    "WhatIf",
+    "common_draws",
+    "decide_goal",
+    "gain_curves",
+    "make_measurement",
+    "parse_goal",
+    "parse_measure",
+    "plan",
+    "rank_measurements",
+    "required_precision",
+    "scenario_metrics",
+    "spread_goal",
+    "update_covariance",
+    "updated_star",
+    "what_if",
+]

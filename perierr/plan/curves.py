@@ -1,0 +1,153 @@
+"""Gain curves: interval width, sigma and a threshold probability vs the new precision."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .._constants import OBSERVABLES, OUTPUTS
+from ..errors import InputError
+from ..models.base import ForwardModel
+from ..propagate.checks import require_positive_parallax
+from ..star import ObservedStar
+from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
+from .whatif import STATISTICS, CommonDraws, common_draws, scenario_metrics
+
+__all__ = ["GainCurves", "gain_curves"]
+
+
+@dataclass(frozen=True)
+class GainCurves:
+    """Output statistics as a function of a new measurement's precision, per input.
+
+    All scenarios share one set of draws (common random numbers), so the
+    curves are smooth and differences between inputs are real.
+
+    Attributes
+    ----------
+    inputs : tuple of str
+        Inputs with a curve (held-exact inputs are skipped).
+    precision : dict
+        Input -> ndarray (p,) of new standard errors, catalogue units, decreasing.
+    units : dict
+        Input -> catalogue unit.
+    curves : dict
+        Input -> {statistic key -> ndarray (p,)}: ``"distance_pc.width90"``,
+        ``"distance_pc.std"``, ... (output units), ``"p:<threshold>"``, and
+        ``"<output>.linear_sigma"`` (closed form, no Monte Carlo noise).
+    current : dict
+        Statistic key -> today's value.
+    threshold : str
+    settings : dict
+    """
+
+    inputs: tuple
+    precision: dict
+    units: dict
+    curves: dict
+    current: dict
+    threshold: str
+    settings: dict = field(default_factory=dict)
+
+    def gain(self, input: str, key: str = "distance_pc.width90") -> np.ndarray:
+        """Relative shrink ``1 - value / today`` of a statistic along one curve."""
+        now = self.current[key]
+        return 1.0 - self.curves[input][key] / now if now > 0 else np.zeros_like(self.precision[input])
+
+    def to_dict(self) -> dict:
+        """Plain dict for JSON (lists)."""
+        return {
+            "threshold": self.threshold,
+            "current": dict(self.current),
+            "inputs": {
+                name: {
+                    "precision": self.precision[name].tolist(),
+                    "unit": self.units[name],
+                    **{k: v.tolist() for k, v in self.curves[name].items()},
+                }
+                for name in self.inputs
+            },
+            "settings": dict(self.settings),
+        }
+
+
+def gain_curves(
+    star: ObservedStar,
+    model: ForwardModel,
+    *,
+    inputs=None,
+    n_points: int = 20,
+    span=(3.0, 0.01),
+    precisions=None,
+    threshold: str = "20000 au",
+    n: int = 20_000,
+    seed=None,
+    draws: CommonDraws | None = None,
+) -> GainCurves:
+    """Gain curves for each input.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel
+    inputs : sequence of str, optional
+        Default: every input with a non-zero error.
+    n_points : int
+        Precisions per input.
+    span : (float, float)
+        First and last precision as multiples of today's error (log spaced).
+    precisions : dict, optional
+        Input -> explicit precisions in catalogue units (overrides ``span``).
+    threshold : str
+        Distance for the P(d_ph < D) curve.
+    n, seed : int
+        Common draws (ignored when ``draws`` is given).
+    draws : CommonDraws, optional
+    """
+    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    if int(n_points) < 2:
+        raise InputError("n_points", n_points, "expected at least 2 precisions per curve")
+    if not (span[0] > 0 and span[1] > 0):
+        raise InputError("span", span, "expected two positive multiples of today's error, e.g. (3, 0.01)")
+    names = [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0] if inputs is None else [input_name(i) for i in inputs]
+    draws = common_draws(n, seed) if draws is None else draws
+    dec = float(star.mean[1])
+    jac = np.asarray(model.jacobian(star.mean), dtype=float)
+    covs, grids = [star.cov[None]], {}
+    for name in names:
+        idx = OBSERVABLES.index(name)
+        if star.sigma[idx] == 0:
+            raise InputError("inputs", name, "this input is held exact (zero error); leave it out")
+        if precisions is not None and name in precisions:
+            from .update import make_measurement
+
+            cat = np.sort(np.asarray([float(p) for p in precisions[name]]))[::-1]
+            grid = np.array([make_measurement(name, p, dec=dec).precision for p in cat])
+        else:
+            grid = star.sigma[idx] * np.geomspace(span[0], span[1], int(n_points))
+        grids[name] = grid
+        covs.append(update_covariance(star.cov, idx, grid))
+    allcov = np.concatenate(covs)
+    metrics = scenario_metrics(star, model, allcov, draws, thresholds=[threshold])
+    label = next(iter(metrics.probabilities))
+    keys = [f"{q}.{s}" for q in OUTPUTS for s in STATISTICS]
+    lin = np.sqrt(np.maximum(np.einsum("mi,kij,mj->km", jac, allcov, jac), 0.0))  # (K, 3)
+    current = {k: float(metrics.values[k][0]) for k in keys}
+    current[f"p:{label}"] = float(metrics.probabilities[label][0])
+    current.update({f"{q}.linear_sigma": float(lin[0, j]) for j, q in enumerate(OUTPUTS)})
+    curves, start = {}, 1
+    for name in names:
+        sl = slice(start, start + grids[name].size)
+        c = {k: metrics.values[k][sl] for k in keys}
+        c[f"p:{label}"] = metrics.probabilities[label][sl]
+        c.update({f"{q}.linear_sigma": lin[sl, j] for j, q in enumerate(OUTPUTS)})
+        curves[name] = c
+        start = sl.stop
+    return GainCurves(
+        tuple(names),
+        {nm: np.asarray(to_catalogue(nm, g, dec=dec)) for nm, g in grids.items()},
+        {nm: UNIT_LABELS[nm] for nm in names},
+        curves, current, label,
+        {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)},
+    )

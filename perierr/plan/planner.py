@@ -1,0 +1,124 @@
+"""A full re-observation plan for one star: what-if, goals, gain curves, global budget."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from .. import __version__
+from .._constants import OBSERVABLES
+from ..models import ForwardModel, make_model
+from ..sensitivity import GlobalBudget, global_budget
+from ..star import ObservedStar
+from ..thresholds import DEFAULT_THRESHOLDS
+from .curves import GainCurves, gain_curves
+from .required import required_precision
+from .update import make_measurement
+from .whatif import WhatIf, common_draws, what_if
+
+__all__ = ["Plan", "plan"]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """Everything the planner computed for one star.
+
+    Attributes
+    ----------
+    star : ObservedStar
+    model : dict
+    what_if : WhatIf or None
+        Current and improved answers for the requested measurements.
+    required : list of RequiredPrecision
+        One per (goal, input) pair.
+    curves : GainCurves or None
+    budget : GlobalBudget or None
+    settings : dict
+    """
+
+    star: ObservedStar
+    model: dict
+    what_if: WhatIf | None
+    required: list
+    curves: GainCurves | None
+    budget: GlobalBudget | None
+    settings: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        """The plan JSON: current and improved side by side; required precisions or reasons."""
+        return {
+            "perierr_version": __version__,
+            "kind": "plan",
+            "model": self.model,
+            "star": self.star.to_dict(),
+            "what_if": None if self.what_if is None else self.what_if.to_dict(),
+            "goals": [r.to_dict() for r in self.required],
+            "gain_curves": None if self.curves is None else self.curves.to_dict(),
+            "global_budget": None if self.budget is None else self.budget.to_dict(),
+            "settings": dict(self.settings),
+            "caution": "perierr predicts statistical encounters, not impact hazards",
+        }
+
+
+def plan(
+    star: ObservedStar,
+    *,
+    model: ForwardModel | str = "straight_line",
+    measure=None,
+    goals=(),
+    solve_for=None,
+    curves: bool = True,
+    budget: bool = True,
+    n: int = 20_000,
+    n_whatif: int = 100_000,
+    seed=None,
+    thresholds=DEFAULT_THRESHOLDS,
+    curve_threshold: str = "20000 au",
+    n_points: int = 20,
+    budget_options=None,
+) -> Plan:
+    """Plan re-observations of one star.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel or str
+    measure : dict or sequence of Measurement, optional
+        What-if measurements, e.g. ``{"radial_velocity": 0.1}`` (catalogue units).
+    goals : sequence of Goal
+        For each goal and each input of ``solve_for``, the required precision.
+    solve_for : sequence of str, optional
+        Inputs to solve goals for (default: every input with a non-zero error).
+    curves, budget : bool
+        Compute gain curves (``n_points`` per input) and the global Shapley budget.
+    n : int
+        Common draws for curves and goals.
+    n_whatif : int
+        Draws for the side-by-side what-if summaries.
+    seed : int or None
+        One seed for everything (recorded in the settings).
+    thresholds : sequence
+        Thresholds of the what-if summaries.
+    curve_threshold : str
+        Threshold of the probability curve.
+    n_points : int
+    budget_options : dict, optional
+        Passed to :func:`perierr.sensitivity.global_budget`.
+    """
+    from ..sampling.gaussian import resolve_seed
+
+    if isinstance(model, str):
+        model = make_model(model)
+    seed = resolve_seed(seed)
+    dec = float(star.mean[1])
+    wi = None
+    if measure:
+        items = measure.items() if isinstance(measure, dict) else None
+        ms = [make_measurement(k, v, dec=dec) for k, v in items] if items is not None else list(measure)
+        wi = what_if(star, model, ms, n=n_whatif, seed=seed, thresholds=thresholds)
+    draws = common_draws(n, seed)
+    names = solve_for or [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0]
+    required = [required_precision(star, model, name, g, draws=draws) for g in goals for name in names]
+    gc = gain_curves(star, model, n_points=n_points, threshold=curve_threshold, draws=draws) if curves else None
+    gb = global_budget(star, model, seed=seed, **(budget_options or {})) if budget else None
+    settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
+    return Plan(star, model.describe(), wi, required, gc, gb, settings)

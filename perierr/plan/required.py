@@ -1,0 +1,184 @@
+"""Required precision: the largest new standard error of one input that reaches a goal.
+
+The goal's statistic is evaluated on common random numbers (so it is a
+deterministic, nearly smooth function of the precision s): first at today's
+covariance (already met?), then at s = 0 (the input known exactly: the
+*floor* set by the other inputs; not met there means unreachable by this
+input alone), then on a log grid from 100 sigma down to 1e-4 sigma; the
+largest grid point that meets the goal is refined by bisection in log s
+against the next larger grid point. The answer is re-checked by feeding it
+back through the same draws.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .._constants import OBSERVABLES
+from ..models.base import ForwardModel
+from ..propagate.checks import require_positive_parallax
+from ..star import ObservedStar
+from .goals import Goal
+from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
+from .whatif import CommonDraws, common_draws, scenario_metrics
+
+__all__ = ["RequiredPrecision", "required_precision"]
+
+_GRID = np.geomspace(100.0, 1e-4, 25)
+
+
+@dataclass(frozen=True)
+class RequiredPrecision:
+    """Answer to "how precise must this input be to reach the goal?".
+
+    Attributes
+    ----------
+    input : str
+    goal : Goal
+    status : {"reachable", "already_met", "unreachable"}
+    precision : float or None
+        Largest new standard error reaching the goal, catalogue units (mas,
+        mas/yr, km/s); None unless reachable.
+    unit : str
+    current_sigma : float
+        Today's standard error of the input, catalogue units.
+    current : float
+        The goal's statistic today (output units; for "decide" the probability).
+    floor : float
+        The statistic with the input known exactly: the limit set by the others.
+    achieved : float or None
+        The statistic at ``precision`` (re-checked).
+    message : str
+    settings : dict
+    """
+
+    input: str
+    goal: Goal
+    status: str
+    precision: float | None
+    unit: str
+    current_sigma: float
+    current: float
+    floor: float
+    achieved: float | None
+    message: str
+    settings: dict = field(default_factory=dict)
+
+    @property
+    def reachable(self) -> bool:
+        """True when a finite precision reaches the goal (or it is already met)."""
+        return self.status != "unreachable"
+
+    def to_dict(self) -> dict:
+        """Plain dict for JSON (``required_precision`` or the reason it cannot be reached)."""
+        return {
+            "input": self.input, "goal": self.goal.to_dict(), "status": self.status,
+            "required_precision": self.precision, "unit": self.unit,
+            "current_sigma": self.current_sigma, "current_value": self.current,
+            "floor_value": self.floor, "achieved_value": self.achieved, "message": self.message,
+            "settings": dict(self.settings),
+        }
+
+
+def required_precision(
+    star: ObservedStar,
+    model: ForwardModel,
+    input: str,
+    goal: Goal,
+    *,
+    n: int = 20_000,
+    seed=None,
+    draws: CommonDraws | None = None,
+    iterations: int = 40,
+) -> RequiredPrecision:
+    """Largest standard error of a new measurement of ``input`` that reaches ``goal``.
+
+    Parameters
+    ----------
+    star : ObservedStar
+    model : ForwardModel
+    input : str
+        The input to re-observe.
+    goal : Goal
+        From :func:`~perierr.plan.goals.spread_goal` or ``decide_goal``.
+    n, seed : int
+        Common draws (ignored when ``draws`` is given).
+    draws : CommonDraws, optional
+    iterations : int
+        Bisection steps in log precision (40 give a relative precision ~1e-6
+        of one grid step).
+    """
+    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    name = input_name(input)
+    idx = OBSERVABLES.index(name)
+    draws = common_draws(n, seed) if draws is None else draws
+    thresholds = [goal.threshold] if goal.kind == "decide" else ["1 pc"]
+    dec = float(star.mean[1])
+    sigma = float(star.sigma[idx])
+
+    def metric(covs):
+        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric_key)
+
+    def evaluate(precisions):
+        return metric(update_covariance(star.cov, idx, np.asarray(precisions, dtype=float)))
+
+    now, floor = (float(v) for v in metric(np.stack([star.cov, update_covariance(star.cov, idx, 0.0)])))
+    unit = UNIT_LABELS[name]
+    sig_cat = float(to_catalogue(name, sigma, dec=dec))
+    settings = {"n": draws.n, "seed": draws.seed, "method": "common random numbers, log-grid + bisection"}
+
+    def result(status, precision, achieved, message):
+        return RequiredPrecision(name, goal, status, precision, unit, sig_cat, now, floor, achieved, message, settings)
+
+    if goal.met(now):
+        return result("already_met", None, now, f"the goal ({goal.describe()}) is already met today: {now:.4g}")
+    if not goal.met(floor):
+        why = "it is held exact already" if sigma == 0 else "the other inputs set a floor"
+        return result(
+            "unreachable", None, None,
+            f"cannot be reached by measuring {name} alone: even an exact {name} leaves "
+            f"{goal.score(floor):.4g} against the goal {goal.bound():.4g} ({why}); "
+            "improve another input as well",
+        )
+    grid = sigma * _GRID
+    values = evaluate(grid)
+    ok = goal.met(values)
+    if ok.all():
+        lo, hi = grid[0], None
+    else:
+        good = np.flatnonzero(ok)
+        # largest grid precision that meets the goal; bracket with the next larger one
+        j = int(good[0]) if good.size else len(grid)
+        lo = grid[j] if j < len(grid) else 0.0
+        hi = grid[j - 1] if j > 0 else None
+    if hi is not None:
+        log_lo = np.log(lo) if lo > 0 else np.log(grid[-1]) - 10.0
+        if lo == 0.0:
+            lo = float(np.exp(log_lo))
+        log_hi = np.log(hi)
+        for _ in range(iterations):
+            mid = 0.5 * (log_lo + log_hi)
+            if goal.met(evaluate([np.exp(mid)]))[0]:
+                log_lo = mid
+            else:
+                log_hi = mid
+        lo = float(np.exp(log_lo))
+    precision = float(to_catalogue(name, lo, dec=dec))
+    # feed back the reported (catalogue-unit) value through the same draws
+    back = float(evaluate([_to_internal(name, precision, dec)])[0])
+    if not goal.met(back):
+        precision *= 1.0 - 1e-9
+        back = float(evaluate([_to_internal(name, precision, dec)])[0])
+    return result(
+        "reachable", precision, back,
+        f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}): "
+        f"{goal.describe()} is reached ({goal.score(back):.4g}; floor {goal.score(floor):.4g})",
+    )
+
+
+def _to_internal(name, value, dec):
+    from .update import make_measurement
+
+    return make_measurement(name, value, dec=dec).precision
