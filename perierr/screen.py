@@ -74,7 +74,7 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
             star = ObservedStar.from_mapping(row, row=i, strict=False)
             lin = linearize(star, model)
         except InputError as exc:
-            reason = exc.expected.split(";")[0]
+            reason = exc.expected.split(";")[0].split(" (")[0]
             out.append(ScreenRow(i, name, f"not computed: {exc.field} = {exc.value!r}: {reason}"))
             continue
         t, d, v = (float(x) for x in lin.value)

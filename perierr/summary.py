@@ -186,9 +186,12 @@ class ThresholdProbability:
         Binomial Monte Carlo standard error ``sqrt(p (1 - p) / n_eff)``.
     upper95 : float
         95 % upper bound on the probability when no sample passed
-        (``1 - 0.05^(1/n_eff)``), else equal to ``probability + 2 se``.
+        (``1 - 0.05^(1/n_eff)``), else ``min(1, probability + 2 se)``.
     count : int
         Samples below the threshold.
+    lower95 : float
+        95 % lower bound when every sample passed (``0.05^(1/n_eff)``), else
+        ``max(0, probability - 2 se)``.
     """
 
     label: str
@@ -197,6 +200,7 @@ class ThresholdProbability:
     se: float
     upper95: float
     count: int
+    lower95: float = 0.0
 
     def to_dict(self) -> dict:
         """Plain dict for JSON."""
@@ -206,6 +210,7 @@ class ThresholdProbability:
             "probability": self.probability,
             "mc_error": self.se,
             "upper95": self.upper95,
+            "lower95": self.lower95,
             "count": self.count,
         }
 
@@ -234,4 +239,5 @@ def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> 
         n_eff = float(w.sum() ** 2 / np.dot(w, w))
     se = math.sqrt(p * (1 - p) / n_eff)
     upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
-    return ThresholdProbability(label, float(threshold_pc), p, se, upper, count)
+    lower = 0.05 ** (1.0 / n_eff) if count == d.size else max(0.0, p - 2 * se)
+    return ThresholdProbability(label, float(threshold_pc), p, se, upper, count, lower)

@@ -120,6 +120,9 @@ def test_threshold_probability_and_binomial_error():
     assert z.count == 0 and z.probability == 0.0
     assert_allclose(z.upper95, 1 - 0.05 ** (1 / 1000))
     assert abs(z.upper95 * 1000 - 3.0) < 0.01
+    every = threshold_probability(np.full(1000, 0.1), 1.0, label="1 pc")
+    assert every.probability == 1.0 and every.se == 0.0
+    assert_allclose(every.lower95, 0.05 ** (1 / 1000))
 
 
 def test_nonpositive_parallax_samples_are_counted_not_dropped():

@@ -88,7 +88,9 @@ def format_analysis(analysis) -> str:
     lines.append("Chance that the star passes within")
     for t in mc.thresholds:
         if t.count == 0:
-            text = f"< {t.upper95:.2g} (95 % bound; no draw passed)"
+            text = f"  < {t.upper95:.4%} (95 % bound; no draw passed)"
+        elif t.count == mc.n and mc.samples.weights is None:
+            text = f"  > {t.lower95:.4%} (95 % bound; every draw passed)"
         else:
             text = f"{t.probability:8.2%} ± {t.se:.2%}"
         lines.append(f"  {t.label:<12} {text}")
@@ -100,7 +102,8 @@ def format_analysis(analysis) -> str:
         sd, st = b.share("distance_pc"), b.share("time_myr")
         cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
         for name in OBSERVABLES:
-            lines.append(f"  {name:<17}{sd[name]:>8.1%} ({cd[name]:>6.1%}){st[name]:>9.1%} ({ct[name]:>6.1%})")
+            c_d, c_t = (0.0 if abs(x) < 5e-4 else x for x in (cd[name], ct[name]))  # no "-0.0 %"
+            lines.append(f"  {name:<17}{sd[name]:>8.1%} ({c_d:>6.1%}){st[name]:>9.1%} ({c_t:>6.1%})")
         lines.append(
             f"  largest share: {b.dominant('distance_pc')} for the distance, {b.dominant('time_myr')} for the time"
         )
