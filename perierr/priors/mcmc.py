@@ -22,7 +22,7 @@ Convergence is checked, not assumed: the integrated autocorrelation time tau
 chain is thinned by tau so the kept draws are close to independent, and the
 run is extended until it is at least 50 tau long after burn-in (emcee's own
 reliability rule) and holds the requested effective sample size. A run that
-hits ``max_steps`` first warns (short but usable) or raises
+hits ``max_steps`` first warns (20 to 50 tau: short but usable) or raises
 :class:`ChainTooShortError`.
 """
 
@@ -48,7 +48,7 @@ _INV = tuple(int(i) for i in np.argsort(_PERM))
 #: (emcee documentation's rule of thumb, also its ``tol`` default).
 RELIABLE_TAUS = 50
 #: Below this many autocorrelation times the result is refused.
-MINIMUM_TAUS = 10
+MINIMUM_TAUS = 20
 
 
 class ChainTooShortError(RuntimeError):
@@ -141,7 +141,7 @@ def sample_posterior_mcmc(
     Raises
     ------
     ChainTooShortError
-        The chain reached ``max_steps`` with fewer than 10 autocorrelation
+        The chain reached ``max_steps`` with fewer than 20 autocorrelation
         times after burn-in or fewer than 100 effective samples.
     """
     import emcee
@@ -178,7 +178,7 @@ def sample_posterior_mcmc(
     sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, vectorize=True)
     sampler.random_state = np.random.RandomState(int(rng.integers(2**32))).get_state()
 
-    state, chunk = p0, 500
+    state, chunk = p0, min(500, int(max_steps))
     while True:
         state = sampler.run_mcmc(state, chunk, progress=False)
         steps = sampler.iteration

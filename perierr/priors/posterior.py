@@ -18,6 +18,7 @@ from ..propagate.checks import require_positive_parallax
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
 from .densities import DistancePrior, NoPrior
 from .mcmc import sample_posterior_mcmc
+from .parse import resolve_prior
 from .reweight import reweight
 
 __all__ = ["METHODS", "posterior_samples"]
@@ -44,7 +45,8 @@ def posterior_samples(
     Parameters
     ----------
     star : ObservedStar
-    prior : DistancePrior
+    prior : DistancePrior or spec
+        Anything :func:`~perierr.priors.resolve_prior` accepts;
         :class:`NoPrior` gives plain Gaussian draws (parallax inversion).
     n : int
         Gaussian draws for reweighting.
@@ -67,6 +69,7 @@ def posterior_samples(
     """
     if method not in METHODS:
         raise InputError("prior_method", method, f"expected one of {', '.join(METHODS)}")
+    prior = resolve_prior(prior)
     seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
     plx, sig = float(star.mean[_PLX]), float(star.sigma[_PLX])
@@ -95,13 +98,16 @@ def posterior_samples(
     switched = None
     tried = None
     if method == "reweight" or (method == "auto" and plx > 0):
-        samples = reweight(star, prior, n=n, seed=seed, rng=rng) if _overlaps(star, prior, n, rng) else None
+        try:
+            samples = reweight(star, prior, n=n, seed=seed, rng=rng)
+        except InputError:
+            if method == "reweight":
+                raise
+            samples = None  # no draw inside the prior's support
         ess = 0.0 if samples is None else samples.info["effective_size"]
         if ess >= threshold:
             return samples
         if method == "reweight":
-            if samples is None:
-                return reweight(star, prior, n=n, seed=seed, rng=np.random.default_rng(seed))
             warnings.warn(
                 f"reweighting kept an effective sample size of {ess:.0f} (< {threshold:.0f}) out of "
                 f"{n} draws: its quantiles are noisy; use prior_method='mcmc' or 'auto'",
@@ -123,10 +129,3 @@ def posterior_samples(
         info["reweight_effective_size"] = tried
     return Samples(out.values, method="mcmc", seed=seed, info=info)
 
-
-def _overlaps(star, prior, n, rng) -> bool:
-    """Whether reweighting can have any positive weight (cheap pre-check)."""
-    lo, hi = prior.support
-    plx, sig = float(star.mean[_PLX]), float(star.sigma[_PLX])
-    top = plx + 8 * sig  # largest plausible parallax draw
-    return top > 0 and (not np.isfinite(hi) or 1000.0 / hi <= top) and 1000.0 / max(lo, 1e-300) > plx - 8 * sig
