@@ -1,4 +1,4 @@
-"""Command line: ``perierr demo``, ``perierr run STAR_FILE``, ``perierr screen TABLE``.
+"""Command line: ``perierr demo``, ``perierr run STAR_FILE``, ``perierr screen TABLE``, ``perierr plan STAR_FILE``.
 
 The CLI only parses arguments, calls the API and prints or writes results.
 """
@@ -70,6 +70,7 @@ def _parser() -> argparse.ArgumentParser:
     _add_analysis_options(run)
     screen = sub.add_parser("screen", help="nominal perihelion and linear errors for every row of a table")
     screen.add_argument("table", type=Path, metavar="TABLE", help="ECSV/FITS/VOTable with catalogue columns")
+    _add_plan_parser(sub)
     return parser
 
 
@@ -112,6 +113,61 @@ def _screen(path, out) -> None:
         )
 
 
+def _add_plan_parser(sub) -> None:
+    p = sub.add_parser("plan", help="what to re-observe next, and how precisely (what-if, goals, gain curves)")
+    p.add_argument("star_file", type=Path, metavar="STAR_FILE")
+    p.add_argument("--measure", action="append", default=[], metavar="INPUT=PREC",
+                   help="hypothetical new measurement, catalogue units (e.g. radial_velocity=0.1); repeatable")
+    p.add_argument("--goal-width", action="append", default=[], metavar="OUTPUT=VALUE",
+                   help="goal: 90%% interval width at most VALUE (e.g. d_ph='1500 au', t_ph=0.01)")
+    p.add_argument("--goal-sigma", action="append", default=[], metavar="OUTPUT=VALUE",
+                   help="goal: standard deviation at most VALUE (bare numbers in pc, Myr, km/s)")
+    p.add_argument("--goal-decide", action="append", default=[], metavar="D",
+                   help="goal: P(d_ph < D) below --alpha or above 1 - alpha (e.g. '20000 au')")
+    p.add_argument("--alpha", type=float, default=0.05, help="decisiveness level of --goal-decide (default 0.05)")
+    p.add_argument("--solve-for", type=_strings, default=None, metavar="INPUT,INPUT",
+                   help="inputs to solve the goals for (default: every input with an error)")
+    p.add_argument("--curves", action=argparse.BooleanOptionalAction, default=True, help="gain curves")
+    p.add_argument("--budget", action=argparse.BooleanOptionalAction, default=True,
+                   help="global (Monte Carlo Shapley) budget")
+    p.add_argument("--points", type=int, default=20, metavar="N", help="precisions per gain curve (default 20)")
+    p.add_argument("--curve-within", default="20000 au", metavar="D", help="threshold of the probability curve")
+    p.add_argument("--samples", type=int, default=20_000, metavar="N",
+                   help="common draws for curves and goals (default 20000)")
+    p.add_argument("--whatif-samples", type=int, default=100_000, metavar="N",
+                   help="draws for the side-by-side summaries (default 100000)")
+    p.add_argument("--within", type=_strings, default=list(DEFAULT_THRESHOLDS), metavar="D,D",
+                   help="distances for P(d_ph < D) in the what-if summaries")
+    p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
+    p.add_argument("--json", type=Path, default=None, metavar="PATH", help="also write the plan as JSON")
+    p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves (needs matplotlib)")
+    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+
+
+def _plan(args, out) -> None:
+    from .plan import parse_goal, parse_measure, plan
+    from .report.plan_text import format_plan
+
+    star = read_star_file(args.star_file)
+    measure = [parse_measure(text, dec=float(star.mean[1])) for text in args.measure]
+    goals = [parse_goal("width90", t) for t in args.goal_width] + [parse_goal("sigma", t) for t in args.goal_sigma]
+    goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
+    result = plan(
+        star, model=make_model(args.model), measure=measure, goals=goals, solve_for=args.solve_for,
+        curves=args.curves, budget=args.budget, n=args.samples, n_whatif=args.whatif_samples,
+        seed=args.seed, thresholds=args.within, curve_threshold=args.curve_within, n_points=args.points,
+    )
+    print(format_plan(result), file=out)
+    if args.json is not None:
+        write_json(result.to_dict(), args.json)
+        print(f"\nJSON written to {args.json}", file=out)
+    if args.plot is not None and result.curves is not None:
+        from .report.plan_plot import plot_gain_curves
+
+        plot_gain_curves(result.curves, args.plot)
+        print(f"Gain curves plotted to {args.plot}", file=out)
+
+
 def main(argv=None, out=None) -> int:
     """Entry point of the ``perierr`` command; returns the exit status."""
     out = out or sys.stdout
@@ -127,6 +183,8 @@ def main(argv=None, out=None) -> int:
             _run_star(read_star_file(args.star_file), args, out)
         elif args.command == "screen":
             _screen(args.table, out)
+        elif args.command == "plan":
+            _plan(args, out)
     except (InputError, ValueError) as exc:
         print(f"perierr: error: {exc}", file=sys.stderr)
         return 2

@@ -36,6 +36,8 @@ class GainCurves:
         Input -> {statistic key -> ndarray (p,)}: ``"distance_pc.width90"``,
         ``"distance_pc.std"``, ... (output units), ``"p:<threshold>"``, and
         ``"<output>.linear_sigma"`` (closed form, no Monte Carlo noise).
+    sigma : dict
+        Input -> today's standard error, catalogue units.
     current : dict
         Statistic key -> today's value.
     threshold : str
@@ -45,6 +47,7 @@ class GainCurves:
     inputs: tuple
     precision: dict
     units: dict
+    sigma: dict
     curves: dict
     current: dict
     threshold: str
@@ -64,6 +67,7 @@ class GainCurves:
                 name: {
                     "precision": self.precision[name].tolist(),
                     "unit": self.units[name],
+                    "today_sigma": self.sigma[name],
                     **{k: v.tolist() for k, v in self.curves[name].items()},
                 }
                 for name in self.inputs
@@ -148,6 +152,7 @@ def gain_curves(
         tuple(names),
         {nm: np.asarray(to_catalogue(nm, g, dec=dec)) for nm, g in grids.items()},
         {nm: UNIT_LABELS[nm] for nm in names},
+        {nm: float(to_catalogue(nm, star.sigma[OBSERVABLES.index(nm)], dec=dec)) for nm in names},
         curves, current, label,
         {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)},
     )

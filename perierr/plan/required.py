@@ -173,8 +173,8 @@ def required_precision(
         back = float(evaluate([_to_internal(name, precision, dec)])[0])
     return result(
         "reachable", precision, back,
-        f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}): "
-        f"{goal.describe()} is reached ({goal.score(back):.4g}; floor {goal.score(floor):.4g})",
+        f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}); "
+        f"there the statistic is {goal.score(back):.4g} (floor with an exact {name}: {goal.score(floor):.4g})",
     )
 
 
