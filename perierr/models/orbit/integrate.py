@@ -154,6 +154,14 @@ def grid_minimum_start(nodes, states) -> np.ndarray:
     return nodes[np.argmin(d2, axis=0)]
 
 
+def _cubic(t0, t1, p0, m0, p1, m1):
+    """Power-basis coefficients of the Hermite cubic in u = (t - t0) / h."""
+    h = (t1 - t0)[:, None]
+    c2 = 3.0 * (p1 - p0) - h * (2.0 * m0 + m1)
+    c3 = 2.0 * (p0 - p1) + h * (m0 + m1)
+    return p0, h * m0, c2, c3, h
+
+
 def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-12):
     """Refine the time of minimum separation with Newton's method on Hermite cubics.
 
@@ -162,14 +170,14 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-12):
     nodes : ndarray, shape (m,)
         Grid times [pc/(km/s)].
     node_values : callable
-        ``node_values(k, rows) -> (state, deriv)``, each of shape
-        (len(rows), 6): the relative state and its time derivative of stars
-        ``rows`` at node indices ``k``.
+        ``node_values(k, rows) -> (state0, deriv0, state1, deriv1)``, each of
+        shape (len(rows), 6): relative states and their time derivatives of
+        stars ``rows`` at node indices ``k`` and ``k + 1``.
     t_start : ndarray, shape (n,)
         Starting times (clamped to the grid).
     max_iter : int
     tol : float
-        Convergence threshold on the Newton step [pc/(km/s)].
+        Convergence threshold on the Newton step, relative to max(1, |t|).
 
     Returns
     -------
@@ -185,41 +193,42 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-12):
     m = len(nodes)
     t = np.clip(np.asarray(t_start, dtype=float), nodes[0], nodes[-1])
     n = t.size
-    rows = np.arange(n)
     k = np.clip(np.searchsorted(nodes, t, side="right") - 1, 0, m - 2)
-    s0, d0 = node_values(k, rows)
-    s1, d1 = node_values(k + 1, rows)
+    c0, c1, c2, c3, h = _cubic(nodes[k], nodes[k + 1], *node_values(k, np.arange(n)))
     outside = np.zeros(n, dtype=bool)
     done = np.zeros(n, dtype=bool)
-    state = np.empty((n, 6))
+    act = np.arange(n)
     for _ in range(max_iter):
-        act = np.flatnonzero(~done)
         if act.size == 0:
             break
-        ka = k[act]
-        p, dp = hermite(t[act], nodes[ka], nodes[ka + 1], s0[act], d0[act], s1[act], d1[act])
-        state[act] = p
-        x, v, acc = p[:, :3], p[:, 3:], dp[:, 3:]
-        f = np.sum(x * v, axis=1)
-        fp = np.sum(v * v, axis=1) + np.sum(x * acc, axis=1)
-        h = nodes[ka + 1] - nodes[ka]
+        u = ((t[act] - nodes[k[act]]) / h[act, 0])[:, None]
+        a0, a1, a2, a3, ha = c0[act], c1[act], c2[act], c3[act], h[act]
+        p = a0 + u * (a1 + u * (a2 + u * a3))
+        acc = (a1[:, 3:] + u * (2.0 * a2[:, 3:] + 3.0 * u * a3[:, 3:])) / ha
+        x, v = p[:, :3], p[:, 3:]
+        f = np.einsum("ij,ij->i", x, v)
+        fp = np.einsum("ij,ij->i", v, v) + np.einsum("ij,ij->i", x, acc)
         with np.errstate(divide="ignore", invalid="ignore"):
-            step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * h)
-        t_new = np.clip(t[act] + step, nodes[0], nodes[-1])
-        at_lo = (t_new == nodes[0]) & (f > 0)
-        at_hi = (t_new == nodes[-1]) & (f < 0)
-        edge = (at_lo | at_hi) & (t[act] == t_new)
-        conv = np.abs(step) <= tol * np.maximum(1.0, np.abs(t[act]))
+            step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * ha[:, 0])
+        t_old = t[act]
+        t_new = np.clip(t_old + step, nodes[0], nodes[-1])
+        edge = (((t_new == nodes[0]) & (f > 0)) | ((t_new == nodes[-1]) & (f < 0))) & (
+            t_old == t_new
+        )
+        conv = np.abs(step) <= tol * np.maximum(1.0, np.abs(t_old))
         outside[act[edge]] = True
-        done[act[conv | edge]] = True
+        finished = conv | edge
+        done[act[finished]] = True
         t[act] = t_new
         k_new = np.clip(np.searchsorted(nodes, t_new, side="right") - 1, 0, m - 2)
-        moved = act[(k_new != ka) & ~(conv | edge)]
-        if moved.size:
-            k[moved] = k_new[(k_new != ka) & ~(conv | edge)]
-            s0[moved], d0[moved] = node_values(k[moved], moved)
-            s1[moved], d1[moved] = node_values(k[moved] + 1, moved)
-    # final state at the final times
-    p, _ = hermite(t, nodes[k], nodes[k + 1], s0, d0, s1, d1)
-    state[:] = p
+        move = (k_new != k[act]) & ~finished
+        if move.any():
+            rows = act[move]
+            k[rows] = k_new[move]
+            c0[rows], c1[rows], c2[rows], c3[rows], h[rows] = _cubic(
+                nodes[k[rows]], nodes[k[rows] + 1], *node_values(k[rows], rows)
+            )
+        act = act[~finished]
+    u = ((t - nodes[k]) / h[:, 0])[:, None]
+    state = c0 + u * (c1 + u * (c2 + u * c3))
     return t, state, outside, done

@@ -31,7 +31,7 @@ __all__ = ["OrbitModel", "OrbitOptionError", "ORBIT_OPTIONS"]
 ORBIT_OPTIONS = (
     "potential", "sun", "horizon_myr", "max_horizon_myr", "grid_step_myr", "grid_travel_pc",
     "method",
-    "bin_width_pc", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
+    "bin_width_pc", "min_bin_samples", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
 
@@ -84,9 +84,13 @@ class OrbitModel(ForwardModel):
         "map": state-transition map (needs ``reference``), checked but never
         replaced; "direct": integrate every row; "auto": map with automatic
         fallback to direct integration where the check fails.
-    bin_width_pc : float, default 2
-        Width of the distance bins [pc]; each occupied bin gets its own
-        reference orbit.
+    bin_width_pc : float, default 10
+        Width of the distance bins [pc]; each bin with at least
+        ``min_bin_samples`` samples (and the bin of ``reference``) gets its own
+        reference orbit, all integrated in one solver call.
+    min_bin_samples : int, default 50
+        Samples in sparser bins are integrated directly (cheaper than a
+        reference orbit with its 258 variational equations).
     map_tolerance_au : float, default 0.5
         Largest allowed map error in d_ph [au] on the checked samples.
     n_check : int, default 4
@@ -102,7 +106,7 @@ class OrbitModel(ForwardModel):
 
     def __init__(
         self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
-        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto", bin_width_pc=2.0,
+        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto", bin_width_pc=10.0, min_bin_samples=50,
         map_tolerance_au=0.5, n_check=4, rtol=1e-12, atol=1e-11, chunk_size=20000,
     ):  # fmt: skip
         if isinstance(potential, str):
@@ -138,6 +142,9 @@ class OrbitModel(ForwardModel):
             raise _bad("method", method, f"one of {', '.join(_METHODS)}")
         self.method = method
         self.bin_width_pc = _positive("bin_width_pc", bin_width_pc)
+        if not isinstance(min_bin_samples, int | np.integer) or min_bin_samples < 1:
+            raise _bad("min_bin_samples", min_bin_samples, "a positive integer")
+        self.min_bin_samples = int(min_bin_samples)
         self.map_tolerance_au = _positive("map_tolerance_au", map_tolerance_au)
         if not isinstance(n_check, int | np.integer) or n_check < 1:
             raise _bad("n_check", n_check, "a positive integer")
@@ -163,6 +170,7 @@ class OrbitModel(ForwardModel):
             "grid_travel_pc": self.grid_travel_pc,
             "method": self.method,
             "bin_width_pc": self.bin_width_pc,
+            "min_bin_samples": self.min_bin_samples,
             "map_tolerance_au": self.map_tolerance_au,
             "n_check": self.n_check,
             "integrator": {"scheme": "DOP853", "rtol": self.rtol, "atol": self.atol},
@@ -180,8 +188,8 @@ class OrbitModel(ForwardModel):
             bad = float(obs[obs[:, 2] <= 0, 2][0])
             raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
         xv = observables_to_cartesian(obs)
-        rot = self._rotation
-        return obs, np.concatenate([xv[:, :3] @ rot.T, xv[:, 3:] @ rot.T], axis=1)
+        rel = (xv.reshape(-1, 2, 3) @ self._rotation.T).reshape(-1, 6)
+        return obs, rel
 
     def _grid(self, t_lin, speed):
         """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times and speeds."""
@@ -217,26 +225,33 @@ class OrbitModel(ForwardModel):
             )
 
             def values(k, rows, states=states, derivs=derivs):
-                return states[k, rows], derivs[k, rows]
+                return states[k, rows], derivs[k, rows], states[k + 1, rows], derivs[k + 1, rows]
 
             t0 = grid_minimum_start(nodes, states)
             t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, values, t0)
         return t, state, outside, conv
 
     def _bins(self, rel, ref_rel):
+        """Distance bins: reference index per mapped row, reference states, sparse rows."""
         dist = np.linalg.norm(rel[:, :3], axis=1)
         dref = np.linalg.norm(ref_rel[:3])
         labels = np.rint((dist - dref) / self.bin_width_pc).astype(np.int64)
-        uniq, bidx = np.unique(labels, return_inverse=True)
-        refs = np.empty((uniq.size, 6))
-        sums = np.zeros((uniq.size, 6))
-        np.add.at(sums, bidx, rel)
-        refs[:] = sums / np.bincount(bidx, minlength=uniq.size)[:, None]
-        refs[uniq == 0] = ref_rel
-        return bidx, refs
+        uniq, inv, counts = np.unique(labels, return_inverse=True, return_counts=True)
+        keep = (counts >= self.min_bin_samples) | (uniq == 0)
+        sparse = ~keep[inv]
+        new_index = np.cumsum(keep) - 1
+        bidx = new_index[inv]
+        nk = int(keep.sum())
+        sums = np.zeros((nk, 6))
+        np.add.at(sums, bidx[~sparse], rel[~sparse])
+        refs = sums / np.maximum(np.bincount(bidx[~sparse], minlength=nk), 1)[:, None]
+        refs[uniq[keep] == 0] = ref_rel
+        return np.where(sparse, 0, bidx), refs, sparse
 
-    def _map(self, rel, ref_rel, nodes, t_lin):
-        bidx, refs = self._bins(rel, ref_rel)
+    def _map(self, rel_all, ref_rel, nodes, t_lin_all):
+        bidx, refs, sparse = self._bins(rel_all, ref_rel)
+        mapped = np.flatnonzero(~sparse)
+        rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
         tables = variational_tables(
             self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol
         )
@@ -261,32 +276,54 @@ class OrbitModel(ForwardModel):
         first = np.searchsorted(bidx[order], np.arange(kref))
         rank = np.arange(order.size) - first[bidx[order]]
         check = order[rank < self.n_check]
-        tc, sc, oc, _ = self._direct(rel[check], nodes)
+        tc, sc, oc, cc = self._direct(rel[check], nodes)
         err_au = np.abs(np.linalg.norm(sc[:, :3], axis=1) - np.linalg.norm(state[check, :3], axis=1))
         err_au *= AU_PER_PC
         err_t = np.abs(tc - t[check]) * _C
-        bin_err = np.zeros(kref)
-        np.maximum.at(bin_err, bidx[check], err_au)
+        # the second-order map's error grows as the cube of the offset: bound it
+        # per reference orbit by c * score^3 with c the largest ratio on the checks
+        coef = np.zeros(kref)
+        sc3 = score[check] ** 3
+        ratio = np.divide(err_au, sc3, out=np.zeros_like(err_au), where=sc3 > 1e-9)
+        np.maximum.at(coef, bidx[check], ratio)
+        predicted = coef[bidx] * score**3
         diag = {
             "n_reference_orbits": int(kref),
             "n_checked": int(check.size),
             "map_error_au_max": float(err_au.max()),
             "map_error_time_myr_max": float(err_t.max()),
-            "map_error_au_per_orbit": bin_err.tolist(),
+            "map_error_model": "error_au <= c * score_pc^3, c per reference orbit from the checks",
+            "map_error_coefficient_max": float(coef.max()),
         }
+        # checked samples keep their direct result
+        t[check], state[check], outside[check], conv[check] = tc, sc, oc, cc
         redo = ~conv
         if self.method == "auto":
-            redo |= (bin_err > self.map_tolerance_au)[bidx]
+            redo |= predicted > self.map_tolerance_au
+            redo[check] = False
         n_redo = int(redo.sum())
         diag["fallback_samples"] = n_redo
         if n_redo:
             rows = np.flatnonzero(redo)
             t[rows], state[rows], outside[rows], conv[rows] = self._direct(rel[rows], nodes)
             diag["fallback_reason"] = (
-                f"{n_redo} of {rel.shape[0]} samples integrated directly: map error above "
-                f"{self.map_tolerance_au} au in {int(np.sum(bin_err > self.map_tolerance_au))} "
-                f"of {kref} reference orbits or Newton not converged"
+                f"{n_redo} of {rel_all.shape[0]} samples integrated directly: predicted map "
+                f"error above {self.map_tolerance_au} au (or Newton not converged)"
             )
+        n_sparse = int(sparse.sum())
+        diag["sparse_bin_samples"] = n_sparse
+        n = rel_all.shape[0]
+        t_all, state_all = np.empty(n), np.empty((n, 6))
+        out_all, conv_all = np.empty(n, dtype=bool), np.empty(n, dtype=bool)
+        t_all[mapped], state_all[mapped], out_all[mapped], conv_all[mapped] = (
+            t, state, outside, conv
+        )
+        if n_sparse:
+            rows = np.flatnonzero(sparse)
+            t_all[rows], state_all[rows], out_all[rows], conv_all[rows] = self._direct(
+                rel_all[rows], nodes
+            )
+        t, state, outside, conv = t_all, state_all, out_all, conv_all
         return t, state, outside, conv, diag
 
     # --------------------------------------------------------------- interface
@@ -314,7 +351,8 @@ class OrbitModel(ForwardModel):
             t, state, outside, conv, diag = self._map(rel, ref_rel[0], nodes, t_lin)
             info.update(diag)
             info["method"] = (
-                "state_transition_map+direct_fallback" if diag["fallback_samples"]
+                "state_transition_map+direct_fallback"
+                if diag["fallback_samples"] or diag["sparse_bin_samples"]
                 else "state_transition_map"
             )  # fmt: skip
         x, w = state[:, :3], state[:, 3:]

@@ -48,7 +48,14 @@ def features(delta) -> np.ndarray:
     ndarray, shape (n, 28)
     """
     n = delta.shape[0]
-    return np.concatenate([np.ones((n, 1)), delta, delta[:, _IA] * delta[:, _IB]], axis=1)
+    out = np.empty((n, N_FEATURES))
+    out[:, 0] = 1.0
+    out[:, 1:7] = delta
+    col = 7
+    for a in range(6):  # loop over the 6 coordinates, vectorized over samples
+        out[:, col : col + 6 - a] = delta[:, a : a + 1] * delta[:, a:]
+        col += 6 - a
+    return out
 
 
 def _derivative(potential, sun, y):
@@ -65,7 +72,8 @@ def _derivative(potential, sun, y):
     dp1 = np.concatenate([p1[..., 3:, :], jac @ p1[..., :3, :]], axis=-2)
     px = p1[..., :3, :]
     low = np.einsum("...ij,...jab->...iab", jac, p2[..., :3, :, :])
-    low = low + np.einsum("...ijl,...ja,...lb->...iab", ten, px, px)
+    tmp = np.einsum("...ijl,...ja->...ial", ten, px)  # (..., 3, 6, 3)
+    low = low + tmp @ px[..., None, :, :]
     dp2 = np.concatenate([p2[..., 3:, :, :], low], axis=-3)
     dsun = np.concatenate([sun[..., 3:], a_sun], axis=-1)
     flat = np.concatenate(
@@ -91,6 +99,10 @@ class MapTables:
         self.nodes = nodes
         self.refs = refs
         self.table = table
+        # node k and k+1 side by side, state (6) and acceleration (3) only, since
+        # the derivative of the position is the velocity: (K, m-1, 28, 18)
+        sa = np.concatenate([table[..., :6], table[..., 9:12]], axis=-1)
+        self._pairs = np.concatenate([sa[:, :-1], sa[:, 1:]], axis=-1)
 
     def node_values(self, ref_index, feats):
         """Return a callable for :func:`newton_perihelion` over samples.
@@ -101,6 +113,11 @@ class MapTables:
             Reference orbit of each sample.
         feats : ndarray, shape (n, 28)
             Features of each sample's offset from its reference.
+
+        Returns
+        -------
+        callable
+            ``values(k, rows) -> (state_k, deriv_k, state_k1, deriv_k1)``.
         """
         m = len(self.nodes)
 
@@ -109,11 +126,17 @@ class MapTables:
             order = np.argsort(key, kind="stable")
             sk = key[order]
             cuts = np.flatnonzero(np.diff(sk)) + 1
-            out = np.empty((rows.size, 12))
-            for grp in np.split(order, cuts):
-                b, kk = divmod(int(key[grp[0]]), m)
-                out[grp] = feats[rows[grp]] @ self.table[b, kk]
-            return out[:, :6], out[:, 6:]
+            fs = feats[rows[order]]  # one gather, groups contiguous
+            res = np.empty((rows.size, 18))
+            for lo, hi in zip(np.r_[0, cuts], np.r_[cuts, rows.size], strict=True):
+                b, kk = divmod(int(sk[lo]), m)
+                np.matmul(fs[lo:hi], self._pairs[b, kk], out=res[lo:hi])
+            out = np.empty_like(res)
+            out[order] = res  # one scatter
+            s0, s1 = out[:, :6], out[:, 9:15]
+            d0 = np.concatenate([s0[:, 3:], out[:, 6:9]], axis=1)
+            d1 = np.concatenate([s1[:, 3:], out[:, 15:]], axis=1)
+            return s0, d0, s1, d1
 
         return values
 
