@@ -106,7 +106,8 @@ class OrbitModel(ForwardModel):
 
     def __init__(
         self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
-        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto", bin_width_pc=10.0, min_bin_samples=50,
+        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto",
+        bin_width_pc=10.0, min_bin_samples=50,
         map_tolerance_au=0.5, n_check=4, rtol=1e-12, atol=1e-11, chunk_size=20000,
     ):  # fmt: skip
         if isinstance(potential, str):
