@@ -52,6 +52,9 @@ class Analysis:
         the same samples and the difference.
     prior : dict or None
         The distance-prior block (name, parameters, method, diagnostics).
+    calibration : dict or None
+        Parallax zero-point and error inflation factors that were applied
+        (``star`` is the star after them).
     """
 
     star: ObservedStar
@@ -62,6 +65,7 @@ class Analysis:
     warnings: list = field(default_factory=list)
     comparison: dict = field(default_factory=dict)
     prior: dict | None = None
+    calibration: dict | None = None
 
     def to_dict(self) -> dict:
         """The JSON document (see the README for the contract)."""
@@ -81,6 +85,8 @@ class Analysis:
             }
         if self.prior is not None:
             out["prior"] = self.prior
+        if self.calibration is not None:
+            out["calibration"] = self.calibration
         if self.comparison:
             out["straight_line_comparison"] = self.comparison
         out["notes"] = list(self.star.notes)
@@ -99,6 +105,8 @@ def analyze(
     max_samples: int = 10_000_000,
     distance_prior=None,
     prior_method: str = "auto",
+    parallax_offset=None,
+    error_inflation=None,
 ) -> Analysis:
     """Perihelion of a star with linear and Monte Carlo intervals and a budget.
 
@@ -124,6 +132,13 @@ def analyze(
         A distance prior (see :mod:`perierr.priors`); None inverts the parallax.
     prior_method : {"auto", "reweight", "mcmc"}
         How to sample the posterior under ``distance_prior``.
+    parallax_offset : float, Quantity, (value, error) or str, optional
+        Parallax zero-point Z [mas] and its error, applied before anything
+        else: corrected parallax = parallax - Z. Its error is a separate input
+        with its own budget share (see :mod:`perierr.priors.calibration`).
+    error_inflation : float, mapping or str, optional
+        Factors multiplying standard errors, e.g. ``{"parallax": 1.1}``
+        (one number inflates every input).
 
     Returns
     -------
@@ -131,8 +146,14 @@ def analyze(
     """
     if isinstance(model, str):
         model = make_model(model)
+    from .priors.calibration import Calibration
+
+    calibration = Calibration.from_user(parallax_offset, error_inflation)
+    calibration_block = calibration.to_dict(star)
+    star = calibration.apply(star)
     notes = []
     prior_block = None
+    with_prior = False
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", PerierrWarning)
         if distance_prior is None:
@@ -151,20 +172,28 @@ def analyze(
             from .priors import posterior_samples, resolve_prior
 
             prior = resolve_prior(distance_prior)
+            with_prior = prior.name != "none"
             linear = linearize(star, model) if star.mean[2] > 0 else None
             samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
             mc = propagate_samples(samples, model, reference=star.mean, levels=levels, thresholds=thresholds)
             prior_block = {"name": prior.name, "parameters": prior.parameters, **samples.info}
             prior_block["method"] = samples.method
     notes.extend(str(w.message) for w in caught if issubclass(w.category, PerierrWarning))
-    budget = None if linear is None else linear_budget(linear.jacobian, star.cov)
-    notes.extend(_reading_warnings(star, linear, mc, distance_prior is not None))
+    if linear is None:
+        budget = None
+    elif calibration.zero_point_error > 0:
+        budget = calibration.budget(linear.jacobian, star)
+    else:
+        budget = linear_budget(linear.jacobian, star.cov)
+    notes.extend(_reading_warnings(star, linear, mc, with_prior))
     comparison = {}
     if not isinstance(model, StraightLine):
         comparison = _compare_straight_line(star, linear, mc)
     for message in notes:
         warnings.warn(message, PerierrWarning, stacklevel=2)
-    return Analysis(star, model.describe(), linear, mc, budget, notes, comparison, prior_block)
+    return Analysis(
+        star, model.describe(), linear, mc, budget, notes, comparison, prior_block, calibration_block
+    )
 
 
 def _compare_straight_line(star, linear, mc) -> dict:
