@@ -114,3 +114,27 @@ def test_transverse_velocity_constant():
     obs = np.array([[0.0, 0.0, 100.0, 1000.0, 0.0, 0.0]])  # 10 pc, 1 arcsec/yr
     xv = observables_to_cartesian(obs)
     assert_allclose(np.linalg.norm(xv[0, 3:]), 10 * KMS_PER_MASYR_AT_1MAS, rtol=1e-14)
+
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    ra=st.floats(0, 360), dec=st.floats(-89, 89), plx=st.floats(0.5, 500),
+    pmra=st.floats(-2000, 2000), pmdec=st.floats(-2000, 2000), rv=st.floats(-200, 200),
+)
+def test_lma_invariants(ra, dec, plx, pmra, pmdec, rv):
+    # Geometry of a straight line (common practice, no source): the closest approach is no farther
+    # than today's distance, comes in the future exactly when the star approaches (rv < 0), the
+    # speed is the space velocity, and the sky position does not matter.
+    obs = np.array([[ra, dec, plx, pmra, pmdec, rv], [0.0, 0.0, plx, pmra, pmdec, rv]])
+    ph = StraightLine().evaluate(obs)
+    dist = 1000 / plx
+    assert np.all(ph.distance_pc <= dist * (1 + 1e-12))
+    if abs(rv) > 1e-6:
+        assert np.sign(ph.time_myr[0]) == -np.sign(rv)
+    v = np.linalg.norm(observables_to_cartesian(obs[0])[3:])
+    assert_allclose(ph.speed_kms[0], v, rtol=1e-9, atol=1e-12)
+    assert_allclose(ph.as_array()[0], ph.as_array()[1], rtol=1e-9, atol=1e-12)
