@@ -123,7 +123,7 @@ def scenario_metrics(
     per_chunk = max(1, _CHUNK_ROWS // n)
     for start in range(0, k, per_chunk):
         stop = min(k, start + per_chunk)
-        x = np.einsum("nj,kij->kni", draws.z, factors[start:stop]) + mean
+        x = np.matmul(draws.z, np.swapaxes(factors[start:stop], 1, 2)) + mean
         ok = x[..., 2] > 0
         valid[start:stop] = ok
         flat = x.reshape(-1, 6)
