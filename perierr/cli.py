@@ -15,6 +15,7 @@ from .analysis import analyze
 from .demo import demo_path
 from .errors import InputError, PerierrWarning
 from .models import MODEL_NAMES, make_model
+from .priors.mcmc import ChainTooShortError
 from .report import format_analysis, write_json
 from .star import read_star_file
 from .thresholds import DEFAULT_THRESHOLDS
@@ -54,6 +55,23 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     )
     p.add_argument("--max-samples", type=int, default=10_000_000, metavar="N", help="cap for --target-error")
     p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+    _add_prior_options(p)
+
+
+def _add_prior_options(p: argparse.ArgumentParser) -> None:
+    from .priors import METHODS, PRIOR_SYNTAX
+
+    g = p.add_argument_group("distance prior and parallax calibration")
+    g.add_argument("--distance-prior", default=None, metavar="SPEC",
+                   help=f"prior on the distance instead of inverting the parallax: {PRIOR_SYNTAX}")
+    g.add_argument("--prior-method", default="auto", choices=METHODS,
+                   help="reweight Gaussian draws, run MCMC (emcee), or auto: reweight and switch to MCMC "
+                        "when the effective sample size is too small or the parallax is <= 0")
+    g.add_argument("--parallax-offset", default=None, metavar="Z[,ERR]",
+                   help="parallax zero-point in mas, subtracted first (e.g. -0.017,0.005); "
+                        "its error gets its own budget share")
+    g.add_argument("--inflate", default=None, metavar="NAME=F,...",
+                   help="multiply input errors, e.g. parallax=1.1,pmra=1.05 (one number: every input)")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -83,6 +101,10 @@ def _analysis_kwargs(args) -> dict:
         thresholds=args.within,
         target_error=args.target_error,
         max_samples=args.max_samples,
+        distance_prior=args.distance_prior,
+        prior_method=args.prior_method,
+        parallax_offset=args.parallax_offset,
+        error_inflation=args.inflate,
     )
 
 
@@ -185,7 +207,7 @@ def main(argv=None, out=None) -> int:
             _screen(args.table, out)
         elif args.command == "plan":
             _plan(args, out)
-    except (InputError, ValueError) as exc:
+    except (InputError, ValueError, ChainTooShortError) as exc:
         print(f"perierr: error: {exc}", file=sys.stderr)
         return 2
     return 0

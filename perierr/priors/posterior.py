@@ -36,7 +36,7 @@ def posterior_samples(
     seed=None,
     method: str = "auto",
     min_effective_size: float | None = None,
-    mcmc_effective_size: int = 4000,
+    mcmc_effective_size: int = 10_000,
     n_walkers: int = 64,
     max_steps: int = 100_000,
 ) -> Samples:

@@ -101,9 +101,10 @@ def format_analysis(analysis) -> str:
         b = a.budget
         sd, st = b.share("distance_pc"), b.share("time_myr")
         cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
-        for name in OBSERVABLES:
+        for name in getattr(b, "inputs", OBSERVABLES):
             c_d, c_t = (0.0 if abs(x) < 5e-4 else x for x in (cd[name], ct[name]))  # no "-0.0 %"
-            lines.append(f"  {name:<17}{sd[name]:>8.1%} ({c_d:>6.1%}){st[name]:>9.1%} ({c_t:>6.1%})")
+            label = "parallax zero-pt" if name == "parallax_zero_point" else name
+            lines.append(f"  {label:<17}{sd[name]:>8.1%} ({c_d:>6.1%}){st[name]:>9.1%} ({c_t:>6.1%})")
         lines.append(
             f"  largest share: {b.dominant('distance_pc')} for the distance, {b.dominant('time_myr')} for the time"
         )
@@ -115,7 +116,17 @@ def format_analysis(analysis) -> str:
             lines.append(f"  {_LABEL[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
     if a.prior:
         lines.append("")
-        lines.append(f"Distance prior: {a.prior['name']} {a.prior.get('parameters', {})} via {a.prior.get('method')}")
+        lines.extend(_prior_lines(a.prior))
+    cal = getattr(a, "calibration", None)
+    if cal and (cal["parallax_zero_point"]["value_mas"] or cal["parallax_zero_point"]["error_mas"]
+                or any(f != 1 for f in cal["error_inflation"].values())):
+        z = cal["parallax_zero_point"]
+        lines.append("")
+        lines.append(f"Calibration: parallax zero-point {z['value_mas']:+.4g} ± {z['error_mas']:.2g} mas "
+                     "(corrected = catalogue − zero-point)")
+        inflated = {k: f for k, f in cal["error_inflation"].items() if f != 1}
+        if inflated:
+            lines.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in inflated.items()))
     if a.warnings or star.notes:
         lines.append("")
         lines.append("Read with care")
@@ -127,3 +138,28 @@ def format_analysis(analysis) -> str:
         "assessment for comets or the Oort cloud."
     )
     return "\n".join(lines)
+
+
+def _prior_lines(prior: dict) -> list:
+    """The distance-prior section: what was assumed and how far to trust the sampling."""
+    params = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
+                       for k, v in prior.get("parameters", {}).items())
+    method = prior.get("method")
+    out = [f"Distance prior: {prior['name']}" + (f" ({params})" if params else "")
+           + f"; posterior by {method}"]
+    ess = prior.get("effective_size")
+    if method == "reweight" and ess is not None:
+        out.append(f"  importance weights: effective sample size {ess:,.0f} of {prior.get('n_drawn', 0):,} draws "
+                   f"(largest weight {prior.get('max_weight', 0):.2g})")
+    elif method == "mcmc":
+        tau = prior.get("autocorrelation_time", {})
+        acc = prior.get("acceptance_fraction", 0.0)
+        out.append(f"  emcee: {prior.get('n_walkers')} walkers × {prior.get('n_steps')} steps, burn-in "
+                   f"{prior.get('burn_in')}, thin {prior.get('thin')}, acceptance {acc:.2f}")
+        if tau:
+            out.append(f"  autocorrelation time ≤ {max(tau.values()):.1f} steps; effective sample size {ess:,.0f}")
+        if prior.get("switched_to_mcmc"):
+            out.append(f"  switched to MCMC: {prior['switched_to_mcmc']}")
+    elif ess is not None:
+        out.append(f"  effective sample size {ess:,.0f}")
+    return out
