@@ -175,3 +175,26 @@ def test_errors():
         global_budget(invented_star(parallax=0.5, parallax_error=0.2), model)
     with pytest.raises(InputError, match="2\\^k rows"):
         shapley_from_costs(np.zeros(5))
+
+
+def test_nonlinear_star_global_differs_from_linear_and_matches_scipy():
+    from scipy.stats import norm, sobol_indices
+
+    # invented star with a proper motion of 1 sigma: d_ph ~ |mu| is far from linear in pmdec at pmdec = 0
+    star = ObservedStar.from_values(
+        ra=10.0, dec=5.0, parallax=40.0, parallax_error=0.05, pmra=0.05, pmra_error=0.05, pmdec=0.0,
+        pmdec_error=0.05, radial_velocity=-30.0, radial_velocity_error=0.5,
+    )
+    g = global_budget(star, StraightLine(), seed=1, width=False, n_outer=8000)
+    # the linear budget (Jacobian at pmdec = 0, Bailer-Jones 2015 Sect. 3 formulas) gives pmdec nothing
+    assert g.linear_variance[1, 4] == pytest.approx(0.0, abs=1e-12)
+    info = g.nonlinearity()["distance_pc"]
+    assert not info["agrees_with_linear"] and "pmdec" in info["inputs_outside_interval"]
+    # d_ph is here ~ c * hypot(pmra, pmdec) with independent inputs: Shapley = (S_i + ST_i) / 2 for two
+    # inputs (Song et al. 2016), S and ST from scipy.stats.sobol_indices; tolerance 0.03
+    res = sobol_indices(
+        func=lambda x: np.hypot(x[0], x[1])[None, :], n=2**13, dists=[norm(1.0, 1.0), norm(0.0, 1.0)],
+        rng=np.random.default_rng(8),
+    )
+    expected = 0.5 * (np.ravel(res.first_order) + np.ravel(res.total_order))
+    np.testing.assert_allclose(g.variance.shares[1, 3:5], expected, atol=0.03)

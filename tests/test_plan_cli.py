@@ -63,11 +63,19 @@ def test_plan_command_goal_form_reports_precision_or_floor(tmp_path):
 def test_plan_command_full_with_plot(tmp_path):
     png = tmp_path / "curves.png"
     out = io.StringIO()
-    argv = ["plan", DEMO, "--points", "4", "--samples", "2000", "--seed", "2", "--plot", str(png)]
+    path = tmp_path / "full.json"
+    argv = ["plan", DEMO, "--points", "4", "--samples", "2000", "--whatif-samples", "2000", "--seed", "2",
+            "--measure", "rv=0.1", "--plot", str(png), "--json", str(path)]
     assert main(argv, out=out) == 0
     assert png.stat().st_size > 10_000
     text = out.getvalue()
     assert "Global budget" in text and "groups (by_kind)" in text
+    doc = json.loads(path.read_text())
+    before = doc["global_budget"]["variance"]["distance_pc"]["radial_velocity"]["share"]
+    after = doc["global_budget_improved"]["variance"]["distance_pc"]["radial_velocity"]["share"]
+    # rv variance 0.6^2 -> (1/0.6^2 + 1/0.1^2)^-1 is 37x smaller (inverse-variance combination), so its share drops
+    assert after < before / 5
+    assert len(doc["gain_curves"]["inputs"]["radial_velocity"]["precision"]) == 4
     from PIL import Image
 
     with Image.open(png) as im:

@@ -32,6 +32,9 @@ class Plan:
         One per (goal, input) pair.
     curves : GainCurves or None
     budget : GlobalBudget or None
+        Global Shapley budget today.
+    budget_improved : GlobalBudget or None
+        The same after the what-if measurements (what to measure next after those).
     settings : dict
     """
 
@@ -41,6 +44,7 @@ class Plan:
     required: list
     curves: GainCurves | None
     budget: GlobalBudget | None
+    budget_improved: GlobalBudget | None = None
     settings: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
@@ -54,6 +58,7 @@ class Plan:
             "goals": [r.to_dict() for r in self.required],
             "gain_curves": None if self.curves is None else self.curves.to_dict(),
             "global_budget": None if self.budget is None else self.budget.to_dict(),
+            "global_budget_improved": None if self.budget_improved is None else self.budget_improved.to_dict(),
             "settings": dict(self.settings),
             "caution": "perierr predicts statistical encounters, not impact hazards",
         }
@@ -120,5 +125,8 @@ def plan(
     required = [required_precision(star, model, name, g, draws=draws) for g in goals for name in names]
     gc = gain_curves(star, model, n_points=n_points, threshold=curve_threshold, draws=draws) if curves else None
     gb = global_budget(star, model, seed=seed, **(budget_options or {})) if budget else None
+    gb1 = None
+    if budget and wi is not None:
+        gb1 = global_budget(wi.improved, model, seed=seed, **(budget_options or {}))
     settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
-    return Plan(star, model.describe(), wi, required, gc, gb, settings)
+    return Plan(star, model.describe(), wi, required, gc, gb, gb1, settings)

@@ -99,6 +99,12 @@ def format_plan(plan) -> str:
     if plan.curves is not None:
         lines += _curve_lines(plan.curves) + [""]
     if plan.budget is not None:
-        lines += _budget_lines(plan.budget) + [""]
+        lines += _budget_lines(plan.budget)
+        if plan.budget_improved is not None:
+            est = plan.budget_improved.variance
+            j = est.outputs.index("distance_pc")
+            parts = ", ".join(f"{name} {est.shares[j, i]:.3f}" for i, name in enumerate(OBSERVABLES))
+            lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")
+        lines.append("")
     lines.append("perierr predicts statistical encounters, not impact hazards.")
     return "\n".join(lines)
