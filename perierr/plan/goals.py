@@ -74,6 +74,14 @@ class Goal:
         s = self.score(metric)
         return s < self.bound() if self.kind == "decide" else s <= self.bound()
 
+    def format(self, metric) -> str:
+        """A value of the goal's statistic with its unit (``"P = 0.47"``, ``"0.0077 pc (1,595 au)"``)."""
+        m = float(metric)
+        if self.kind == "decide":
+            return f"P = {m:.4g}"
+        extra = f" ({m * AU_PER_PC:,.0f} au)" if self.output == "distance_pc" else ""
+        return f"{m:.4g} {_OUTPUT_UNITS[self.output].to_string()}{extra}"
+
     def describe(self) -> str:
         """Plain words, e.g. ``"90 % width of distance_pc <= 0.005 pc (1031 au)"``."""
         if self.kind == "decide":

@@ -133,13 +133,13 @@ def required_precision(
         return RequiredPrecision(name, goal, status, precision, unit, sig_cat, now, floor, achieved, message, settings)
 
     if goal.met(now):
-        return result("already_met", None, now, f"the goal ({goal.describe()}) is already met today: {now:.4g}")
+        return result("already_met", None, now, f"already met today ({goal.format(now)})")
     if not goal.met(floor):
         why = "it is held exact already" if sigma == 0 else "the other inputs set a floor"
         return result(
             "unreachable", None, None,
             f"cannot be reached by measuring {name} alone: even an exact {name} leaves "
-            f"{goal.score(floor):.4g} against the goal {goal.bound():.4g} ({why}); "
+            f"{goal.format(floor)} against the goal {goal.describe()} ({why}); "
             "improve another input as well",
         )
     grid = sigma * _GRID
@@ -174,7 +174,7 @@ def required_precision(
     return result(
         "reachable", precision, back,
         f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}); "
-        f"there the statistic is {goal.score(back):.4g} (floor with an exact {name}: {goal.score(floor):.4g})",
+        f"there {goal.format(back)} (floor with an exact {name}: {goal.format(floor)})",
     )
 
 
