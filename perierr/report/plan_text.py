@@ -37,7 +37,7 @@ def _what_if_lines(w) -> list:
 def _curve_lines(c) -> list:
     key = "distance_pc.width90"
     out = [f"Gain curves: 90 % width of d_ph [au] vs new precision (today {c.current[key] * AU_PER_PC:,.0f} au)", ""]
-    out.append(f"  {'input':<17}{'today sigma':>14}{'at today':>11}{'at 1/3':>11}{'at 1/10':>11}{'floor':>11}")
+    out.append(f"  {'input':<17}{'today sigma':>16}{'s = 1x':>11}{'s = 1/3x':>11}{'s = 1/10x':>11}{'smallest s':>11}")
     for name in c.inputs:
         prec = c.precision[name]
         ratio = prec / c.sigma[name]
@@ -48,12 +48,12 @@ def _curve_lines(c) -> list:
 
         sigma = c.sigma[name]
         out.append(
-            f"  {name:<17}{sigma:>9.3g} {c.units[name]:<4}{at(1.0):>11,.0f}{at(1 / 3):>11,.0f}"
+            f"  {name:<17}{sigma:>9.3g} {c.units[name]:<6}{at(1.0):>11,.0f}{at(1 / 3):>11,.0f}"
             f"{at(0.1):>11,.0f}{vals[-1]:>11,.0f}"
         )
     first = c.inputs[0]
     smallest = c.precision[first][-1] / c.sigma[first]
-    out.append(f"  ('floor': the smallest precision on the curve, {smallest:.2g} x today's)")
+    out.append(f"  (s: the new measurement's error as a multiple of today's; smallest s = {smallest:.2g}x)")
     return out
 
 
