@@ -205,3 +205,14 @@ def test_resolve_prior_accepts_objects_mappings_callables_tables():
 def test_table_prior_errors(r, p, match):
     with pytest.raises(InputError, match=match):
         TablePrior(r, p)
+
+
+@pytest.mark.parametrize(
+    "prior",
+    [ExponentialDensity(700.0), GeneralizedGamma(1.0, 3.0, 200.0), GeneralizedGamma(2.2, 0.3, 90.0),
+     UniformDensity(400.0), TablePrior([1.0, 1e3], [2.0, 1.0])],
+)
+def test_log_weight_is_log_prior_plus_two_log_r(prior):
+    # importance weight P(r) r^2 (change of variables parallax -> r, common practice, no source)
+    r = np.geomspace(0.5, 2e4, 301)
+    np.testing.assert_allclose(prior.log_weight(r), prior.log_density(r) + 2 * np.log(r), rtol=1e-13, atol=1e-11)

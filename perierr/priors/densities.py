@@ -99,6 +99,14 @@ class DistancePrior(abc.ABC):
         """(lowest, highest) distance with non-zero density [pc]."""
         return (0.0, math.inf)
 
+    def log_weight(self, r) -> np.ndarray:
+        """``ln P(r) + 2 ln r`` for distances ``r > 0`` [pc]: the log importance weight.
+
+        Subclasses may override it with a form needing one logarithm (speed).
+        """
+        r = np.asarray(r, dtype=float)
+        return self.log_density(r) + 2.0 * np.log(r)
+
     def density(self, r) -> np.ndarray:
         """Prior density at ``r`` [pc] (``exp`` of :meth:`log_density`)."""
         return np.exp(self.log_density(r))
@@ -162,6 +170,12 @@ class ExponentialDensity(DistancePrior):
             out = 2.0 * np.log(r) - r / big_l - math.log(2.0) - 3.0 * math.log(big_l)
         return np.where(r > 0, out, -np.inf)
 
+    def log_weight(self, r) -> np.ndarray:
+        """``ln P(r) + 2 ln r`` for ``r > 0`` (one logarithm)."""
+        r = np.asarray(r, dtype=float)
+        big_l = self.length_scale
+        return 4.0 * np.log(r) - r / big_l - (math.log(2.0) + 3.0 * math.log(big_l))
+
 
 class GeneralizedGamma(DistancePrior):
     """Generalized gamma distribution of distance.
@@ -200,6 +214,14 @@ class GeneralizedGamma(DistancePrior):
         with np.errstate(divide="ignore", invalid="ignore"):
             out = self._log_norm + self.beta * np.log(r) - (r / self.length_scale) ** self.alpha
         return np.where(r > 0, out, -np.inf)
+
+    def log_weight(self, r) -> np.ndarray:
+        """``ln P(r) + 2 ln r`` for ``r > 0`` (one logarithm)."""
+        r = np.asarray(r, dtype=float)
+        x = r / self.length_scale
+        if self.alpha != 1.0:
+            x = x**self.alpha
+        return (self.beta + 2.0) * np.log(r) - x + self._log_norm
 
 
 class UniformDensity(DistancePrior):

@@ -24,7 +24,7 @@ from .._constants import OBSERVABLES
 from ..errors import InputError
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
 
-__all__ = ["log_weights", "reweight"]
+__all__ = ["importance_weights", "log_weights", "reweight"]
 
 _PLX = OBSERVABLES.index("parallax")
 
@@ -43,11 +43,38 @@ def log_weights(parallax, prior) -> np.ndarray:
     ndarray, shape (n,)
     """
     plx = np.asarray(parallax, dtype=float)
+    if plx.size and plx.min() > 0:  # common case: no mask, one pass fewer
+        return prior.log_weight(1000.0 / plx)
     out = np.full(plx.shape, -np.inf)
     pos = plx > 0
     r = 1000.0 / plx[pos]
-    out[pos] = prior.log_density(r) + 2.0 * np.log(r)
+    out[pos] = prior.log_weight(r)
     return out
+
+
+def importance_weights(parallax, prior) -> tuple:
+    """Normalized importance weights of parallax draws, and which draws carry one.
+
+    Returns
+    -------
+    weights : ndarray, shape (m,), or None
+        Positive weights summing to 1 for the kept draws; None when no draw
+        has a positive weight.
+    keep : ndarray of bool, shape (n,), or None
+        Kept draws; None when every draw is kept.
+    """
+    logw = log_weights(parallax, prior)
+    top = logw.max()
+    if not np.isfinite(top):
+        return None, None
+    keep = None
+    if not np.isfinite(logw.min()):
+        keep = np.isfinite(logw)
+        logw = logw[keep]
+    logw -= top
+    w = np.exp(logw, out=logw)
+    w /= w.sum()
+    return w, keep
 
 
 def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
@@ -83,22 +110,20 @@ def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
     if rng is None:
         rng = np.random.default_rng(seed)
     values = draw_gaussian(star.mean, star.cov, int(n), rng)
-    logw = log_weights(values[:, _PLX], prior)
-    keep = np.isfinite(logw)
-    if not keep.any():
+    w, keep = importance_weights(values[:, _PLX], prior)
+    if w is None:
         raise InputError(
             "distance prior", prior.name,
             f"no Gaussian draw of the parallax lies where the prior is non-zero "
             f"({prior.parameters}); importance reweighting cannot work, use method='mcmc'",
         )
-    logw = logw[keep]
-    w = np.exp(logw - logw.max())
-    w /= w.sum()
+    if keep is not None:
+        values = values[keep]
     ess = float(1.0 / np.dot(w, w))
     info = {
         "effective_size": ess,
         "n_drawn": int(n),
-        "n_zero_weight": int(n - np.count_nonzero(keep)),
+        "n_zero_weight": int(n - values.shape[0]),
         "max_weight": float(w.max()),
     }
-    return Samples(values[keep], weights=w, method="reweight", seed=seed, info=info)
+    return Samples(values, weights=w, method="reweight", seed=seed, info=info)
