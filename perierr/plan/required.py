@@ -71,6 +71,12 @@ class RequiredPrecision:
         """True when a finite precision reaches the goal (or it is already met)."""
         return self.status != "unreachable"
 
+    def mc_error(self, value: float) -> float | None:
+        """Binomial Monte Carlo error ``sqrt(p (1 - p) / n)`` of a probability goal's value (else None)."""
+        if self.goal.kind != "decide":
+            return None
+        return float(np.sqrt(value * (1.0 - value) / self.settings["n"]))
+
     def to_dict(self) -> dict:
         """Plain dict for JSON (``required_precision`` or the reason it cannot be reached)."""
         return {
@@ -78,6 +84,7 @@ class RequiredPrecision:
             "required_precision": self.precision, "unit": self.unit,
             "current_sigma": self.current_sigma, "current_value": self.current,
             "floor_value": self.floor, "achieved_value": self.achieved, "message": self.message,
+            "mc_error_today": self.mc_error(self.current),
             "settings": dict(self.settings),
         }
 
