@@ -114,6 +114,8 @@ def test_required_width_and_decide_goals_fed_back_through_what_if():
     assert p_now == pytest.approx(0.2, abs=0.01)
     rd = required_precision(star, MODEL, "radial_velocity", decide_goal(label, alpha=0.1), draws=DRAWS)
     assert rd.status == "reachable"
+    # binomial Monte Carlo error sqrt(p (1 - p) / n) (textbook binomial standard error)
+    assert rd.to_dict()["mc_error_today"] == pytest.approx(math.sqrt(rd.current * (1 - rd.current) / 20_000), rel=1e-12)
     covs = update_covariance(star.cov, 5, np.array([rd.precision, 1.01 * rd.precision]))
     p = scenario_metrics(star, MODEL, covs, DRAWS, thresholds=[label]).probabilities[label]
     # fed back: decisive (P < alpha); 1 % worse is not (largest precision reaching the goal)
