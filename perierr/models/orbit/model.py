@@ -96,8 +96,10 @@ class OrbitModel(ForwardModel):
     n_check : int, default 4
         Samples per bin checked against direct integration (those farthest
         from their reference orbit).
-    rtol, atol : float, default 1e-12, 1e-11
-        DOP853 tolerances of every integration.
+    rtol, atol : float, default 1e-10, 1e-10
+        DOP853 tolerances of every integration (state in pc and km/s). The
+        default already agrees with galpy at rtol 1e-12 to 0.001 au for stars
+        within 50 pc; the results hardly change between 1e-9 and 1e-12.
     chunk_size : int, default 20000
         Samples per direct-integration call (bounds memory).
     """
@@ -108,7 +110,7 @@ class OrbitModel(ForwardModel):
         self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
         max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto",
         bin_width_pc=10.0, min_bin_samples=50,
-        map_tolerance_au=0.5, n_check=4, rtol=1e-12, atol=1e-11, chunk_size=20000,
+        map_tolerance_au=0.5, n_check=4, rtol=1e-10, atol=1e-10, chunk_size=20000,
     ):  # fmt: skip
         if isinstance(potential, str):
             self._preset = get_potential(potential)

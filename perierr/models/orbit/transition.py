@@ -123,6 +123,12 @@ class MapTables:
 
         def values(k, rows):
             key = ref_index[rows] * m + k
+            if key.size and np.all(key == key[0]):  # one group: no sorting or gathers
+                b, kk = divmod(int(key[0]), m)
+                full = rows.size == feats.shape[0] and rows[0] == 0 and rows[-1] == rows.size - 1
+                f = feats if full else feats[rows]
+                out = f @ self._pairs[b, kk]
+                return _split(out)
             order = np.argsort(key, kind="stable")
             sk = key[order]
             cuts = np.flatnonzero(np.diff(sk)) + 1
@@ -133,12 +139,17 @@ class MapTables:
                 np.matmul(fs[lo:hi], self._pairs[b, kk], out=res[lo:hi])
             out = np.empty_like(res)
             out[order] = res  # one scatter
-            s0, s1 = out[:, :6], out[:, 9:15]
-            d0 = np.concatenate([s0[:, 3:], out[:, 6:9]], axis=1)
-            d1 = np.concatenate([s1[:, 3:], out[:, 15:]], axis=1)
-            return s0, d0, s1, d1
+            return _split(out)
 
         return values
+
+
+def _split(out):
+    """(n, 18) products -> state_k, deriv_k, state_k1, deriv_k1, each (n, 6)."""
+    s0, s1 = out[:, :6], out[:, 9:15]
+    d0 = np.concatenate([s0[:, 3:], out[:, 6:9]], axis=1)
+    d1 = np.concatenate([s1[:, 3:], out[:, 15:]], axis=1)
+    return s0, d0, s1, d1
 
 
 def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol) -> MapTables:
