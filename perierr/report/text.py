@@ -57,9 +57,8 @@ def format_analysis(analysis) -> str:
     for name in OBSERVABLES:
         value, err = star.mean[OBSERVABLES.index(name)], cat[f"{name}_error"]
         shown = f"{value:.7f}" if name in ("ra", "dec") else format_value(value, err)
-        lines.append(
-            f"  {name:<16}{shown:>14} ± {err:<10.4g} {_UNIT_OBS[name]}{'  (error in mas)' if name in ('ra', 'dec') else ''}"
-        )
+        unit = _UNIT_OBS[name] + ("  (error in mas)" if name in ("ra", "dec") else "")
+        lines.append(f"  {name:<16}{shown:>14} ± {err:<10.4g} {unit}")
     if star.fractional_parallax_error < math.inf:
         lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
     lines.append("")
