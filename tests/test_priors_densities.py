@@ -216,3 +216,27 @@ def test_log_weight_is_log_prior_plus_two_log_r(prior):
     # importance weight P(r) r^2 (change of variables parallax -> r, common practice, no source)
     r = np.geomspace(0.5, 2e4, 301)
     np.testing.assert_allclose(prior.log_weight(r), prior.log_density(r) + 2 * np.log(r), rtol=1e-13, atol=1e-11)
+
+
+@settings(max_examples=40, deadline=None)
+@given(w=st.floats(-2.0, 5.0), frac=st.floats(0.02, 3.0), length=st.floats(100.0, 3000.0))
+def test_edsd_mode_property(w, frac, length):
+    # Bailer-Jones 2015, PASP 127, 994, eq. 19, over random (w, s, L) including negative parallaxes
+    s = max(abs(w), 0.1) * frac
+    expected = edsd_mode_from_cubic(w, s, length / 1000.0)
+    assert posterior_mode(ExponentialDensity(length), w, s) == pytest.approx(expected, rel=1e-5)
+
+
+@settings(max_examples=20, deadline=None)
+@given(scale=st.floats(1e-6, 1e6), seed=st.integers(0, 2**31))
+def test_reweighting_ignores_prior_normalization(scale, seed):
+    # importance weights are self-normalized, so a constant factor in the prior cancels
+    # (Owen 2013, Monte Carlo theory, methods and examples, Sect. 9.2)
+    from perierr.priors import log_weights
+
+    plx = np.random.default_rng(seed).normal(1.0, 0.4, 500)
+    a = log_weights(plx, CustomPrior(lambda r: np.exp(-r / 900.0)))
+    b = log_weights(plx, CustomPrior(lambda r: scale * np.exp(-r / 900.0)))
+    fin = np.isfinite(a)
+    np.testing.assert_array_equal(fin, np.isfinite(b))
+    np.testing.assert_allclose(b[fin] - a[fin], np.log(scale), rtol=1e-9, atol=1e-9)

@@ -14,6 +14,7 @@ from perierr.priors import (
     ChainTooShortError,
     ExponentialDensity,
     GeneralizedGamma,
+    NoPrior,
     TablePrior,
     UniformDensity,
     posterior_samples,
@@ -237,11 +238,12 @@ def test_sampling_errors():
     star = invented_star(1.0, 0.5)
     with pytest.raises(InputError, match="prior_method = 'grid': expected one of auto, reweight, mcmc"):
         posterior_samples(star, ExponentialDensity(1.0), method="grid")
-    with pytest.raises(InputError, match="the prior is improper for this parallax"):
+    with pytest.raises(InputError, match="the prior is improper for this parallax"), \
+            pytest.warns(PerierrWarning, match="dominated by the custom prior"):
         posterior_samples(invented_star(-1.0, 0.5), lambda r: r * 0 + 1.0, n=1000, seed=1)
     with pytest.raises(InputError, match="n_walkers = 5: expected an even number >= 12"):
         sample_posterior_mcmc(star, ExponentialDensity(1000.0), n_walkers=5)
     with pytest.raises(InputError, match="parallax = -1.0: The 'none' distance prior"):
-        posterior_samples(invented_star(-1.0, 0.5), "none" and __import__("perierr.priors").priors.NoPrior())
+        posterior_samples(invented_star(-1.0, 0.5), NoPrior())
     with pytest.raises(InputError, match="no Gaussian draw of the parallax lies where the prior is non-zero"):
         posterior_samples(invented_star(2.0, 0.01), UniformDensity(100.0), n=1000, seed=1, method="reweight")
