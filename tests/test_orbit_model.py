@@ -103,6 +103,11 @@ def test_direct_integration_agrees_with_galpy(galpy_results):
     # comparison is not trivially passed by an unbent path)
     sl = StraightLine().evaluate(STARS)
     assert np.max(np.abs(sl.distance_pc - dg)) > 100 * np.max(tol_d)
+    # the straight-line answer reported alongside equals the StraightLine model
+    # (Matthews 1994 formulas, computed there from the observables directly)
+    rep = ph.info["straight_line"]
+    assert np.allclose(rep["distance_pc"], sl.distance_pc, rtol=1e-10)
+    assert np.allclose(rep["time_myr"], sl.time_myr, rtol=1e-10)
 
 
 def test_map_nominal_agrees_with_galpy(galpy_results):

@@ -185,3 +185,13 @@ def test_composition_and_bad_parameters():
         PowerLawCutoff(mass_msun=1.0, alpha=2.5, rc_pc=1.0)
     with pytest.raises(PotentialParameterError, match="potential='nope'"):
         get_potential("nope")
+
+
+@pytest.mark.parametrize("comp", COMPONENTS, ids=IDS)
+def test_fused_derivatives_equal_the_separate_ones(comp):
+    # the one-pass method used by the variational equations (identity check of
+    # the same formulas, verified above against finite differences)
+    acc, hes, third = comp.derivatives(POINTS)
+    assert np.allclose(acc, comp.acceleration(POINTS), rtol=1e-13, atol=0)
+    assert np.allclose(hes, comp.hessian(POINTS), rtol=1e-12, atol=1e-20)
+    assert np.allclose(third, comp.third_derivatives(POINTS), rtol=1e-12, atol=1e-22)

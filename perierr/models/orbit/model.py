@@ -336,8 +336,11 @@ class OrbitModel(ForwardModel):
         ``info`` holds "method" ("state_transition_map", "direct" or
         "state_transition_map+direct_fallback"), the window, the number of
         reference orbits, the map errors found by the check [au, Myr], the
-        number of fallback samples with the reason, and the number of
-        perihelia outside the window (flagged).
+        number of fallback samples with the reason, the number of perihelia
+        outside the window (flagged), and the straight-line answer of the same
+        rows ("straight_line": arrays of time_myr, distance_pc, speed_kms) with
+        the median orbit-minus-straight-line difference
+        ("model_difference_median").
         """
         _, rel = self._relative(observables)
         v = rel[:, 3:]
@@ -367,9 +370,20 @@ class OrbitModel(ForwardModel):
         info["n_outside_window"] = int(outside.sum())
         info["n_not_converged"] = int((~conv).sum())
         flags = outside | ~conv
-        return Perihelion(
+        ph = Perihelion(
             t * _C, np.linalg.norm(x, axis=1), np.linalg.norm(w, axis=1), flags=flags, info=info
         )
+        # the straight-line answer of the same rows, so that reports can show the
+        # model difference (orbit minus straight line)
+        sl_d = np.linalg.norm(rel[:, :3] + v * t_lin[:, None], axis=1)
+        sl_v = np.sqrt(vv)
+        info["straight_line"] = {"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v}
+        info["model_difference_median"] = {
+            "time_myr": float(np.median(ph.time_myr - t_lin * _C)),
+            "distance_pc": float(np.median(ph.distance_pc - sl_d)),
+            "speed_kms": float(np.median(ph.speed_kms - sl_v)),
+        }
+        return ph
 
     def jacobian(self, point) -> np.ndarray:
         """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.

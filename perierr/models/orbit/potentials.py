@@ -93,6 +93,17 @@ class Potential(abc.ABC):
     def describe(self) -> dict:
         """Parameters of the potential, for outputs."""
 
+    def derivatives(self, x):
+        """Acceleration, Hessian and third derivatives in one pass.
+
+        Returns
+        -------
+        tuple of ndarray
+            Shapes (..., 3), (..., 3, 3) and (..., 3, 3, 3); subclasses share
+            intermediate results (used by the variational equations).
+        """
+        return self.acceleration(x), self.hessian(x), self.third_derivatives(x)
+
     def __add__(self, other):
         if not isinstance(other, Potential):
             return NotImplemented
@@ -137,6 +148,11 @@ class CompositePotential(Potential):
     def third_derivatives(self, x):
         """Third derivatives of Phi [(km/s)^2/pc^3], shape (..., 3, 3, 3)."""
         return sum(c.third_derivatives(x) for c in self.components)
+
+    def derivatives(self, x):
+        """Acceleration, Hessian and third derivatives, summed over components."""
+        parts = [c.derivatives(x) for c in self.components]
+        return tuple(sum(p[i] for p in parts) for i in range(3))
 
     def scaled(self, factor):
         """Copy with the amplitude multiplied by ``factor``."""
@@ -185,6 +201,29 @@ class _Spherical(Potential):
         x = np.asarray(x, dtype=float)
         r = np.linalg.norm(x, axis=-1)
         return -(self._d1(r) / r)[..., None] * x
+
+    def derivatives(self, x):
+        """Acceleration, Hessian and third derivatives sharing r and Phi'(r)."""
+        x = np.asarray(x, dtype=float)
+        r = np.sqrt(np.einsum("...i,...i->...", x, x))
+        d1, d2, d3 = self._derivs(r)
+        return -(d1 / r)[..., None] * x, *self._tensors(x, r, d1, d2, d3)
+
+    def _tensors(self, x, r, d1, d2, d3):
+        n = x / r[..., None]
+        g = (d1 / r)[..., None, None]
+        nn = n[..., :, None] * n[..., None, :]
+        hes = (d2[..., None, None] - g) * nn + g * np.eye(3)
+        gp = d2 / r - d1 / (r * r)  # derivative of Phi'/r
+        eye = np.eye(3)
+        nnn = nn[..., None] * n[..., None, None, :]
+        sym = (
+            eye[:, :, None] * n[..., None, None, :]
+            + eye[:, None, :] * n[..., None, :, None]
+            + eye[None, :, :] * n[..., :, None, None]
+        )
+        third = (d3 - 3.0 * gp)[..., None, None, None] * nnn + gp[..., None, None, None] * sym
+        return hes, third
 
     def hessian(self, x):
         """Hessian of Phi [(km/s)^2/pc^2], shape (..., 3, 3)."""
@@ -455,6 +494,30 @@ class MiyamotoNagai(Potential):
         dc_dz = -3.0 * self.a_pc * self.b_pc**2 * z / zeta**5
         out[..., 2, 2, 2] += gm * d2**-1.5 * dc_dz
         return out
+
+    def derivatives(self, x):
+        """Acceleration, Hessian and third derivatives sharing intermediate terms."""
+        _, z, zeta, big_b, d2, q = self._parts(x)
+        gm = G_PC_KMS2_PER_MSUN * self.mass_msun
+        c = self._dq(z, zeta, big_b)
+        qmat = np.zeros(q.shape + (3,))
+        qmat[..., 0, 0] = 1.0
+        qmat[..., 1, 1] = 1.0
+        qmat[..., 2, 2] = c
+        d15 = gm * d2**-1.5
+        acc = -d15[..., None] * q
+        qq = q[..., :, None] * q[..., None, :]
+        hes = d15[..., None, None] * (qmat - 3.0 * qq / d2[..., None, None])
+        qqq = qq[..., None] * q[..., None, None, :]
+        sym = (
+            qmat[..., :, :, None] * q[..., None, None, :]
+            + qmat[..., :, None, :] * q[..., None, :, None]
+            + qmat[..., None, :, :] * q[..., :, None, None]
+        )
+        third = (15.0 * d15 / (d2 * d2))[..., None, None, None] * qqq
+        third -= (3.0 * d15 / d2)[..., None, None, None] * sym
+        third[..., 2, 2, 2] += d15 * (-3.0 * self.a_pc * self.b_pc**2 * z / zeta**5)
+        return acc, hes, third
 
     def scaled(self, factor):
         """Copy with the amplitude multiplied by ``factor``."""

@@ -65,9 +65,10 @@ def _derivative(potential, sun, y):
     p2 = y[..., 42:].reshape(y.shape[:-1] + (6, 6, 6))
     xg = sun[..., None, :3] + s[..., :3]
     a_sun = potential.acceleration(sun[..., :3])
-    acc = potential.acceleration(xg) - a_sun[..., None, :]
-    jac = -potential.hessian(xg)  # d a / d x
-    ten = -potential.third_derivatives(xg)  # d2 a / dx dx
+    a_star, hes, third = potential.derivatives(xg)
+    acc = a_star - a_sun[..., None, :]
+    jac = -hes  # d a / d x
+    ten = -third  # d2 a / dx dx
     ds = np.concatenate([s[..., 3:], acc], axis=-1)
     dp1 = np.concatenate([p1[..., 3:, :], jac @ p1[..., :3, :]], axis=-2)
     px = p1[..., :3, :]
