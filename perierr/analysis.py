@@ -247,8 +247,15 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
                 "star heads almost straight at the Sun and a linearized distance error is "
                 "meaningless; use the Monte Carlo quantiles"
             )
+        if with_prior:
+            out.append(
+                "under the distance prior the Monte Carlo columns are posterior summaries; the "
+                "linearized columns and the linear budget invert the nominal parallax and ignore the prior"
+            )
         for k, q in enumerate(OUTPUTS):
             s_lin, s_mc = linear.sigma[k], mc.summaries[q].std
+            if with_prior:
+                break  # a prior moves the posterior away from the linearization by design
             if s_lin > 0 and s_mc > 0 and not 0.8 < s_mc / s_lin < 1.25:
                 out.append(
                     f"{q}: Monte Carlo std {s_mc:.3g} differs from the linear sigma {s_lin:.3g} by "

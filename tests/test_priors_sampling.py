@@ -247,3 +247,20 @@ def test_sampling_errors():
         posterior_samples(invented_star(-1.0, 0.5), NoPrior())
     with pytest.raises(InputError, match="no Gaussian draw of the parallax lies where the prior is non-zero"):
         posterior_samples(invented_star(2.0, 0.01), UniformDensity(100.0), n=1000, seed=1, method="reweight")
+
+
+def test_analyze_with_prior_explains_linear_columns_and_matches_quadrature():
+    # reweighted posterior median distance vs scipy.integrate quadrature; d_ph monotone in r for an
+    # only-parallax-uncertain star (Matthews 1994, QJRAS 35, 1)
+    star = invented_star(1.0, 0.35, only_parallax=True, pm=(0.05, 0.08), rv=-25.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        result = analyze(star, distance_prior=UniformDensity(3000.0), n_samples=100_000, seed=5)
+    assert result.prior["method"] == "reweight"
+    assert any("posterior summaries; the linearized columns" in w for w in result.warnings)
+    assert not any("not linear over the error ellipsoid" in w for w in result.warnings)
+    med_r = quadrature_quantiles(UniformDensity(3000.0), 1.0, 0.35, levels=(0.5,))[0]
+    expected = StraightLine().evaluate(np.r_[star.mean[:2], 1000.0 / med_r, star.mean[3:]][None, :])
+    d = result.monte_carlo.summaries["distance_pc"]
+    assert abs(d.median - expected.distance_pc[0]) < 4 * d.quantile_se[0.5]
+    assert d.effective_size == pytest.approx(result.prior["effective_size"], rel=1e-9)
