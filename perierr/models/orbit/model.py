@@ -245,9 +245,9 @@ class OrbitModel(ForwardModel):
         new_index = np.cumsum(keep) - 1
         bidx = new_index[inv]
         nk = int(keep.sum())
-        sums = np.zeros((nk, 6))
-        np.add.at(sums, bidx[~sparse], rel[~sparse])
-        refs = sums / np.maximum(np.bincount(bidx[~sparse], minlength=nk), 1)[:, None]
+        bk, rk = bidx[~sparse], rel[~sparse]
+        sums = np.stack([np.bincount(bk, weights=rk[:, j], minlength=nk) for j in range(6)], 1)
+        refs = sums / np.maximum(np.bincount(bk, minlength=nk), 1)[:, None]
         refs[uniq[keep] == 0] = ref_rel
         return np.where(sparse, 0, bidx), refs, sparse
 
@@ -255,12 +255,28 @@ class OrbitModel(ForwardModel):
         bidx, refs, sparse = self._bins(rel_all, ref_rel)
         mapped = np.flatnonzero(~sparse)
         rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
-        tables = variational_tables(
-            self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol
+        kref = refs.shape[0]
+        delta = rel - refs[bidx]
+        # the samples that check the map: farthest from their reference orbit,
+        # by position offset plus velocity offset times the time to perihelion
+        score = np.linalg.norm(delta[:, :3], axis=1) + np.linalg.norm(delta[:, 3:], axis=1) * (
+            np.abs(t_lin) + 1.0
         )
+        picks = []
+        for b in range(kref):  # loop over the few reference orbits
+            rows_b = np.flatnonzero(bidx == b) if kref > 1 else np.arange(bidx.size)
+            if rows_b.size > self.n_check:
+                top = np.argpartition(-score[rows_b], self.n_check - 1)[: self.n_check]
+                rows_b = rows_b[top]
+            picks.append(rows_b)
+        check = np.concatenate(picks)
+        # reference orbits with variational equations and the check samples, one call
+        tables = variational_tables(
+            self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol,
+            extra=rel[check],
+        )  # fmt: skip
         # each reference's own perihelion from its grid global minimum, to
         # shift the samples' straight-line starting times
-        kref = refs.shape[0]
         ref_feats = features(np.zeros((kref, 6)))
         ref_vals = tables.node_values(np.arange(kref), ref_feats)
         grid_states = np.moveaxis(tables.table[:, :, 0, :6], 1, 0)  # (m, K, 6)
@@ -268,18 +284,14 @@ class OrbitModel(ForwardModel):
         v_ref = refs[:, 3:]
         t_lin_ref = -np.sum(refs[:, :3] * v_ref, axis=1) / np.sum(v_ref * v_ref, axis=1)
         start = t_lin + (t_ref - t_lin_ref)[bidx]
-        delta = rel - refs[bidx]
         feats = features(delta)
         t, state, outside, conv = newton_perihelion(nodes, tables.node_values(bidx, feats), start)
-        # check against direct integration: the samples farthest from their reference
-        score = np.linalg.norm(delta[:, :3], axis=1) + np.linalg.norm(delta[:, 3:], axis=1) * (
-            np.abs(t) + 1.0
-        )
-        order = np.lexsort((-score, bidx))
-        first = np.searchsorted(bidx[order], np.arange(kref))
-        rank = np.arange(order.size) - first[bidx[order]]
-        check = order[rank < self.n_check]
-        tc, sc, oc, cc = self._direct(rel[check], nodes)
+        est, eder = tables.extra
+
+        def check_values(k, rows):
+            return est[k, rows], eder[k, rows], est[k + 1, rows], eder[k + 1, rows]
+
+        tc, sc, oc, cc = newton_perihelion(nodes, check_values, grid_minimum_start(nodes, est))
         err_au = np.abs(np.linalg.norm(sc[:, :3], axis=1) - np.linalg.norm(state[check, :3], axis=1))
         err_au *= AU_PER_PC
         err_t = np.abs(tc - t[check]) * _C

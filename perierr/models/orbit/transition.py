@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .integrate import _solve_both_ways
+from .integrate import _solve_both_ways, relative_derivative
 
 __all__ = ["N_FEATURES", "features", "variational_tables", "MapTables"]
 
@@ -94,12 +94,16 @@ class MapTables:
         Reference initial states relative to the Sun.
     table : ndarray, shape (K, m, 28, 12)
         Feature -> (state, time derivative) coefficients at each node.
+    extra : tuple of ndarray or None
+        States and derivatives, shape (m, E, 6) each, of states integrated
+        directly in the same call.
     """
 
     def __init__(self, nodes, refs, table):
         self.nodes = nodes
         self.refs = refs
         self.table = table
+        self.extra = None  # (states, derivs) of directly integrated extra states
         # node k and k+1 side by side, state (6) and acceleration (3) only, since
         # the derivative of the position is the velocity: (K, m-1, 28, 18)
         sa = np.concatenate([table[..., :6], table[..., 9:12]], axis=-1)
@@ -153,7 +157,7 @@ def _split(out):
     return s0, d0, s1, d1
 
 
-def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol) -> MapTables:
+def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol, extra=None):
     """Integrate reference orbits with their variational equations and tabulate the maps.
 
     Parameters
@@ -168,24 +172,37 @@ def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol) -> MapT
         Increasing grid times containing 0 [pc/(km/s)].
     rtol, atol : float
         DOP853 tolerances.
+    extra : ndarray, shape (E, 6), optional
+        Further relative states integrated directly in the same solver call
+        (the samples that check the map).
 
     Returns
     -------
     MapTables
+        With, if ``extra`` is given, the attribute ``extra`` = (states,
+        derivs), each of shape (m, E, 6), as from
+        :func:`~perierr.models.orbit.integrate.integrate_relative`.
     """
     refs = np.atleast_2d(np.asarray(refs, dtype=float))
     k = refs.shape[0]
     y0 = np.zeros((k, _NVAR))
     y0[:, :6] = refs
     y0[:, 6:42] = np.eye(6).ravel()
+    extra = np.zeros((0, 6)) if extra is None else np.asarray(extra, dtype=float)
+    ne, nv = extra.shape[0], k * _NVAR
 
     def fun(_t, y):
-        dsun, dy = _derivative(potential, y[:6], y[6:].reshape(k, _NVAR))
-        return np.concatenate([dsun, dy.ravel()])
+        sun = y[:6]
+        dsun, dy = _derivative(potential, sun, y[6 : 6 + nv].reshape(k, _NVAR))
+        if not ne:
+            return np.concatenate([dsun, dy.ravel()])
+        _, de = relative_derivative(potential, sun, y[6 + nv :].reshape(ne, 6))
+        return np.concatenate([dsun, dy.ravel(), de.ravel()])
 
-    sol = _solve_both_ways(fun, np.concatenate([sun_state, y0.ravel()]), nodes, rtol, atol)
+    y_init = np.concatenate([sun_state, y0.ravel(), extra.ravel()])
+    sol = _solve_both_ways(fun, y_init, nodes, rtol, atol)
     sun = sol[:, :6]
-    ys = sol[:, 6:].reshape(len(nodes), k, _NVAR)
+    ys = sol[:, 6 : 6 + nv].reshape(len(nodes), k, _NVAR)
     _, dys = _derivative(potential, sun, ys)
     table = np.empty((k, len(nodes), N_FEATURES, 12))
     for col, arr in ((0, ys), (6, dys)):
@@ -198,4 +215,8 @@ def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol) -> MapT
         table[..., 1:7, col : col + 6] = np.swapaxes(p1, -1, -2)
         quad = p2[..., :, _IA, _IB] * coef  # (K, m, 6, 21)
         table[..., 7:, col : col + 6] = np.swapaxes(quad, -1, -2)
-    return MapTables(nodes, refs, table)
+    tables = MapTables(nodes, refs, table)
+    if ne:
+        es = sol[:, 6 + nv :].reshape(len(nodes), ne, 6)
+        tables.extra = (es, relative_derivative(potential, sun, es)[1])
+    return tables
