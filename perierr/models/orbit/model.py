@@ -101,7 +101,8 @@ class OrbitModel(ForwardModel):
         default already agrees with galpy at rtol 1e-12 to 0.001 au for stars
         within 50 pc; the results hardly change between 1e-9 and 1e-12.
     chunk_size : int, default 20000
-        Samples per direct-integration call (bounds memory).
+        Samples per direct-integration call (bounds memory; smaller for long
+        windows so that the tabulated states stay below ~250 MB).
     """
 
     name = "orbit"
@@ -221,8 +222,10 @@ class OrbitModel(ForwardModel):
         state = np.empty((n, 6))
         outside = np.empty(n, dtype=bool)
         conv = np.empty(n, dtype=bool)
-        for start in range(0, n, self.chunk_size):
-            sl = slice(start, min(n, start + self.chunk_size))
+        # bound the tabulated states (m x chunk x 6 floats, held ~4 times) to ~250 MB
+        chunk = min(self.chunk_size, max(256, 8_000_000 // (6 * len(nodes))))
+        for start in range(0, n, chunk):
+            sl = slice(start, min(n, start + chunk))
             states, derivs, _ = integrate_relative(
                 self.potential, self._sun_state, rel[sl], nodes, rtol=self.rtol, atol=self.atol
             )
