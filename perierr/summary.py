@@ -44,10 +44,65 @@ def weighted_quantiles(x, probs, weights=None) -> np.ndarray:
         ranks = np.rint(probs * (x.size - 1)).astype(np.intp)
         kth = np.unique(ranks)
         return np.partition(x, kth)[ranks]
-    order = np.argsort(x, kind="stable")
-    xs, ws = x[order], weights[order]
-    cdf = (np.cumsum(ws) - 0.5 * ws) / ws.sum()
-    return np.interp(probs, cdf, xs)
+    x = np.asarray(x, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    if x.size < _BINNED_FROM:
+        order = np.argsort(x, kind="stable")
+        xs, ws = x[order], w[order]
+        cdf = (np.cumsum(ws) - 0.5 * ws) / ws.sum()
+        return np.interp(probs, cdf, xs)
+    return _binned_weighted_quantiles(x, probs, w)
+
+
+#: Sample size from which weighted quantiles avoid a full sort.
+_BINNED_FROM = 50_000
+
+
+def _binned_weighted_quantiles(x, probs, w) -> np.ndarray:
+    """Exact weighted quantiles (same definition as the sorted path) without a full sort.
+
+    A weighted strided subsample brackets each quantile; only the elements
+    inside a bracket are sorted, with the weight below the bracket as offset.
+    If a bracket turns out not to hold its quantile, fall back to a full sort.
+    """
+    n = x.size
+    step = max(1, n // 50_000)
+    sx, sw = x[::step], w[::step]
+    order = np.argsort(sx, kind="stable")
+    sx, sw = sx[order], sw[order]
+    scdf = (np.cumsum(sw) - 0.5 * sw) / sw.sum()
+    n_eff = sw.sum() ** 2 / np.dot(sw, sw)
+    total = w.sum()
+    probs = np.asarray(probs, dtype=float)
+    margin = 4.5 * np.sqrt(np.maximum(probs * (1 - probs), 1.0 / n_eff) / n_eff) + 2.0 / sx.size
+    out = np.empty(probs.size)
+    idx = np.argsort(probs)
+    groups, current = [], [idx[0]]
+    for k in idx[1:]:  # merge overlapping brackets (a handful of probabilities, not samples)
+        if probs[k] - margin[k] <= probs[current[-1]] + margin[current[-1]]:
+            current.append(k)
+        else:
+            groups.append(current)
+            current = [k]
+    groups.append(current)
+    for group in groups:
+        a = probs[group[0]] - margin[group[0]]
+        b = probs[group[-1]] + margin[group[-1]]
+        lo = np.interp(a, scdf, sx) if a > scdf[0] else -np.inf
+        hi = np.interp(b, scdf, sx) if b < scdf[-1] else np.inf
+        w_below = float(np.dot(x < lo, w)) if np.isfinite(lo) else 0.0  # dot: ~20x faster than a masked sum
+        inside = (x >= lo) & (x <= hi)
+        xi, wi = x[inside], w[inside]
+        order = np.argsort(xi, kind="stable")
+        xi, wi = xi[order], wi[order]
+        cdf = (w_below + np.cumsum(wi) - 0.5 * wi) / total
+        p = probs[group]
+        if xi.size == 0 or np.any(p < cdf[0]) and np.isfinite(lo) or np.any(p > cdf[-1]) and np.isfinite(hi):
+            order = np.argsort(x, kind="stable")
+            xs, ws = x[order], w[order]
+            return np.interp(probs, (np.cumsum(ws) - 0.5 * ws) / total, xs)
+        out[group] = np.interp(p, cdf, xi)
+    return out
 
 
 @dataclass(frozen=True)
@@ -142,9 +197,10 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
         n_eff = float(wsum**2 / np.dot(w, w))
         mean = float(np.dot(w, x) / wsum)
         dev = x - mean
-        m2 = float(np.dot(w, dev * dev) / wsum)
-        m3 = float(np.dot(w, dev**3) / wsum)
-        m4 = float(np.dot(w, dev**4) / wsum)
+        wdev2 = w * dev * dev
+        m2 = float(wdev2.sum() / wsum)
+        m3 = float(np.dot(wdev2, dev) / wsum)
+        m4 = float(np.dot(wdev2, dev * dev) / wsum)
     std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
     skew = m3 / m2**1.5 if m2 > 0 else 0.0
     kurt = m4 / m2**2 if m2 > 0 else 3.0
@@ -235,7 +291,7 @@ def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> 
         p = count / n_eff
     else:
         w = np.asarray(weights, dtype=float)
-        p = float(w[below].sum() / w.sum())
+        p = min(1.0, float(np.dot(below, w) / w.sum()))  # dot vs sum rounding can exceed 1 by 1 ulp
         n_eff = float(w.sum() ** 2 / np.dot(w, w))
     se = math.sqrt(p * (1 - p) / n_eff)
     upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)

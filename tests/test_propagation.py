@@ -172,3 +172,23 @@ def test_interval_from_kept_samples(close_star):
     assert_allclose(s.interval(0.9), (s.quantiles[0.05], s.quantiles[0.95]))
     with pytest.raises(KeyError, match="not computed"):
         s.interval(0.5)
+
+
+def test_weighted_quantiles_without_full_sort_equal_the_sorted_definition():
+    # The bracketed selection must give exactly the mid-point weighted-CDF quantiles of a full sort.
+    from perierr.summary import _binned_weighted_quantiles
+
+    rng = np.random.default_rng(12)
+    probs = np.array([0.001, 0.05, 0.16, 0.4999, 0.5, 0.5001, 0.84, 0.95, 0.999])
+    cases = [
+        (rng.normal(size=120_000), rng.exponential(size=120_000)),
+        (rng.lognormal(0, 2, size=120_000), rng.uniform(0.5, 1.5, size=120_000)),
+        (np.round(rng.normal(size=120_000), 1), rng.exponential(size=120_000)),  # heavy ties
+        (rng.normal(size=120_000), np.where(rng.random(120_000) < 0.01, 1e3, 1e-3)),  # spiky weights
+    ]
+    for x, w in cases:
+        order = np.argsort(x, kind="stable")
+        cdf = (np.cumsum(w[order]) - 0.5 * w[order]) / w.sum()
+        want = np.interp(probs, cdf, x[order])
+        got = _binned_weighted_quantiles(x, probs, w)
+        assert_allclose(got, want, rtol=0, atol=1e-9 * np.ptp(x))
