@@ -65,11 +65,12 @@ class OrbitModel(ForwardModel):
     sun : str or SolarParameters, default "bovy2015"
         Solar parameter set name ("bovy2015", "astropy_v4") or an object.
     horizon_myr : None, float or (float, float), default None
-        Search window [Myr]. None: from 1.5 times the most extreme
-        straight-line times of the rows plus 1 Myr, always containing now, capped
-        at ``max_horizon_myr``; a number h: (-h, h); a pair: (t_min, t_max)
-        with t_min <= 0 <= t_max. Perihelia outside are flagged and given
-        the straight-line extrapolation from the window edge.
+        Search window [Myr]. None: the range of the rows' straight-line
+        times, widened on each side by 25 % of the time plus half the range
+        plus 0.3 Myr, always containing now, capped at ``max_horizon_myr``;
+        a number h: (-h, h); a pair: (t_min, t_max) with
+        t_min <= 0 <= t_max. Perihelia outside are flagged and given the
+        straight-line extrapolation from the window edge.
     max_horizon_myr : float, default 100
         Cap of the automatic window [Myr].
     grid_step_myr : float, default 0.5
@@ -200,8 +201,10 @@ class OrbitModel(ForwardModel):
         if self.horizon_myr is None:
             tl = t_lin * _C
             cap = self.max_horizon_myr
-            lo = max(-cap, min(0.0, 1.5 * float(np.min(tl))) - 1.0)
-            hi = min(cap, max(0.0, 1.5 * float(np.max(tl))) + 1.0)
+            t_min, t_max = float(np.min(tl)), float(np.max(tl))
+            pad = 0.5 * (t_max - t_min) + 0.3
+            lo = max(-cap, min(0.0, t_min - pad - 0.25 * abs(t_min)))
+            hi = min(cap, max(0.0, t_max + pad + 0.25 * abs(t_max)))
         else:
             lo, hi = self.horizon_myr
         step = min(self.grid_step_myr, self.grid_travel_pc / max(float(speed), 1e-3) * _C)
