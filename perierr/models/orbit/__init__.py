@@ -1,6 +1,7 @@
 """Orbit model: perihelion from integrating the Sun and the star in a Galactic potential.
 
-Modules: :mod:`.potentials` (components), :mod:`.presets` (named potentials),
+Modules: :mod:`.potentials` (all components: :mod:`.potential_base`,
+:mod:`.spheres`, :mod:`.disk`), :mod:`.presets` (named potentials),
 :mod:`.sun` (solar parameter sets and the Galactocentric frame),
 :mod:`.integrate` (direct integration and perihelion search),
 :mod:`.transition` (second-order state-transition map), :mod:`.model`
