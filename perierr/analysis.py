@@ -281,9 +281,6 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
             f"|t_ph| is about {t:.0f} Myr: over such times the Galactic tide bends both paths "
             "and straight lines are unreliable; use the orbit model"
         )
-    for name in star.held_exact:
-        if name not in ("ra", "dec"):
-            out.append(f"{name} has zero error and is held exact")
     if not math.isfinite(mc.summaries["distance_pc"].median):
         out.append("the median perihelion distance is not finite")
     return out
