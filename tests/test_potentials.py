@@ -195,3 +195,15 @@ def test_fused_derivatives_equal_the_separate_ones(comp):
     assert np.allclose(acc, comp.acceleration(POINTS), rtol=1e-13, atol=0)
     assert np.allclose(hes, comp.hessian(POINTS), rtol=1e-12, atol=1e-20)
     assert np.allclose(third, comp.third_derivatives(POINTS), rtol=1e-12, atol=1e-22)
+
+
+def test_composite_fused_derivatives_share_the_spherical_tensors():
+    # the sum shares one tensor construction for its spherical parts; it must
+    # equal the sum of each component's own separate formulas (identity check,
+    # the formulas are verified above against finite differences)
+    comp = COMPONENTS[0] + COMPONENTS[1] + COMPONENTS[2] + COMPONENTS[3]
+    acc, hes, third = comp.derivatives(POINTS)
+    parts = COMPONENTS[:4]
+    assert np.allclose(acc, sum(c.acceleration(POINTS) for c in parts), rtol=1e-13, atol=0)
+    assert np.allclose(hes, sum(c.hessian(POINTS) for c in parts), rtol=1e-12, atol=1e-20)
+    assert np.allclose(third, sum(c.third_derivatives(POINTS) for c in parts), rtol=1e-12, atol=1e-22)

@@ -34,6 +34,9 @@ ORBIT_OPTIONS = (
     "bin_width_pc", "min_bin_samples", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
+#: The reference orbits and checks use fixed-step RK4 with steps halved while its
+#: estimated position error exceeds this fraction of ``map_tolerance_au``.
+_RK4_ERROR_FRACTION = 0.1
 
 
 def _rownorm(a):
@@ -103,9 +106,13 @@ class OrbitModel(ForwardModel):
         Samples per bin checked against direct integration (those farthest
         from their reference orbit).
     rtol, atol : float, default 1e-10, 1e-10
-        DOP853 tolerances of every integration (state in pc and km/s). The
-        default already agrees with galpy at rtol 1e-12 to 0.001 au for stars
-        within 50 pc; the results hardly change between 1e-9 and 1e-12.
+        DOP853 tolerances of every direct integration and of the Jacobian's
+        reference orbit (state in pc and km/s). The default already agrees
+        with galpy at rtol 1e-12 to 0.001 au for stars within 50 pc; the
+        results hardly change between 1e-9 and 1e-12. The map's reference
+        orbits and check samples use fixed-step RK4 on the grid instead (its
+        estimated error, below a tenth of ``map_tolerance_au``, is added to the
+        predicted map error; :mod:`~perierr.models.orbit.fixed_step`).
     chunk_size : int, default 20000
         Samples per direct-integration call (bounds memory; smaller for long
         windows so that the tabulated states stay below ~250 MB).
@@ -284,8 +291,10 @@ class OrbitModel(ForwardModel):
         # reference orbits with variational equations and the check samples, one call
         tables = variational_tables(
             self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol,
-            extra=rel[check],
+            extra=rel[check], scheme="rk4",
+            max_error_pc=_RK4_ERROR_FRACTION * self.map_tolerance_au / AU_PER_PC,
         )  # fmt: skip
+        int_err_au = tables.integration_error_pc * AU_PER_PC
         # each reference's own perihelion from its grid global minimum, to
         # shift the samples' straight-line starting times
         ref_feats = features(np.zeros((kref, 6)))
@@ -312,7 +321,7 @@ class OrbitModel(ForwardModel):
         sc3 = score[check] ** 3
         ratio = np.divide(err_au, sc3, out=np.zeros_like(err_au), where=sc3 > 1e-9)
         np.maximum.at(coef, bidx[check], ratio)
-        predicted = coef[bidx] * score**3
+        predicted = coef[bidx] * score**3 + int_err_au
         diag = {
             "n_reference_orbits": int(kref),
             "n_checked": int(check.size),
@@ -320,6 +329,8 @@ class OrbitModel(ForwardModel):
             "map_error_time_myr_max": float(err_t.max()),
             "map_error_model": "error_au <= c * score_pc^3, c per reference orbit from the checks",
             "map_error_coefficient_max": float(coef.max()),
+            "integration_scheme": "fixed-step RK4 on the grid (reference orbits and checks)",
+            "integration_error_au": int_err_au,
         }
         # checked samples keep their direct result
         t[check], state[check], outside[check], conv[check] = tc, sc, oc, cc

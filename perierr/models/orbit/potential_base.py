@@ -125,8 +125,20 @@ class CompositePotential(Potential):
         return sum(c.third_derivatives(x) for c in self.components)
 
     def derivatives(self, x):
-        """Acceleration, Hessian and third derivatives, summed over components."""
-        parts = [c.derivatives(x) for c in self.components]
+        """Acceleration, Hessian and third derivatives, summed over components.
+
+        Spherical components (those with ``_radial = True``) share one
+        construction of the tensors from their summed radial derivatives.
+        """
+        radial = [c for c in self.components if getattr(c, "_radial", False)]
+        if len(radial) < 2:
+            parts = [c.derivatives(x) for c in self.components]
+        else:
+            x = np.asarray(x, dtype=float)
+            r = np.sqrt(np.einsum("...i,...i->...", x, x))
+            d1, d2, d3 = (sum(v) for v in zip(*(c._derivs(r) for c in radial), strict=True))
+            parts = [(-(d1 / r)[..., None] * x, *radial[0]._tensors(x, r, d1, d2, d3))]
+            parts += [c.derivatives(x) for c in self.components if not getattr(c, "_radial", False)]
         return tuple(sum(p[i] for p in parts) for i in range(3))
 
     def scaled(self, factor):

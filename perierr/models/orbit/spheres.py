@@ -25,6 +25,9 @@ from .potential_base import _FOUR_PI_G, G_PC_KMS2_PER_MSUN, Potential, Potential
 
 __all__ = ["Plummer", "Hernquist", "NFW", "PowerLawCutoff"]
 
+_EYE = np.eye(3)
+_EYE.flags.writeable = False
+
 
 class _Spherical(Potential):
     """Spherical component defined by Phi(r), Phi'(r), rho(r) and rho'(r).
@@ -35,6 +38,8 @@ class _Spherical(Potential):
     """
 
     mass_msun: float
+    #: Spherical about the origin: a sum shares the tensors (see CompositePotential.derivatives).
+    _radial = True
 
     @abc.abstractmethod
     def _phi(self, r): ...
@@ -73,17 +78,17 @@ class _Spherical(Potential):
         return -(d1 / r)[..., None] * x, *self._tensors(x, r, d1, d2, d3)
 
     def _tensors(self, x, r, d1, d2, d3):
+        """Hessian and third derivatives from the radial derivatives of Phi."""
         n = x / r[..., None]
         g = (d1 / r)[..., None, None]
         nn = n[..., :, None] * n[..., None, :]
-        hes = (d2[..., None, None] - g) * nn + g * np.eye(3)
+        hes = (d2[..., None, None] - g) * nn + g * _EYE
         gp = d2 / r - d1 / (r * r)  # derivative of Phi'/r
-        eye = np.eye(3)
         nnn = nn[..., None] * n[..., None, None, :]
         sym = (
-            eye[:, :, None] * n[..., None, None, :]
-            + eye[:, None, :] * n[..., None, :, None]
-            + eye[None, :, :] * n[..., :, None, None]
+            _EYE[:, :, None] * n[..., None, None, :]
+            + _EYE[:, None, :] * n[..., None, :, None]
+            + _EYE[None, :, :] * n[..., :, None, None]
         )
         third = (d3 - 3.0 * gp)[..., None, None, None] * nnn + gp[..., None, None, None] * sym
         return hes, third

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .fixed_step import rk4_on_nodes
 from .integrate import _solve_both_ways, relative_derivative
 
 __all__ = ["N_FEATURES", "features", "variational_tables", "MapTables"]
@@ -60,27 +61,39 @@ def features(delta) -> np.ndarray:
 
 def _derivative(potential, sun, y):
     """Derivatives of Sun (B, 6) and variational states (B, K, 258)."""
+    xg = sun[..., None, :3] + y[..., :3]
+    a_sun = potential.acceleration(sun[..., :3])
+    return _variational_rhs(sun, a_sun, *potential.derivatives(xg), y)
+
+
+def _variational_rhs(sun, a_sun, a_star, hes, third, y):
+    """Time derivatives from the potential's derivatives at the reference positions.
+
+    ``sun`` (..., 6) with its acceleration ``a_sun`` (..., 3); ``a_star``,
+    ``hes`` and ``third`` of shapes (..., K, 3), (..., K, 3, 3) and
+    (..., K, 3, 3, 3) at the reference positions; ``y`` (..., K, 258).
+    Returns the Sun's (..., 6) and the variational states' (..., K, 258).
+    """
     s = y[..., :6]
     p1 = y[..., 6:42].reshape(y.shape[:-1] + (6, 6))
     p2 = y[..., 42:].reshape(y.shape[:-1] + (6, 6, 6))
-    xg = sun[..., None, :3] + s[..., :3]
-    a_sun = potential.acceleration(sun[..., :3])
-    a_star, hes, third = potential.derivatives(xg)
     acc = a_star - a_sun[..., None, :]
     jac = -hes  # d a / d x
     ten = -third  # d2 a / dx dx
-    ds = np.concatenate([s[..., 3:], acc], axis=-1)
-    dp1 = np.concatenate([p1[..., 3:, :], jac @ p1[..., :3, :]], axis=-2)
+    out = np.empty(y.shape)
+    out[..., :3] = s[..., 3:]
+    out[..., 3:6] = acc
+    d1 = out[..., 6:42].reshape(p1.shape)
+    d1[..., :3, :] = p1[..., 3:, :]
+    d1[..., 3:, :] = jac @ p1[..., :3, :]
     px = p1[..., :3, :]
+    d2 = out[..., 42:].reshape(p2.shape)
+    d2[..., :3, :, :] = p2[..., 3:, :, :]
     low = np.einsum("...ij,...jab->...iab", jac, p2[..., :3, :, :])
     tmp = np.einsum("...ijl,...ja->...ial", ten, px)  # (..., 3, 6, 3)
-    low = low + tmp @ px[..., None, :, :]
-    dp2 = np.concatenate([p2[..., 3:, :, :], low], axis=-3)
+    d2[..., 3:, :, :] = low + tmp @ px[..., None, :, :]
     dsun = np.concatenate([sun[..., 3:], a_sun], axis=-1)
-    flat = np.concatenate(
-        [ds, dp1.reshape(ds.shape[:-1] + (36,)), dp2.reshape(ds.shape[:-1] + (216,))], axis=-1
-    )
-    return dsun, flat
+    return dsun, out
 
 
 class MapTables:
@@ -104,6 +117,7 @@ class MapTables:
         self.refs = refs
         self.table = table
         self.extra = None  # (states, derivs) of directly integrated extra states
+        self.integration_error_pc = 0.0  # estimated error of the fixed-step scheme
         # node k and k+1 side by side, state (6) and acceleration (3) only, since
         # the derivative of the position is the velocity: (K, m-1, 28, 18)
         sa = np.concatenate([table[..., :6], table[..., 9:12]], axis=-1)
@@ -157,7 +171,10 @@ def _split(out):
     return s0, d0, s1, d1
 
 
-def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol, extra=None):
+def variational_tables(
+    potential, sun_state, refs, nodes, *, rtol, atol, extra=None, scheme="dop853",
+    max_error_pc=None,
+):  # fmt: skip
     """Integrate reference orbits with their variational equations and tabulate the maps.
 
     Parameters
@@ -171,17 +188,26 @@ def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol, extra=N
     nodes : ndarray, shape (m,)
         Increasing grid times containing 0 [pc/(km/s)].
     rtol, atol : float
-        DOP853 tolerances.
+        DOP853 tolerances (``scheme="dop853"``).
     extra : ndarray, shape (E, 6), optional
         Further relative states integrated directly in the same solver call
         (the samples that check the map).
+    scheme : {"dop853", "rk4"}
+        "dop853": adaptive scipy DOP853 to every node; "rk4": fixed-step
+        classical Runge-Kutta, one step per grid interval, halved (up to 16
+        steps per interval) while the embedded error estimate of the relative
+        positions exceeds ``max_error_pc`` (see
+        :mod:`~perierr.models.orbit.fixed_step`).
+    max_error_pc : float, optional
+        Largest allowed estimated position error [pc] for "rk4".
 
     Returns
     -------
     MapTables
         With, if ``extra`` is given, the attribute ``extra`` = (states,
         derivs), each of shape (m, E, 6), as from
-        :func:`~perierr.models.orbit.integrate.integrate_relative`.
+        :func:`~perierr.models.orbit.integrate.integrate_relative`, and
+        ``integration_error_pc`` (the "rk4" estimate, 0 for "dop853").
     """
     refs = np.atleast_2d(np.asarray(refs, dtype=float))
     k = refs.shape[0]
@@ -190,33 +216,71 @@ def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol, extra=N
     y0[:, 6:42] = np.eye(6).ravel()
     extra = np.zeros((0, 6)) if extra is None else np.asarray(extra, dtype=float)
     ne, nv = extra.shape[0], k * _NVAR
-
-    def fun(_t, y):
-        sun = y[:6]
-        dsun, dy = _derivative(potential, sun, y[6 : 6 + nv].reshape(k, _NVAR))
-        if not ne:
-            return np.concatenate([dsun, dy.ravel()])
-        _, de = relative_derivative(potential, sun, y[6 + nv :].reshape(ne, 6))
-        return np.concatenate([dsun, dy.ravel(), de.ravel()])
-
     y_init = np.concatenate([sun_state, y0.ravel(), extra.ravel()])
-    sol = _solve_both_ways(fun, y_init, nodes, rtol, atol)
-    sun = sol[:, :6]
-    ys = sol[:, 6 : 6 + nv].reshape(len(nodes), k, _NVAR)
-    _, dys = _derivative(potential, sun, ys)
-    table = np.empty((k, len(nodes), N_FEATURES, 12))
+    m = len(nodes)
+    err_pc = 0.0
+    if scheme == "rk4":
+        out = np.empty(y_init.size)
+
+        def fun_rk(y):
+            # one call of the potential for the Sun, the references and the checks
+            sun = y[:6]
+            yv = y[6 : 6 + nv].reshape(k, _NVAR)
+            ye = y[6 + nv :].reshape(ne, 6)
+            pts = np.concatenate([sun[None, :3], sun[:3] + yv[:, :3], sun[:3] + ye[:, :3]])
+            acc, hes, third = potential.derivatives(pts)
+            dsun, dy = _variational_rhs(sun, acc[0], acc[1 : 1 + k], hes[1 : 1 + k],
+                                        third[1 : 1 + k], yv)  # fmt: skip
+            out[:6] = dsun
+            out[6 : 6 + nv] = dy.ravel()
+            de = out[6 + nv :].reshape(ne, 6)
+            de[:, :3] = ye[:, 3:]
+            de[:, 3:] = acc[1 + k :] - acc[0]
+            return out.copy()
+
+        pos = np.concatenate([6 + _NVAR * np.arange(k)[:, None] + np.arange(3),
+                              6 + nv + 6 * np.arange(ne)[:, None] + np.arange(3)]).ravel()  # fmt: skip
+        sub = 1
+        while True:
+            sol, dsol, err = rk4_on_nodes(fun_rk, y_init, nodes, substeps=sub)
+            err_pc = float(err[pos].max())
+            if max_error_pc is None or err_pc <= max_error_pc or sub >= 16:
+                break
+            sub *= 2
+        ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+        dys = dsol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+    elif scheme == "dop853":
+
+        def fun(_t, y):
+            sun = y[:6]
+            dsun, dy = _derivative(potential, sun, y[6 : 6 + nv].reshape(k, _NVAR))
+            if not ne:
+                return np.concatenate([dsun, dy.ravel()])
+            _, de = relative_derivative(potential, sun, y[6 + nv :].reshape(ne, 6))
+            return np.concatenate([dsun, dy.ravel(), de.ravel()])
+
+        sol = _solve_both_ways(fun, y_init, nodes, rtol, atol)
+        sun = sol[:, :6]
+        ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+        _, dys = _derivative(potential, sun, ys)
+    else:
+        raise ValueError(f"scheme={scheme!r} is unknown; expected 'dop853' or 'rk4'")
+    table = np.empty((k, m, N_FEATURES, 12))
+    coef = np.where(_IA == _IB, 0.5, 1.0)
     for col, arr in ((0, ys), (6, dys)):
         arr = np.moveaxis(arr, 1, 0)  # (K, m, 258)
-        p1 = arr[..., 6:42].reshape(k, len(nodes), 6, 6)
-        p2 = arr[..., 42:].reshape(k, len(nodes), 6, 6, 6)
-        p2 = 0.5 * (p2 + np.swapaxes(p2, -1, -2))
-        coef = np.where(_IA == _IB, 0.5, 1.0)
+        p1 = arr[..., 6:42].reshape(k, m, 6, 6)
+        p2 = arr[..., 42:].reshape(k, m, 6, 6, 6)
+        quad = 0.5 * (p2[..., :, _IA, _IB] + p2[..., :, _IB, _IA]) * coef  # (K, m, 6, 21)
         table[..., 0, col : col + 6] = arr[..., :6]
         table[..., 1:7, col : col + 6] = np.swapaxes(p1, -1, -2)
-        quad = p2[..., :, _IA, _IB] * coef  # (K, m, 6, 21)
         table[..., 7:, col : col + 6] = np.swapaxes(quad, -1, -2)
     tables = MapTables(nodes, refs, table)
+    tables.integration_error_pc = err_pc
     if ne:
-        es = sol[:, 6 + nv :].reshape(len(nodes), ne, 6)
-        tables.extra = (es, relative_derivative(potential, sun, es)[1])
+        es = sol[:, 6 + nv :].reshape(m, ne, 6)
+        if scheme == "rk4":
+            tables.extra = (es, dsol[:, 6 + nv :].reshape(m, ne, 6))
+        else:
+            tables.extra = (es, relative_derivative(potential, sun, es)[1])
     return tables
