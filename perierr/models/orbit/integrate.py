@@ -162,7 +162,7 @@ def _cubic(t0, t1, p0, m0, p1, m1):
     return p0, h * m0, c2, c3, h
 
 
-def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7):
+def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coefficients=False):
     """Refine the time of minimum separation with Newton's method on Hermite cubics.
 
     Parameters
@@ -173,6 +173,9 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7):
         ``node_values(k, rows) -> (state0, deriv0, state1, deriv1)``, each of
         shape (len(rows), 6): relative states and their time derivatives of
         stars ``rows`` at node indices ``k`` and ``k + 1``.
+        With ``coefficients=True`` it returns instead the (24, len(rows))
+        power-basis coefficients (c0, c1, c2, c3), 6 rows each, of the
+        Hermite cubic in u = (t - t_k) / h_k (as from :func:`_cubic`).
     t_start : ndarray, shape (n,)
         Starting times (clamped to the grid).
     max_iter : int
@@ -180,6 +183,8 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7):
         Convergence threshold on the last Newton step, relative to max(1, |t|);
         the step is applied, and Newton's quadratic convergence leaves an error
         of order (a / v) step^2, far below 1e-12.
+    coefficients : bool
+        See ``node_values``.
 
     Returns
     -------
@@ -195,45 +200,65 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7):
     m = len(nodes)
     t = np.clip(np.asarray(t_start, dtype=float), nodes[0], nodes[-1])
     n = t.size
+
+    def coefs(kk, rows):  # (24, len(rows)): components in rows, samples in columns
+        if coefficients:
+            return node_values(kk, rows)
+        c0, c1, c2, c3, _ = _cubic(nodes[kk], nodes[kk + 1], *node_values(kk, rows))
+        return np.concatenate([c0, c1, c2, c3], axis=1).T
+
     k = np.clip(np.searchsorted(nodes, t, side="right") - 1, 0, m - 2)
-    c0, c1, c2, c3, h = _cubic(nodes[k], nodes[k + 1], *node_values(k, np.arange(n)))
+    c = np.ascontiguousarray(coefs(k, np.arange(n)))
+    h = nodes[k + 1] - nodes[k]
     outside = np.zeros(n, dtype=bool)
     done = np.zeros(n, dtype=bool)
     act = np.arange(n)
     for _ in range(max_iter):
         if act.size == 0:
             break
-        if act.size == n:  # no gathers while every row is active
-            a0, a1, a2, a3, ha, ka = c0, c1, c2, c3, h, k
+        every = 2 * act.size > n  # compute on every row rather than gather most of them
+        if every:
+            ca, ha, ka, t_old = c, h, k, t
         else:
-            a0, a1, a2, a3, ha, ka = c0[act], c1[act], c2[act], c3[act], h[act], k[act]
-        u = ((t[act] - nodes[ka]) / ha[:, 0])[:, None]
-        p = a0 + u * (a1 + u * (a2 + u * a3))
-        acc = (a1[:, 3:] + u * (2.0 * a2[:, 3:] + 3.0 * u * a3[:, 3:])) / ha
-        x, v = p[:, :3], p[:, 3:]
-        f = np.einsum("ij,ij->i", x, v)
-        fp = np.einsum("ij,ij->i", v, v) + np.einsum("ij,ij->i", x, acc)
+            ca, ha, ka, t_old = np.take(c, act, axis=1), h[act], k[act], t[act]
+        u = (t_old - nodes[ka]) / ha
+        # Horner in place: position and velocity, and the acceleration
+        p = ca[18:] * u
+        p += ca[12:18]
+        p *= u
+        p += ca[6:12]
+        p *= u
+        p += ca[:6]
+        acc = ca[21:] * (3.0 * u)
+        acc += 2.0 * ca[15:18]
+        acc *= u
+        acc += ca[9:12]
+        acc /= ha
+        x, v = p[:3], p[3:]
+        f = x[0] * v[0] + x[1] * v[1] + x[2] * v[2]
+        fp = v[0] * v[0] + v[1] * v[1] + v[2] * v[2] + x[0] * acc[0] + x[1] * acc[1] + x[2] * acc[2]
+        if every and act.size < n:
+            f, fp, ha, ka, t_old = f[act], fp[act], ha[act], ka[act], t_old[act]
         with np.errstate(divide="ignore", invalid="ignore"):
-            step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * ha[:, 0])
-        t_old = t[act]
+            step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * ha)
         t_new = np.clip(t_old + step, nodes[0], nodes[-1])
         edge = (((t_new == nodes[0]) & (f > 0)) | ((t_new == nodes[-1]) & (f < 0))) & (
             t_old == t_new
         )
         conv = np.abs(step) <= tol * np.maximum(1.0, np.abs(t_old))
-        outside[act[edge]] = True
         finished = conv | edge
-        done[act[finished]] = True
         t[act] = t_new
         k_new = np.clip(np.searchsorted(nodes, t_new, side="right") - 1, 0, m - 2)
-        move = (k_new != k[act]) & ~finished
+        move = (k_new != ka) & ~finished
         if move.any():
             rows = act[move]
             k[rows] = k_new[move]
-            c0[rows], c1[rows], c2[rows], c3[rows], h[rows] = _cubic(
-                nodes[k[rows]], nodes[k[rows] + 1], *node_values(k[rows], rows)
-            )
-        act = act[~finished]
-    u = ((t - nodes[k]) / h[:, 0])[:, None]
-    state = c0 + u * (c1 + u * (c2 + u * c3))
-    return t, state, outside, done
+            h[rows] = nodes[k[rows] + 1] - nodes[k[rows]]
+            c[:, rows] = coefs(k[rows], rows)
+        if finished.any():
+            outside[act[edge]] = True
+            done[act[finished]] = True
+            act = act[~finished]
+    u = (t - nodes[k]) / h
+    state = c[:6] + u * (c[6:12] + u * (c[12:18] + u * c[18:]))
+    return t, state.T, outside, done

@@ -205,7 +205,7 @@ class OrbitModel(ForwardModel):
             bad = float(obs[obs[:, 2] <= 0, 2][0])
             raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
         xv = observables_to_cartesian(obs)
-        rel = (xv.reshape(-1, 2, 3) @ self._rotation.T).reshape(-1, 6)
+        rel = (xv.reshape(-1, 3) @ self._rotation.T).reshape(-1, 6)
         return obs, rel
 
     def _grid(self, t_lin, speed):
@@ -298,14 +298,18 @@ class OrbitModel(ForwardModel):
         # each reference's own perihelion from its grid global minimum, to
         # shift the samples' straight-line starting times
         ref_feats = features(np.zeros((kref, 6)))
-        ref_vals = tables.node_values(np.arange(kref), ref_feats)
+        ref_vals = tables.node_cubic(np.arange(kref), ref_feats)
         grid_states = np.moveaxis(tables.table[:, :, 0, :6], 1, 0)  # (m, K, 6)
-        t_ref, _, _, _ = newton_perihelion(nodes, ref_vals, grid_minimum_start(nodes, grid_states))
+        t_ref, _, _, _ = newton_perihelion(
+            nodes, ref_vals, grid_minimum_start(nodes, grid_states), coefficients=True
+        )
         v_ref = refs[:, 3:]
         t_lin_ref = -np.sum(refs[:, :3] * v_ref, axis=1) / np.sum(v_ref * v_ref, axis=1)
         start = t_lin + (t_ref - t_lin_ref)[bidx]
         feats = features(delta)
-        t, state, outside, conv = newton_perihelion(nodes, tables.node_values(bidx, feats), start)
+        t, state, outside, conv = newton_perihelion(
+            nodes, tables.node_cubic(bidx, feats), start, coefficients=True
+        )
         est, eder = tables.extra
 
         def check_values(k, rows):
@@ -433,9 +437,11 @@ class OrbitModel(ForwardModel):
         tables = variational_tables(
             self.potential, self._sun_state, rel, nodes, rtol=self.rtol, atol=self.atol
         )
-        vals = tables.node_values(np.zeros(1, dtype=int), features(np.zeros((1, 6))))
+        vals = tables.node_cubic(np.zeros(1, dtype=int), features(np.zeros((1, 6))))
         grid_states = tables.table[:, :, 0, :6].swapaxes(0, 1)
-        t, _, _, _ = newton_perihelion(nodes, vals, grid_minimum_start(nodes, grid_states))
+        t, _, _, _ = newton_perihelion(
+            nodes, vals, grid_minimum_start(nodes, grid_states), coefficients=True
+        )
         k = int(np.clip(np.searchsorted(nodes, t[0], side="right") - 1, 0, len(nodes) - 2))
         tab = tables.table[0]
         p, dp = hermite(

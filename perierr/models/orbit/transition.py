@@ -48,15 +48,16 @@ def features(delta) -> np.ndarray:
     -------
     ndarray, shape (n, 28)
     """
-    n = delta.shape[0]
-    out = np.empty((n, N_FEATURES))
-    out[:, 0] = 1.0
-    out[:, 1:7] = delta
-    col = 7
-    for a in range(6):  # loop over the 6 coordinates, vectorized over samples
-        out[:, col : col + 6 - a] = delta[:, a : a + 1] * delta[:, a:]
-        col += 6 - a
-    return out
+    delta = np.asarray(delta, dtype=float)
+    d = np.ascontiguousarray(delta.T)  # (6, n)
+    # built as (28, n) rows and returned transposed: node_cubic multiplies the
+    # contiguous rows without a copy
+    out = np.empty((N_FEATURES, delta.shape[0]))
+    out[0] = 1.0
+    out[1:7] = d
+    for j, (a, b) in enumerate(zip(_IA, _IB, strict=True)):  # the 21 monomials
+        np.multiply(d[a], d[b], out=out[7 + j])
+    return out.T
 
 
 def _derivative(potential, sun, y):
@@ -118,13 +119,19 @@ class MapTables:
         self.table = table
         self.extra = None  # (states, derivs) of directly integrated extra states
         self.integration_error_pc = 0.0  # estimated error of the fixed-step scheme
-        # node k and k+1 side by side, state (6) and acceleration (3) only, since
-        # the derivative of the position is the velocity: (K, m-1, 28, 18)
-        sa = np.concatenate([table[..., :6], table[..., 9:12]], axis=-1)
-        self._pairs = np.concatenate([sa[:, :-1], sa[:, 1:]], axis=-1)
+        # power-basis coefficients of the Hermite cubic of every interval, as
+        # linear maps of the features: (K, m-1, 28, 24) for (c0, c1, c2, c3)
+        # of the state in u = (t - t_k) / h_k (see integrate.cubic_coefficients)
+        p0, m0 = table[:, :-1, :, :6], table[:, :-1, :, 6:]
+        p1, m1 = table[:, 1:, :, :6], table[:, 1:, :, 6:]
+        h = np.diff(nodes)[None, :, None, None]
+        self._cubics = np.concatenate(
+            [p0, h * m0, 3.0 * (p1 - p0) - h * (2.0 * m0 + m1), 2.0 * (p0 - p1) + h * (m0 + m1)],
+            axis=-1,
+        )
 
-    def node_values(self, ref_index, feats):
-        """Return a callable for :func:`newton_perihelion` over samples.
+    def node_cubic(self, ref_index, feats):
+        """Return a callable for :func:`newton_perihelion` (``coefficients=True``).
 
         Parameters
         ----------
@@ -136,39 +143,38 @@ class MapTables:
         Returns
         -------
         callable
-            ``values(k, rows) -> (state_k, deriv_k, state_k1, deriv_k1)``.
+            ``cubic(k, rows) -> (24, n_rows)``: the coefficients (c0, c1, c2,
+            c3), 6 rows each, of the Hermite cubic on interval ``k``.
         """
-        m = len(self.nodes)
+        n_int = len(self.nodes) - 1
+        cubics = np.ascontiguousarray(np.swapaxes(self._cubics, -1, -2).reshape(-1, 24, N_FEATURES))
+        feats_t = feats.T  # (28, n), contiguous when built by features()
 
-        def values(k, rows):
-            key = ref_index[rows] * m + k
-            if key.size and np.all(key == key[0]):  # one group: no sorting or gathers
-                b, kk = divmod(int(key[0]), m)
-                full = rows.size == feats.shape[0] and rows[0] == 0 and rows[-1] == rows.size - 1
-                f = feats if full else feats[rows]
-                out = f @ self._pairs[b, kk]
-                return _split(out)
+        def cubic(k, rows):
+            key = ref_index[rows] * n_int + k
+            f = feats_t if rows.size == feats_t.shape[1] else feats_t[:, rows]
+            counts = np.bincount(key) if key.size else np.zeros(1, dtype=int)
+            groups = np.flatnonzero(counts)
+            if groups.size <= 8:
+                # the largest group for every row, then the few others by mask
+                main = int(np.argmax(counts))
+                out = cubics[main] @ f
+                for g in groups[groups != main]:
+                    idx = np.flatnonzero(key == g)
+                    out[:, idx] = cubics[g] @ f[:, idx]
+                return out
             order = np.argsort(key, kind="stable")
             sk = key[order]
             cuts = np.flatnonzero(np.diff(sk)) + 1
-            fs = feats[rows[order]]  # one gather, groups contiguous
-            res = np.empty((rows.size, 18))
+            fs = np.ascontiguousarray(f[:, order])  # one gather, groups contiguous
+            res = np.empty((24, rows.size))
             for lo, hi in zip(np.r_[0, cuts], np.r_[cuts, rows.size], strict=True):
-                b, kk = divmod(int(sk[lo]), m)
-                np.matmul(fs[lo:hi], self._pairs[b, kk], out=res[lo:hi])
+                res[:, lo:hi] = cubics[sk[lo]] @ fs[:, lo:hi]
             out = np.empty_like(res)
-            out[order] = res  # one scatter
-            return _split(out)
+            out[:, order] = res  # one scatter
+            return out
 
-        return values
-
-
-def _split(out):
-    """(n, 18) products -> state_k, deriv_k, state_k1, deriv_k1, each (n, 6)."""
-    s0, s1 = out[:, :6], out[:, 9:15]
-    d0 = np.concatenate([s0[:, 3:], out[:, 6:9]], axis=1)
-    d1 = np.concatenate([s1[:, 3:], out[:, 15:]], axis=1)
-    return s0, d0, s1, d1
+        return cubic
 
 
 def variational_tables(
