@@ -19,10 +19,12 @@ from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, linear_budget
 from .errors import PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
+from .propagate.checks import require_motion
 from .propagate.linear import LinearResult, linearize
 from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
+from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
-from .summary import DEFAULT_LEVELS
+from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
 
 __all__ = ["Analysis", "analyze"]
@@ -107,6 +109,7 @@ def analyze(
     prior_method: str = "auto",
     parallax_offset=None,
     error_inflation=None,
+    focusing: bool = False,
 ) -> Analysis:
     """Perihelion of a star with linear and Monte Carlo intervals and a budget.
 
@@ -139,6 +142,11 @@ def analyze(
     error_inflation : float, mapping or str, optional
         Factors multiplying standard errors, e.g. ``{"parallax": 1.1}``
         (one number inflates every input).
+    focusing : bool
+        Apply the two-body gravitational focusing of the star's mass
+        (``star.mass``, ``star.mass_error``) on top of ``model``; the mass
+        draws come from the analysis seed, so the same seed gives the same
+        numbers.
 
     Returns
     -------
@@ -146,11 +154,15 @@ def analyze(
     """
     if isinstance(model, str):
         model = make_model(model)
+    seed = resolve_seed(seed)
+    if focusing:
+        model = _with_focusing(model, star, seed)
     from .priors.calibration import Calibration
 
     calibration = Calibration.from_user(parallax_offset, error_inflation)
     calibration_block = calibration.to_dict(star)
     star = calibration.apply(star)
+    require_motion(star.mean)
     notes = []
     prior_block = None
     with_prior = False
@@ -191,9 +203,20 @@ def analyze(
         comparison = _compare_straight_line(star, linear, mc)
     for message in notes:
         warnings.warn(message, PerierrWarning, stacklevel=2)
-    return Analysis(
-        star, model.describe(), linear, mc, budget, notes, comparison, prior_block, calibration_block
-    )
+    return Analysis(star, model.describe(), linear, mc, budget, notes, comparison, prior_block, calibration_block)
+
+
+def _with_focusing(model, star, seed):
+    """Wrap ``model`` in the focusing correction for the star's mass."""
+    from .errors import InputError
+    from .models.focusing import Focused
+
+    if star.mass is None:
+        raise InputError(
+            "mass", None, "gravitational focusing needs the star's mass: give mass (and mass_error) in M_sun"
+        )
+    rng = np.random.default_rng([seed, 1])  # a stream of its own, fixed by the analysis seed
+    return Focused(model, mass_msun=star.mass, mass_error_msun=star.mass_error or 0.0, rng=rng)
 
 
 def _compare_straight_line(star, linear, mc) -> dict:
@@ -205,7 +228,7 @@ def _compare_straight_line(star, linear, mc) -> dict:
     out = {}
     for k, q in enumerate(OUTPUTS):
         x = ph.output(q)
-        med = float(np.median(x)) if w is None else float(_weighted_median(x, w))
+        med = float(weighted_quantiles(x, [0.5], w)[0])  # the definition the summaries use
         entry = {"median": med, "difference_of_medians": mc.summaries[q].median - med}
         if linear is not None:
             nominal = float(straight.evaluate(star.mean[None, :]).as_array()[0, k])
@@ -213,12 +236,6 @@ def _compare_straight_line(star, linear, mc) -> dict:
             entry["difference_of_nominal"] = float(linear.value[k] - nominal)
         out[q] = entry
     return out
-
-
-def _weighted_median(x, w):
-    order = np.argsort(x)
-    cdf = np.cumsum(w[order]) / w.sum()
-    return x[order][np.searchsorted(cdf, 0.5)]
 
 
 def _reading_warnings(star, linear, mc, with_prior) -> list:
@@ -239,6 +256,16 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
                 f"the Monte Carlo distribution of d_ph is skewed (skewness {d.skewness:.2f}, "
                 f"upper/lower half-width ratio {asym:.2f}): quote the quantiles, not +/- sigma"
             )
+    if linear is None:
+        out.append(
+            "no linearized columns or linear budget: the nominal parallax is <= 0 and cannot be "
+            "inverted; the Monte Carlo columns are the posterior under the distance prior"
+        )
+    elif linear.value[1] <= 1e-9 * 1000.0 / star.mean[2]:
+        out.append(
+            "the nominal path passes through the Sun (d_ph = 0), where d_ph is not differentiable: "
+            "its linearized sigma and linear budget are undefined (shown as zero); use the Monte Carlo quantiles"
+        )
     if linear is not None:
         d_nom, d_sig = linear.value[1], linear.sigma[1]
         if d_sig > 0 and d_nom < 2.0 * d_sig:
@@ -271,12 +298,7 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
     if flags is not None and np.any(flags):
         out.append(f"{int(np.count_nonzero(flags))} samples were flagged by the model (see model info)")
     t = abs(mc.summaries["time_myr"].median)
-    if (
-        linear is not None
-        and isinstance(linear, LinearResult)
-        and t > 10
-        and mc.perihelion.info.get("model") == "straight_line"
-    ):
+    if t > 10 and mc.perihelion.info.get("model") == "straight_line":
         out.append(
             f"|t_ph| is about {t:.0f} Myr: over such times the Galactic tide bends both paths "
             "and straight lines are unreliable; use the orbit model"

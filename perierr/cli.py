@@ -55,6 +55,9 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     )
     p.add_argument("--max-samples", type=int, default=10_000_000, metavar="N", help="cap for --target-error")
     p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+    p.add_argument(
+        "--focusing", action="store_true", help="add the gravitational focusing of the star's mass (mass, mass_error)"
+    )
     _add_prior_options(p)
 
 
@@ -62,16 +65,31 @@ def _add_prior_options(p: argparse.ArgumentParser) -> None:
     from .priors import METHODS, PRIOR_SYNTAX
 
     g = p.add_argument_group("distance prior and parallax calibration")
-    g.add_argument("--distance-prior", default=None, metavar="SPEC",
-                   help=f"prior on the distance instead of inverting the parallax: {PRIOR_SYNTAX}")
-    g.add_argument("--prior-method", default="auto", choices=METHODS,
-                   help="reweight Gaussian draws, run MCMC (emcee), or auto: reweight and switch to MCMC "
-                        "when the effective sample size is too small or the parallax is <= 0")
-    g.add_argument("--parallax-offset", default=None, metavar="Z[,ERR]",
-                   help="parallax zero-point in mas, subtracted first (e.g. -0.017,0.005); "
-                        "its error gets its own budget share")
-    g.add_argument("--inflate", default=None, metavar="NAME=F,...",
-                   help="multiply input errors, e.g. parallax=1.1,pmra=1.05 (one number: every input)")
+    g.add_argument(
+        "--distance-prior",
+        default=None,
+        metavar="SPEC",
+        help=f"prior on the distance instead of inverting the parallax: {PRIOR_SYNTAX}",
+    )
+    g.add_argument(
+        "--prior-method",
+        default="auto",
+        choices=METHODS,
+        help="reweight Gaussian draws, run MCMC (emcee), or auto: reweight and switch to MCMC "
+        "when the effective sample size is too small or the parallax is <= 0",
+    )
+    g.add_argument(
+        "--parallax-offset",
+        default=None,
+        metavar="Z[,ERR]",
+        help="parallax zero-point in mas, subtracted first (e.g. -0.017,0.005); its error gets its own budget share",
+    )
+    g.add_argument(
+        "--inflate",
+        default=None,
+        metavar="NAME=F,...",
+        help="multiply input errors, e.g. parallax=1.1,pmra=1.05 (one number: every input)",
+    )
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -105,7 +123,15 @@ def _analysis_kwargs(args) -> dict:
         prior_method=args.prior_method,
         parallax_offset=args.parallax_offset,
         error_inflation=args.inflate,
+        focusing=args.focusing,
     )
+
+
+def _read_star(path):
+    """Read a star file; unit-slip warnings go to the report (star notes), not to stderr."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        return read_star_file(path)
 
 
 def _run_star(star, args, out) -> None:
@@ -138,28 +164,65 @@ def _screen(path, out) -> None:
 def _add_plan_parser(sub) -> None:
     p = sub.add_parser("plan", help="what to re-observe next, and how precisely (what-if, goals, gain curves)")
     p.add_argument("star_file", type=Path, metavar="STAR_FILE")
-    p.add_argument("--measure", action="append", default=[], metavar="INPUT=PREC",
-                   help="hypothetical new measurement, catalogue units (e.g. radial_velocity=0.1); repeatable")
-    p.add_argument("--goal-width", action="append", default=[], metavar="OUTPUT=VALUE",
-                   help="goal: 90%% interval width at most VALUE (e.g. d_ph='1500 au', t_ph=0.01)")
-    p.add_argument("--goal-sigma", action="append", default=[], metavar="OUTPUT=VALUE",
-                   help="goal: standard deviation at most VALUE (bare numbers in pc, Myr, km/s)")
-    p.add_argument("--goal-decide", action="append", default=[], metavar="D",
-                   help="goal: P(d_ph < D) below --alpha or above 1 - alpha (e.g. '20000 au')")
+    p.add_argument(
+        "--measure",
+        action="append",
+        default=[],
+        metavar="INPUT=PREC",
+        help="hypothetical new measurement, catalogue units (e.g. radial_velocity=0.1); repeatable",
+    )
+    p.add_argument(
+        "--goal-width",
+        action="append",
+        default=[],
+        metavar="OUTPUT=VALUE",
+        help="goal: 90%% interval width at most VALUE (e.g. d_ph='1500 au', t_ph=0.01)",
+    )
+    p.add_argument(
+        "--goal-sigma",
+        action="append",
+        default=[],
+        metavar="OUTPUT=VALUE",
+        help="goal: standard deviation at most VALUE (bare numbers in pc, Myr, km/s)",
+    )
+    p.add_argument(
+        "--goal-decide",
+        action="append",
+        default=[],
+        metavar="D",
+        help="goal: P(d_ph < D) below --alpha or above 1 - alpha (e.g. '20000 au')",
+    )
     p.add_argument("--alpha", type=float, default=0.05, help="decisiveness level of --goal-decide (default 0.05)")
-    p.add_argument("--solve-for", type=_strings, default=None, metavar="INPUT,INPUT",
-                   help="inputs to solve the goals for (default: every input with an error)")
+    p.add_argument(
+        "--solve-for",
+        type=_strings,
+        default=None,
+        metavar="INPUT,INPUT",
+        help="inputs to solve the goals for (default: every input with an error)",
+    )
     p.add_argument("--curves", action=argparse.BooleanOptionalAction, default=True, help="gain curves")
-    p.add_argument("--budget", action=argparse.BooleanOptionalAction, default=True,
-                   help="global (Monte Carlo Shapley) budget")
+    p.add_argument(
+        "--budget", action=argparse.BooleanOptionalAction, default=True, help="global (Monte Carlo Shapley) budget"
+    )
     p.add_argument("--points", type=int, default=20, metavar="N", help="precisions per gain curve (default 20)")
     p.add_argument("--curve-within", default="20000 au", metavar="D", help="threshold of the probability curve")
-    p.add_argument("--samples", type=int, default=20_000, metavar="N",
-                   help="common draws for curves and goals (default 20000)")
-    p.add_argument("--whatif-samples", type=int, default=100_000, metavar="N",
-                   help="draws for the side-by-side summaries (default 100000)")
-    p.add_argument("--within", type=_strings, default=list(DEFAULT_THRESHOLDS), metavar="D,D",
-                   help="distances for P(d_ph < D) in the what-if summaries")
+    p.add_argument(
+        "--samples", type=int, default=20_000, metavar="N", help="common draws for curves and goals (default 20000)"
+    )
+    p.add_argument(
+        "--whatif-samples",
+        type=int,
+        default=100_000,
+        metavar="N",
+        help="draws for the side-by-side summaries (default 100000)",
+    )
+    p.add_argument(
+        "--within",
+        type=_strings,
+        default=list(DEFAULT_THRESHOLDS),
+        metavar="D,D",
+        help="distances for P(d_ph < D) in the what-if summaries",
+    )
     p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
     p.add_argument("--json", type=Path, default=None, metavar="PATH", help="also write the plan as JSON")
     p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves (needs matplotlib)")
@@ -170,14 +233,24 @@ def _plan(args, out) -> None:
     from .plan import parse_goal, parse_measure, plan
     from .report.plan_text import format_plan
 
-    star = read_star_file(args.star_file)
+    star = _read_star(args.star_file)
     measure = [parse_measure(text, dec=float(star.mean[1])) for text in args.measure]
     goals = [parse_goal("width90", t) for t in args.goal_width] + [parse_goal("sigma", t) for t in args.goal_sigma]
     goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
     result = plan(
-        star, model=make_model(args.model), measure=measure, goals=goals, solve_for=args.solve_for,
-        curves=args.curves, budget=args.budget, n=args.samples, n_whatif=args.whatif_samples,
-        seed=args.seed, thresholds=args.within, curve_threshold=args.curve_within, n_points=args.points,
+        star,
+        model=make_model(args.model),
+        measure=measure,
+        goals=goals,
+        solve_for=args.solve_for,
+        curves=args.curves,
+        budget=args.budget,
+        n=args.samples,
+        n_whatif=args.whatif_samples,
+        seed=args.seed,
+        thresholds=args.within,
+        curve_threshold=args.curve_within,
+        n_points=args.points,
     )
     print(format_plan(result), file=out)
     if args.json is not None:
@@ -200,9 +273,9 @@ def main(argv=None, out=None) -> int:
             print("Demo on invented data: the Kestrel survey and its stars are fictional.\n", file=out)
             _screen(survey, out)
             print("\nFull analysis of the closest pass:\n", file=out)
-            _run_star(read_star_file(demo_path("kestrel-4.toml")), args, out)
+            _run_star(_read_star(demo_path("kestrel-4.toml")), args, out)
         elif args.command == "run":
-            _run_star(read_star_file(args.star_file), args, out)
+            _run_star(_read_star(args.star_file), args, out)
         elif args.command == "screen":
             _screen(args.table, out)
         elif args.command == "plan":

@@ -65,7 +65,17 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
     from astropy.table import Table
 
     if not isinstance(table, Table):
-        table = Table.read(table)
+        try:
+            table = Table.read(table)
+        except FileNotFoundError:
+            raise InputError("table", str(table), "file not found") from None
+        except Exception as exc:  # astropy raises many types for unreadable files
+            raise InputError(
+                "table",
+                str(table),
+                f"could not be read as a table ({type(exc).__name__}: {exc}); "
+                "expected ECSV, FITS or VOTable with catalogue column names",
+            ) from None
     model = model or StraightLine()
     out = []
     for i, row in enumerate(table):

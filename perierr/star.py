@@ -223,7 +223,7 @@ class ObservedStar:
                 if not -1.0 <= c <= 1.0:
                     raise InputError(name, c, "expected a correlation coefficient in [-1, 1]", row)
                 corrs[name] = c
-        _warn_unit_slips(values, row)
+        notes.extend(_warn_unit_slips(values, row))
         cosd = math.cos(math.radians(dec))
         if values["ra_error"] > 0 and cosd < 1e-12:
             raise InputError(
@@ -310,6 +310,9 @@ def _as_dict(mapping) -> dict:
     for name in colnames:
         col = mapping.table[name] if hasattr(mapping, "table") else None
         value = mapping[name]
+        if _is_missing(value):  # masked (or NaN read back as masked): missing, never 0
+            out[name] = None
+            continue
         if col is not None and getattr(col, "unit", None) is not None and np.ndim(value) == 0:
             value = u.Quantity(value, col.unit)
         out[name] = value
@@ -327,6 +330,8 @@ def _is_missing(value) -> bool:
 def _to_float(name, value, row, unit="default") -> float:
     target = _UNITS.get(name) if unit == "default" else unit
     given = value
+    if isinstance(value, (bool, np.bool_)):
+        raise InputError(name, value, f"expected a number{' in ' + str(target) if target else ''}, not a boolean", row)
     try:
         if isinstance(value, str):
             value = u.Quantity(value) if target is not None else float(value)
@@ -369,21 +374,22 @@ def _check_psd(matrix, *, row=None, what="covariance matrix"):
         )
 
 
-def _warn_unit_slips(values, row):
+def _warn_unit_slips(values, row) -> list:
+    """Warn about likely unit slips; return the messages so reports can show them."""
     where = f"row {row}: " if row is not None else ""
+    messages = []
     plx, eplx = values["parallax"], values["parallax_error"]
     if 0 < abs(plx) < 1.0 and 0 < eplx < 1e-3:
-        warnings.warn(
+        messages.append(
             f"{where}parallax = {plx} with parallax_error = {eplx} looks like arcsec; "
-            "perierr reads bare numbers in mas (pass a Quantity to be explicit)",
-            PerierrWarning,
-            stacklevel=4,
+            "perierr reads bare numbers in mas (pass a Quantity to be explicit)"
         )
     for name in ("parallax", "pmra", "pmdec", "radial_velocity"):
         value, err = abs(values[name]), values[f"{name}_error"]
         if value > 0 and err > 100 * value and err > 1.0:
-            warnings.warn(
-                f"{where}{name}_error = {err} is over 100 times {name} = {values[name]}; check the units of both",
-                PerierrWarning,
-                stacklevel=4,
+            messages.append(
+                f"{where}{name}_error = {err} is over 100 times {name} = {values[name]}; check the units of both"
             )
+    for message in messages:
+        warnings.warn(message, PerierrWarning, stacklevel=4)
+    return messages

@@ -91,6 +91,7 @@ def test_published_worked_example_past_encounter():
     # System"): parallax 166 +/- 28 mas, proper motion (-40.3, -114.8) mas/yr, radial velocity
     # 82.4 +/- 0.3 km/s (inputs from memory); quoted perihelion 52 (+23, -14) kau at
     # 70 (+15, -10) kyr ago (from memory). Reproduce within the quoted precision (1 kau, 1-2 kyr).
+    # ra and dec below are placeholders: they do not enter the straight-line perihelion.
     star = ObservedStar.from_values(
         ra=110.0, dec=-8.8, parallax=166.0, parallax_error=28.0, pmra=-40.3, pmra_error=0.2,
         pmdec=-114.8, pmdec_error=0.2, radial_velocity=82.4, radial_velocity_error=0.3,

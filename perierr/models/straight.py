@@ -102,7 +102,8 @@ def perihelion_cartesian_jacobian(cartesian) -> np.ndarray:
 
     Uses that the separation vector at perihelion is perpendicular to v, so
     ``d d_ph / dx = u`` and ``d d_ph / dv = t_ph u`` with ``u`` the unit
-    separation vector. Undefined (NaN) for an exactly head-on encounter.
+    separation vector. For an exactly head-on encounter d_ph has no
+    derivative; its row is then zero.
     """
     xv = np.asarray(cartesian, dtype=float)
     x, v = xv[..., :3], xv[..., 3:]
@@ -113,6 +114,9 @@ def perihelion_cartesian_jacobian(cartesian) -> np.ndarray:
     dist = np.linalg.norm(closest, axis=-1)[..., None]
     with np.errstate(invalid="ignore", divide="ignore"):
         unit = closest / dist
+    # exactly head-on, |closest| is rounding noise and d_ph = |closest| has a kink, not a
+    # derivative: give the d_ph row zeros (callers warn that its linear sigma is undefined)
+    unit = np.where(dist > 1e-12 * np.linalg.norm(x, axis=-1)[..., None], unit, 0.0)
     jac = np.zeros(xv.shape[:-1] + (3, 6))
     jac[..., 0, :3] = -v / vv * _C
     jac[..., 0, 3:] = (-x / vv + 2.0 * xdv * v / vv**2) * _C

@@ -13,3 +13,14 @@ def require_positive_parallax(parallax: float, *, method: str) -> None:
             "(the star is not measured to be at any finite distance); "
             "use a distance prior instead (distance_prior=..., CLI --distance-prior)",
         )
+
+
+def require_motion(mean) -> None:
+    """Refuse a star with no measured motion relative to the Sun (no perihelion exists)."""
+    if mean[3] == 0 and mean[4] == 0 and mean[5] == 0:
+        raise InputError(
+            "radial_velocity",
+            float(mean[5]),
+            "with pmra = pmdec = 0 as well the star does not move relative to the Sun, so it has no "
+            "perihelion; check the input (a zero proper motion or radial velocity is usually a missing value)",
+        )

@@ -9,7 +9,7 @@ import numpy as np
 from .._constants import OBSERVABLES, OUTPUTS
 from ..models.base import ForwardModel
 from ..star import ObservedStar
-from .checks import require_positive_parallax
+from .checks import require_motion, require_positive_parallax
 
 __all__ = ["LinearResult", "linearize"]
 
@@ -73,6 +73,7 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     LinearResult
     """
     require_positive_parallax(star.mean[2], method="linearized propagation")
+    require_motion(star.mean)
     value = model.evaluate(star.mean[None, :], reference=star.mean).as_array()[0]
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     return LinearResult(value=value, jacobian=jac, cov=jac @ star.cov @ jac.T)

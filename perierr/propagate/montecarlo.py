@@ -21,7 +21,7 @@ from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
 from ..star import ObservedStar
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
-from .checks import require_positive_parallax
+from .checks import require_motion, require_positive_parallax
 
 __all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
 
@@ -95,6 +95,7 @@ class MonteCarloResult:
         out["thresholds"] = [t.to_dict() for t in self.thresholds]
         flags = self.perihelion.flags
         out["n_flagged"] = 0 if flags is None else int(np.count_nonzero(flags))
+        out["model_info"] = scalar_info(self.perihelion.info)
         if self.convergence:
             out["convergence"] = dict(self.convergence)
         return out
@@ -178,6 +179,9 @@ def monte_carlo(
     MonteCarloResult
     """
     require_positive_parallax(star.mean[2], method="Monte Carlo by parallax inversion")
+    require_motion(star.mean)
+    if target_error is not None and int(max_samples) < int(n):
+        raise ValueError(f"max_samples = {max_samples!r}: expected at least n = {n} (the first round's draws)")
     if int(n) < 100:
         raise ValueError(f"n = {n!r}: expected at least 100 samples")
     seed = resolve_seed(seed)
@@ -221,3 +225,22 @@ def monte_carlo(
         result.levels,
         convergence,
     )
+
+
+def scalar_info(info: dict) -> dict:
+    """The JSON-able scalar part of a model's diagnostics (arrays left out)."""
+    out = {}
+    for key, value in info.items():
+        if isinstance(value, dict):
+            inner = scalar_info(value)
+            if inner:
+                out[key] = inner
+        elif isinstance(value, (str, bool, int, float, np.integer, np.floating, np.bool_)) or value is None:
+            out[key] = value.item() if isinstance(value, np.generic) else value
+        elif (
+            isinstance(value, (list, tuple))
+            and len(value) <= 16
+            and all(isinstance(v, (str, int, float, np.integer, np.floating)) for v in value)
+        ):
+            out[key] = [v.item() if isinstance(v, np.generic) else v for v in value]
+    return out

@@ -72,6 +72,36 @@ def format_analysis(analysis) -> str:
         lines.append(_row(_LABEL[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
         if q == "distance_pc":
             lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
+    extra = [q for q in mc.levels if q not in (0.05, 0.16, 0.5, 0.84, 0.95)]
+    if extra:
+        lines.append("  other quantiles (MC error in brackets):")
+        for q in OUTPUTS:
+            s = mc.summaries[q]
+            err = 0.5 * (s.quantiles[0.84] - s.quantiles[0.16]) / 10
+            cells = ", ".join(
+                f"{100 * lv:g} %: {format_value(s.quantiles[lv], err)} ({s.quantile_se[lv]:.2g})" for lv in extra
+            )
+            lines.append(f"    {_LABEL[q]:<15}{cells}")
+    info = mc.perihelion.info
+    if info.get("method") and info.get("model") != "straight_line":
+        parts = [f"method {info['method']}"]
+        for key, label in (
+            ("n_reference_orbits", "reference orbits"),
+            ("fallback_samples", "draws integrated directly"),
+            ("map_error_au_max", "largest map error in the check [au]"),
+        ):
+            if key in info:
+                parts.append(f"{label} {info[key]:.3g}" if isinstance(info[key], float) else f"{label} {info[key]}")
+        if info.get("fallback_reason"):
+            parts.append(f"because {info['fallback_reason']}")
+        lines.append("  model: " + "; ".join(parts))
+    focus = info.get("focusing")
+    if isinstance(focus, dict) and "median_delta_distance_pc" in focus:
+        lines.append(
+            f"  gravitational focusing ({focus['mass_msun']:g} ± {focus['mass_error_msun']:g} M_sun) moved d_ph by "
+            f"{focus['median_delta_distance_pc'] * AU_PER_PC:+.3g} au and v_ph by "
+            f"{focus['median_delta_speed_kms']:+.3g} km/s (medians over the draws)"
+        )
     worst = mc.worst_relative_error()
     lines.append(
         f"  Monte Carlo: {mc.n:,} draws ({mc.samples.method}), seed {mc.samples.seed}; every quantile's "
@@ -117,12 +147,17 @@ def format_analysis(analysis) -> str:
         lines.append("")
         lines.extend(_prior_lines(a.prior))
     cal = getattr(a, "calibration", None)
-    if cal and (cal["parallax_zero_point"]["value_mas"] or cal["parallax_zero_point"]["error_mas"]
-                or any(f != 1 for f in cal["error_inflation"].values())):
+    if cal and (
+        cal["parallax_zero_point"]["value_mas"]
+        or cal["parallax_zero_point"]["error_mas"]
+        or any(f != 1 for f in cal["error_inflation"].values())
+    ):
         z = cal["parallax_zero_point"]
         lines.append("")
-        lines.append(f"Calibration: parallax zero-point {z['value_mas']:+.4g} ± {z['error_mas']:.2g} mas "
-                     "(corrected = catalogue − zero-point)")
+        lines.append(
+            f"Calibration: parallax zero-point {z['value_mas']:+.4g} ± {z['error_mas']:.2g} mas "
+            "(corrected = catalogue − zero-point)"
+        )
         inflated = {k: f for k, f in cal["error_inflation"].items() if f != 1}
         if inflated:
             lines.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in inflated.items()))
@@ -141,20 +176,24 @@ def format_analysis(analysis) -> str:
 
 def _prior_lines(prior: dict) -> list:
     """The distance-prior section: what was assumed and how far to trust the sampling."""
-    params = ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}"
-                       for k, v in prior.get("parameters", {}).items())
+    params = ", ".join(
+        f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in prior.get("parameters", {}).items()
+    )
     method = prior.get("method")
-    out = [f"Distance prior: {prior['name']}" + (f" ({params})" if params else "")
-           + f"; posterior by {method}"]
+    out = [f"Distance prior: {prior['name']}" + (f" ({params})" if params else "") + f"; posterior by {method}"]
     ess = prior.get("effective_size")
     if method == "reweight" and ess is not None:
-        out.append(f"  importance weights: effective sample size {ess:,.0f} of {prior.get('n_drawn', 0):,} draws "
-                   f"(largest weight {prior.get('max_weight', 0):.2g})")
+        out.append(
+            f"  importance weights: effective sample size {ess:,.0f} of {prior.get('n_drawn', 0):,} draws "
+            f"(largest weight {prior.get('max_weight', 0):.2g})"
+        )
     elif method == "mcmc":
         tau = prior.get("autocorrelation_time", {})
         acc = prior.get("acceptance_fraction", 0.0)
-        out.append(f"  emcee: {prior.get('n_walkers')} walkers × {prior.get('n_steps')} steps, burn-in "
-                   f"{prior.get('burn_in')}, thin {prior.get('thin')}, acceptance {acc:.2f}")
+        out.append(
+            f"  emcee: {prior.get('n_walkers')} walkers × {prior.get('n_steps')} steps, burn-in "
+            f"{prior.get('burn_in')}, thin {prior.get('thin')}, acceptance {acc:.2f}"
+        )
         if tau:
             out.append(f"  autocorrelation time ≤ {max(tau.values()):.1f} steps; effective sample size {ess:,.0f}")
         if prior.get("switched_to_mcmc"):
