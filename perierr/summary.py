@@ -94,14 +94,14 @@ def _binned_weighted_quantiles(x, probs, w) -> np.ndarray:
     n_eff = csw[-1] ** 2 / np.dot(sw, sw)
     probs = np.asarray(probs, dtype=float)
     margin = 4.5 * np.sqrt(np.maximum(probs * (1 - probs), 1.0 / n_eff) / n_eff) + 2.0 / sx.size
-    # brackets in x, sorted; overlapping or touching ones merged (a handful, not samples)
-    idx = np.argsort(probs)
-    lo_x = np.interp(probs - margin, scdf, sx, left=-np.inf)
-    hi_x = np.interp(probs + margin, scdf, sx, right=np.inf)
+    # brackets in x, sorted by their lower end; overlapping or touching ones are merged, so
+    # the merged brackets are disjoint (a handful of probabilities, not samples)
+    lo_x = np.interp(probs - margin, scdf, sx)
+    hi_x = np.interp(probs + margin, scdf, sx)
     lo_x[probs - margin <= scdf[0]] = -np.inf
     hi_x[probs + margin >= scdf[-1]] = np.inf
     groups = []  # [lo, hi, member indices]
-    for k in idx:
+    for k in np.argsort(lo_x, kind="stable"):
         if groups and lo_x[k] <= groups[-1][1]:
             groups[-1][1] = max(groups[-1][1], hi_x[k])
             groups[-1][2].append(k)
@@ -110,14 +110,14 @@ def _binned_weighted_quantiles(x, probs, w) -> np.ndarray:
     # region code, counted from the top so that NaN (sorted last) lands above every bracket:
     # 2G below the first bracket, 2G - 1 - 2g inside bracket g, even codes between brackets
     big = 2 * len(groups)
-    code = np.zeros(x.size, dtype=np.uint8)
+    code = np.zeros(x.size, dtype=np.uint8 if big < 256 else np.uint16)
     tmp = np.empty(x.size, dtype=bool)
     for lo, hi, _ in groups:
         code += np.less(x, lo, out=tmp).view(np.uint8)
         code += np.less_equal(x, hi, out=tmp).view(np.uint8)
     region_w = np.bincount(code, weights=w, minlength=big + 1)
     total = region_w.sum()
-    at = np.flatnonzero(np.bitwise_and(code, 1, out=tmp.view(np.uint8)))  # in original order
+    at = np.flatnonzero(code & 1)  # odd codes: inside a bracket; in the original order
     xi, wi = _stable_sorted(x[at], w[at])  # stable, so equal to a full stable sort within brackets
     below = 0.0
     out = np.empty(probs.size)
