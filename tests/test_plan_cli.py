@@ -41,7 +41,7 @@ def test_plan_command_what_if_json_side_by_side(tmp_path):
 
 def test_plan_command_goal_form_reports_precision_or_floor(tmp_path):
     path = tmp_path / "goal.json"
-    argv = ["plan", DEMO, "--goal-width", "d_ph=1700 au", "--goal-sigma", "d_ph=1e-4",
+    argv = ["plan", DEMO, "--goal-width", "d_ph=1700 au", "--goal-sigma", "d_ph=1e-4 pc",
             "--solve-for", "radial_velocity", "--no-curves", "--no-budget", "--samples", "5000",
             "--seed", "1", "--json", str(path)]
     assert main(argv, out=io.StringIO()) == 0

@@ -13,8 +13,14 @@ from ..thresholds import parse_thresholds
 
 __all__ = ["Goal", "decide_goal", "output_name", "parse_goal", "spread_goal"]
 
-_OUTPUT_ALIASES = {"t_ph": "time_myr", "d_ph": "distance_pc", "v_ph": "speed_kms", "time": "time_myr",
-                   "distance": "distance_pc", "speed": "speed_kms"}
+_OUTPUT_ALIASES = {
+    "t_ph": "time_myr",
+    "d_ph": "distance_pc",
+    "v_ph": "speed_kms",
+    "time": "time_myr",
+    "distance": "distance_pc",
+    "speed": "speed_kms",
+}
 _OUTPUT_UNITS = {"time_myr": u.Myr, "distance_pc": u.pc, "speed_kms": u.km / u.s}
 KINDS = ("width90", "sigma", "decide")
 
@@ -106,7 +112,7 @@ def _to_output_units(output: str, value) -> float:
     try:
         if isinstance(value, str):
             q = u.Quantity(value.strip())
-            out = float(q.value) if q.unit == u.dimensionless_unscaled else float(q.to_value(unit))
+            out = None if q.unit == u.dimensionless_unscaled else float(q.to_value(unit))
         elif isinstance(value, u.Quantity):
             out = float(value.to_value(unit))
         else:
@@ -115,6 +121,8 @@ def _to_output_units(output: str, value) -> float:
         raise InputError(
             f"{output} target", value, f"expected a number in {unit} or a quantity such as '2000 au'"
         ) from None
+    if out is None:  # text without a unit: never guess a bare number's unit
+        raise InputError(f"{output} target", value, f"expected a value with its unit, e.g. '2000 au' or '0.01 {unit}'")
     if not (np.isfinite(out) and out > 0):
         raise InputError(f"{output} target", value, "expected a positive target")
     return out
