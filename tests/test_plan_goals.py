@@ -197,3 +197,16 @@ def test_text_goal_without_unit_is_refused():
 
     with pytest.raises(InputError, match=r"distance_pc target = '1700': expected a value with its unit"):
         parse_goal("width90", "d_ph=1700")
+
+
+def test_decisive_goal_at_its_boundary_says_it_is_a_close_call():
+    # P(d_ph < 20,000 au) of the demo star is ~0.953: within 2 binomial errors of 1 - alpha = 0.95
+    # at n = 20,000 (error sqrt(p(1-p)/n) ~ 0.0015), so "already met" must carry the caveat.
+    from perierr import StraightLine, read_star_file
+    from perierr.demo import demo_path
+    from perierr.plan import decide_goal, required_precision
+
+    star = read_star_file(demo_path("kestrel-4.toml"))
+    r = required_precision(star, StraightLine(), "radial_velocity", decide_goal("20000 au", 0.05), n=20_000, seed=1)
+    assert r.status == "already_met" and abs(r.current - 0.953) < 0.005
+    assert "within 2 Monte Carlo errors" in r.message

@@ -80,10 +80,16 @@ class RequiredPrecision:
     def to_dict(self) -> dict:
         """Plain dict for JSON (``required_precision`` or the reason it cannot be reached)."""
         return {
-            "input": self.input, "goal": self.goal.to_dict(), "status": self.status,
-            "required_precision": self.precision, "unit": self.unit,
-            "current_sigma": self.current_sigma, "current_value": self.current,
-            "floor_value": self.floor, "achieved_value": self.achieved, "message": self.message,
+            "input": self.input,
+            "goal": self.goal.to_dict(),
+            "status": self.status,
+            "required_precision": self.precision,
+            "unit": self.unit,
+            "current_sigma": self.current_sigma,
+            "current_value": self.current,
+            "floor_value": self.floor,
+            "achieved_value": self.achieved,
+            "message": self.message,
             "mc_error_today": self.mc_error(self.current),
             "settings": dict(self.settings),
         }
@@ -139,12 +145,19 @@ def required_precision(
     def result(status, precision, achieved, message):
         return RequiredPrecision(name, goal, status, precision, unit, sig_cat, now, floor, achieved, message, settings)
 
+    close = ""
+    if goal.kind == "decide":
+        err = float(np.sqrt(now * (1.0 - now) / draws.n))
+        if min(abs(now - goal.alpha), abs(now - (1.0 - goal.alpha))) < 2.0 * err:
+            close = f" — within 2 Monte Carlo errors ({err:.2g}) of the goal's boundary: rerun with more samples"
     if goal.met(now):
-        return result("already_met", None, now, f"already met today ({goal.format(now)})")
+        return result("already_met", None, now, f"already met today ({goal.format(now)}){close}")
     if not goal.met(floor):
         why = "it is held exact already" if sigma == 0 else "the other inputs set a floor"
         return result(
-            "unreachable", None, None,
+            "unreachable",
+            None,
+            None,
             f"cannot be reached by measuring {name} alone: even an exact {name} leaves "
             f"{goal.format(floor)} against the goal {goal.describe()} ({why}); "
             "improve another input as well",
@@ -179,7 +192,9 @@ def required_precision(
         precision *= 1.0 - 1e-9
         back = float(evaluate([_to_internal(name, precision, dec)])[0])
     return result(
-        "reachable", precision, back,
+        "reachable",
+        precision,
+        back,
         f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}); "
         f"there {goal.format(back)} (floor with an exact {name}: {goal.format(floor)})",
     )
