@@ -117,7 +117,10 @@ def _binned_weighted_quantiles(x, probs, w) -> np.ndarray:
         code += np.less_equal(x, hi, out=tmp).view(np.uint8)
     region_w = np.bincount(code, weights=w, minlength=big + 1)
     total = region_w.sum()
-    at = np.flatnonzero(code & 1)  # odd codes: inside a bracket; in the original order
+    # odd codes: inside a bracket; indices in the original order (flatnonzero of a bool view
+    # is ~4x faster than of the uint8 codes, and the gathers ~5x faster than boolean indexing)
+    odd = code & 1
+    at = np.flatnonzero(odd.view(bool) if odd.dtype == np.uint8 else odd)
     xi, wi = _stable_sorted(x[at], w[at])  # stable, so equal to a full stable sort within brackets
     below = 0.0
     out = np.empty(probs.size)
