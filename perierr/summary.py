@@ -329,8 +329,9 @@ def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> 
         p = count / n_eff
     else:
         w = np.asarray(weights, dtype=float)
-        p = min(1.0, float(np.dot(below, w) / w.sum()))  # dot vs sum rounding can exceed 1 by 1 ulp
-        n_eff = float(w.sum() ** 2 / np.dot(w, w))
+        wsum = w.sum()
+        p = min(1.0, float(np.dot(below, w) / wsum))  # dot vs sum rounding can exceed 1 by 1 ulp
+        n_eff = float(wsum**2 / np.dot(w, w))
     se = math.sqrt(p * (1 - p) / n_eff)
     upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
     lower = 0.05 ** (1.0 / n_eff) if count == d.size else max(0.0, p - 2 * se)

@@ -151,3 +151,19 @@ def test_misleading_pilot_falls_back_to_the_full_sort(monkeypatch):
     got = _binned_weighted_quantiles(x, PROBS, w)
     assert n in sizes  # the full sort ran
     assert_allclose(got, sorted_definition(x, PROBS, w), rtol=0, atol=1e-9 * np.ptp(x))
+
+
+def test_weighted_threshold_probability_and_binomial_error():
+    # P(d < D) is the weight fraction below D; its error the binomial sqrt(p (1 - p) / n_eff)
+    # with the Kish size (Kish 1965, Survey Sampling, Sect. 11.7), checked against numpy sums.
+    from perierr.summary import threshold_probability
+
+    rng = np.random.default_rng(17)
+    d = rng.lognormal(1.0, 1.0, 200_000)
+    w = rng.exponential(size=d.size)
+    t = threshold_probability(d, 1.5, label="1.5 pc", weights=w)
+    p = w[d < 1.5].sum() / w.sum()
+    n_eff = w.sum() ** 2 / np.sum(w * w)
+    assert t.probability == pytest.approx(p, rel=1e-12)
+    assert t.se == pytest.approx(np.sqrt(p * (1 - p) / n_eff), rel=1e-10)
+    assert t.count == int(np.count_nonzero(d < 1.5))
