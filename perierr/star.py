@@ -29,6 +29,7 @@ import numpy as np
 import tomllib
 
 from ._constants import MAS_PER_DEG, OBSERVABLES
+from ._quantity import to_number
 from .errors import InputError, PerierrWarning
 
 __all__ = ["ObservedStar", "read_star_file", "read_catalogue"]
@@ -329,27 +330,7 @@ def _is_missing(value) -> bool:
 
 def _to_float(name, value, row, unit="default") -> float:
     target = _UNITS.get(name) if unit == "default" else unit
-    given = value
-    if isinstance(value, (bool, np.bool_)):
-        raise InputError(name, value, f"expected a number{' in ' + str(target) if target else ''}, not a boolean", row)
-    try:
-        if isinstance(value, str):
-            value = u.Quantity(value) if target is not None else float(value)
-        if isinstance(value, u.Quantity):
-            if target is None:
-                value = value.to_value(u.dimensionless_unscaled)
-            else:
-                value = value.to_value(target)
-        out = float(value)
-    except u.UnitConversionError:
-        raise InputError(
-            name, given if isinstance(given, str) else str(given), f"expected a quantity convertible to {target}", row
-        ) from None
-    except (TypeError, ValueError):
-        raise InputError(name, value, f"expected a number{' in ' + str(target) if target else ''}", row) from None
-    if not math.isfinite(out):
-        raise InputError(name, out, "expected a finite number", row)
-    return out
+    return to_number(name, value, target, row=row)
 
 
 def _split_corr(name: str) -> tuple:

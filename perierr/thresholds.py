@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import astropy.units as u
 
+from ._quantity import to_number
 from .errors import InputError
 
 __all__ = ["DEFAULT_THRESHOLDS", "parse_thresholds"]
@@ -22,22 +23,16 @@ def parse_thresholds(values) -> list:
     """
     out = []
     for item in values:
-        try:
-            if isinstance(item, str):
-                q = u.Quantity(item.strip())
-                if q.unit == u.dimensionless_unscaled:
-                    raise InputError("threshold", item, "expected a length with its unit, e.g. '0.5 pc' or '20000 au'")
-            elif isinstance(item, u.Quantity):
-                q = item
-            else:
-                q = float(item) * u.pc
-            pc = float(q.to_value(u.pc))
-        except (u.UnitsError, TypeError, ValueError) as exc:
-            if isinstance(exc, InputError):
-                raise
-            raise InputError("threshold", item, "expected a length such as '0.5 pc' or '20000 au'") from None
+        if isinstance(item, str):
+            item = item.strip()
+        pc = to_number("threshold", item, u.pc, example="0.5 pc")
         if not pc > 0:
             raise InputError("threshold", item, "expected a positive distance")
-        label = item.strip() if isinstance(item, str) else f"{q.value:g} {q.unit}"
+        if isinstance(item, str):
+            label = item
+        elif isinstance(item, u.Quantity):
+            label = f"{item.value:g} {item.unit}"
+        else:
+            label = f"{float(item):g} pc"
         out.append((label, pc))
     return out

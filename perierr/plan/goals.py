@@ -8,6 +8,7 @@ import astropy.units as u
 import numpy as np
 
 from .._constants import AU_PER_PC, OUTPUTS
+from .._quantity import to_number
 from ..errors import InputError
 from ..thresholds import parse_thresholds
 
@@ -109,21 +110,8 @@ class Goal:
 
 def _to_output_units(output: str, value) -> float:
     unit = _OUTPUT_UNITS[output]
-    try:
-        if isinstance(value, str):
-            q = u.Quantity(value.strip())
-            out = None if q.unit == u.dimensionless_unscaled else float(q.to_value(unit))
-        elif isinstance(value, u.Quantity):
-            out = float(value.to_value(unit))
-        else:
-            out = float(value)
-    except (u.UnitsError, TypeError, ValueError):
-        raise InputError(
-            f"{output} target", value, f"expected a number in {unit} or a quantity such as '2000 au'"
-        ) from None
-    if out is None:  # text without a unit: never guess a bare number's unit
-        raise InputError(f"{output} target", value, f"expected a value with its unit, e.g. '2000 au' or '0.01 {unit}'")
-    if not (np.isfinite(out) and out > 0):
+    out = to_number(f"{output} target", value, unit, example="2000 au" if output == "distance_pc" else None)
+    if not out > 0:
         raise InputError(f"{output} target", value, "expected a positive target")
     return out
 

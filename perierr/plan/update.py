@@ -29,11 +29,17 @@ import astropy.units as u
 import numpy as np
 
 from .._constants import MAS_PER_DEG, OBSERVABLES
+from .._quantity import to_number
 from ..errors import InputError
 from ..star import ObservedStar
 
 __all__ = [
-    "Measurement", "input_name", "make_measurement", "parse_measure", "to_catalogue", "update_covariance",
+    "Measurement",
+    "input_name",
+    "make_measurement",
+    "parse_measure",
+    "to_catalogue",
+    "update_covariance",
     "updated_star",
 ]
 
@@ -49,7 +55,12 @@ PRECISION_UNITS = {
 
 #: Plain-text unit labels for reports.
 UNIT_LABELS = {
-    "ra": "mas", "dec": "mas", "parallax": "mas", "pmra": "mas/yr", "pmdec": "mas/yr", "radial_velocity": "km/s",
+    "ra": "mas",
+    "dec": "mas",
+    "parallax": "mas",
+    "pmra": "mas/yr",
+    "pmdec": "mas/yr",
+    "radial_velocity": "km/s",
 }
 
 _ALIASES = {"rv": "radial_velocity", "plx": "parallax", "vr": "radial_velocity"}
@@ -113,18 +124,8 @@ def make_measurement(name: str, precision, *, dec: float = 0.0) -> Measurement:
     """
     key = input_name(name)
     unit = PRECISION_UNITS[key]
-    try:
-        if isinstance(precision, str):
-            q = u.Quantity(precision.strip())
-            value = float(q.value) if q.unit == u.dimensionless_unscaled else float(q.to_value(unit))
-        elif isinstance(precision, u.Quantity):
-            value = float(precision.to_value(unit))
-        else:
-            value = float(precision)
-    except (u.UnitsError, TypeError, ValueError):
-        raise InputError(
-            f"{key} precision", precision, f"expected a number in {unit} or a quantity such as '0.1 {unit}'"
-        ) from None
+    # a bare number, also as text (``--measure radial_velocity=0.1``), is in the catalogue unit
+    value = to_number(f"{key} precision", precision, unit, text_needs_unit=False, example=f"0.1 {unit}")
     if not (math.isfinite(value) and value >= 0):
         raise InputError(f"{key} precision", value, f"expected a standard error >= 0 in {unit} (0 = exact)")
     internal = value
@@ -193,6 +194,12 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
         cov = update_covariance(cov, m.index, m.precision)
     note = "what-if: " + ", ".join(m.label for m in measurements)
     return ObservedStar(
-        np.array(star.mean), cov, name=star.name, source_id=star.source_id, ref_epoch=star.ref_epoch,
-        mass=star.mass, mass_error=star.mass_error, notes=tuple(star.notes) + (note,),
+        np.array(star.mean),
+        cov,
+        name=star.name,
+        source_id=star.source_id,
+        ref_epoch=star.ref_epoch,
+        mass=star.mass,
+        mass_error=star.mass_error,
+        notes=tuple(star.notes) + (note,),
     )
