@@ -39,7 +39,6 @@ def to_number(field: str, value, unit, *, row=None, text_needs_unit: bool = True
     """
     where = f" in {unit}" if unit is not None else ""
     hint = f" or a quantity such as {example!r}" if example else ""
-    such = f", such as {example!r}" if example else ""
     if isinstance(value, (bool, np.bool_)):
         raise InputError(field, value, f"expected a number{where}, not a boolean", row)
     given = value
@@ -61,7 +60,7 @@ def to_number(field: str, value, unit, *, row=None, text_needs_unit: bool = True
         raise InputError(
             field,
             given if isinstance(given, str) else str(given),
-            f"expected a quantity convertible to {unit}{such}",
+            f"expected a quantity convertible to {unit} (a number in {unit}{hint})",
             row,
         ) from None
     except (TypeError, ValueError) as exc:
