@@ -36,12 +36,28 @@ ORBIT_OPTIONS = (
 _METHODS = ("auto", "map", "direct")
 #: The reference orbits and checks use fixed-step RK4 with steps halved while its
 #: estimated position error exceeds this fraction of ``map_tolerance_au``.
-_RK4_ERROR_FRACTION = 0.1
+_RK4_ERROR_FRACTION = 0.3
 
 
 def _rownorm(a):
     """Euclidean norm of each row of a 2-d array (faster than numpy.linalg.norm)."""
     return np.sqrt(np.einsum("ij,ij->i", a, a))
+
+
+def _map_span(t_lin, nodes):
+    """Grid nodes the map needs: the straight-line times, widened, and now.
+
+    Returns the nodes and whether the span was cut below and above the window
+    (perihelia found at a cut edge are integrated directly). The widening is
+    a quarter of the range plus a tenth of the largest time, out to the next
+    node on each side.
+    """
+    lo_t, hi_t = float(np.min(t_lin)), float(np.max(t_lin))
+    pad = 0.25 * (hi_t - lo_t) + 0.1 * max(abs(lo_t), abs(hi_t))
+    m = len(nodes)
+    i0 = max(0, int(np.searchsorted(nodes, min(0.0, lo_t - pad), side="right")) - 1)
+    i1 = min(m, int(np.searchsorted(nodes, max(0.0, hi_t + pad))) + 1)
+    return nodes[i0:i1], i0 > 0, i1 < m
 
 
 class OrbitOptionError(ValueError):
@@ -111,7 +127,7 @@ class OrbitModel(ForwardModel):
         with galpy at rtol 1e-12 to 0.001 au for stars within 50 pc; the
         results hardly change between 1e-9 and 1e-12. The map's reference
         orbits and check samples use fixed-step RK4 on the grid instead (its
-        estimated error, below a tenth of ``map_tolerance_au``, is added to the
+        estimated error, at most 0.3 ``map_tolerance_au``, is added to the
         predicted map error; :mod:`~perierr.models.orbit.fixed_step`).
     chunk_size : int, default 20000
         Samples per direct-integration call (bounds memory; smaller for long
@@ -288,6 +304,9 @@ class OrbitModel(ForwardModel):
                 rows_b = rows_b[top]
             picks.append(rows_b)
         check = np.concatenate(picks)
+        # the map is tabulated only over the grid span the perihelia need
+        full_nodes = nodes
+        nodes, cut_lo, cut_hi = _map_span(t_lin, full_nodes)
         # reference orbits with variational equations and the check samples, one call
         tables = variational_tables(
             self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol,
@@ -316,9 +335,13 @@ class OrbitModel(ForwardModel):
             return est[k, rows], eder[k, rows], est[k + 1, rows], eder[k + 1, rows]
 
         tc, sc, oc, cc = newton_perihelion(nodes, check_values, grid_minimum_start(nodes, est))
-        err_au = np.abs(np.linalg.norm(sc[:, :3], axis=1) - np.linalg.norm(state[check, :3], axis=1))
-        err_au *= AU_PER_PC
+        # perihelia at a cut edge of the span lie beyond it: integrated directly below
+        beyond = outside & (((t == nodes[0]) & cut_lo) | ((t == nodes[-1]) & cut_hi))
+        beyond_c = oc & (((tc == nodes[0]) & cut_lo) | ((tc == nodes[-1]) & cut_hi))
+        err_au = np.abs(_rownorm(sc[:, :3]) - _rownorm(state[check, :3])) * AU_PER_PC
         err_t = np.abs(tc - t[check]) * _C
+        err_au[beyond_c | beyond[check]] = 0.0
+        err_t[beyond_c | beyond[check]] = 0.0
         # the second-order map's error grows as the cube of the offset: bound it
         # per reference orbit by c * score^3 with c the largest ratio on the checks
         coef = np.zeros(kref)
@@ -338,10 +361,15 @@ class OrbitModel(ForwardModel):
         }
         # checked samples keep their direct result
         t[check], state[check], outside[check], conv[check] = tc, sc, oc, cc
+        beyond[check] = beyond_c
         redo = ~conv
         if self.method == "auto":
             redo |= predicted > self.map_tolerance_au
             redo[check] = False
+        redo |= beyond
+        nodes = full_nodes
+        diag["map_span_myr"] = [float(tables.nodes[0] * _C), float(tables.nodes[-1] * _C)]
+        diag["beyond_span_samples"] = int(beyond.sum())
         n_redo = int(redo.sum())
         diag["fallback_samples"] = n_redo
         if n_redo:
@@ -349,7 +377,8 @@ class OrbitModel(ForwardModel):
             t[rows], state[rows], outside[rows], conv[rows] = self._direct(rel[rows], nodes)
             diag["fallback_reason"] = (
                 f"{n_redo} of {rel_all.shape[0]} samples integrated directly: predicted map "
-                f"error above {self.map_tolerance_au} au (or Newton not converged)"
+                f"error above {self.map_tolerance_au} au, perihelion beyond the map's grid "
+                "span, or Newton not converged"
             )
         n_sparse = int(sparse.sum())
         diag["sparse_bin_samples"] = n_sparse

@@ -158,10 +158,10 @@ class MapTables:
             if groups.size <= 8:
                 # the largest group for every row, then the few others by mask
                 main = int(np.argmax(counts))
-                out = cubics[main] @ f
+                out = _product(cubics[main], f)
                 for g in groups[groups != main]:
                     idx = np.flatnonzero(key == g)
-                    out[:, idx] = cubics[g] @ f[:, idx]
+                    out[:, idx] = _product(cubics[g], f[:, idx])
                 return out
             order = np.argsort(key, kind="stable")
             sk = key[order]
@@ -169,12 +169,29 @@ class MapTables:
             fs = np.ascontiguousarray(f[:, order])  # one gather, groups contiguous
             res = np.empty((24, rows.size))
             for lo, hi in zip(np.r_[0, cuts], np.r_[cuts, rows.size], strict=True):
-                res[:, lo:hi] = cubics[sk[lo]] @ fs[:, lo:hi]
+                res[:, lo:hi] = _product(cubics[sk[lo]], fs[:, lo:hi])
             out = np.empty_like(res)
             out[:, order] = res  # one scatter
             return out
 
         return cubic
+
+
+#: Columns per matrix product: small enough (24 x 28 x 384 multiply-adds) that
+#: OpenBLAS runs it on the calling thread; its thread start-up costs
+#: milliseconds when the other cores are busy.
+_BLOCK = 384
+
+
+def _product(a, f):
+    """``a @ f`` for a (24, 28) matrix and (28, n) features, in column blocks."""
+    n = f.shape[1]
+    if n <= _BLOCK:
+        return a @ f
+    out = np.empty((a.shape[0], n))
+    for lo in range(0, n, _BLOCK):  # loop over blocks of samples, each vectorized
+        np.matmul(a, f[:, lo : lo + _BLOCK], out=out[:, lo : lo + _BLOCK])
+    return out
 
 
 def variational_tables(
