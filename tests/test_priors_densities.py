@@ -239,4 +239,8 @@ def test_reweighting_ignores_prior_normalization(scale, seed):
     b = log_weights(plx, CustomPrior(lambda r: scale * np.exp(-r / 900.0)))
     fin = np.isfinite(a)
     np.testing.assert_array_equal(fin, np.isfinite(b))
-    np.testing.assert_allclose(b[fin] - a[fin], np.log(scale), rtol=1e-9, atol=1e-9)
+    # compare where the user's density is a normal float: a subnormal exp(-r/900) (tiny parallax,
+    # huge r) has lost its relative precision before perierr sees it
+    with np.errstate(divide="ignore", invalid="ignore"):
+        normal = fin & (np.exp(-1000.0 / np.where(plx > 0, plx, 1.0) / 900.0) > np.finfo(float).tiny * 1e3)
+    np.testing.assert_allclose(b[normal] - a[normal], np.log(scale), rtol=1e-9, atol=1e-9)
