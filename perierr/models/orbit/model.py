@@ -19,6 +19,7 @@ from ..._constants import AU_PER_PC
 from ..._constants import MYR_PER_PC_PER_KMS as _C
 from ...frames import cartesian_jacobian, observables_to_cartesian
 from ..base import ForwardModel, Perihelion
+from .grid import distance_bins, map_span, rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
@@ -37,27 +38,7 @@ _METHODS = ("auto", "map", "direct")
 #: The reference orbits and checks use fixed-step RK4 with steps halved while its
 #: estimated position error exceeds this fraction of ``map_tolerance_au``.
 _RK4_ERROR_FRACTION = 0.3
-
-
-def _rownorm(a):
-    """Euclidean norm of each row of a 2-d array (faster than numpy.linalg.norm)."""
-    return np.sqrt(np.einsum("ij,ij->i", a, a))
-
-
-def _map_span(t_lin, nodes):
-    """Grid nodes the map needs: the straight-line times, widened, and now.
-
-    Returns the nodes and whether the span was cut below and above the window
-    (perihelia found at a cut edge are integrated directly). The widening is
-    a quarter of the range plus a tenth of the largest time, out to the next
-    node on each side.
-    """
-    lo_t, hi_t = float(np.min(t_lin)), float(np.max(t_lin))
-    pad = 0.25 * (hi_t - lo_t) + 0.1 * max(abs(lo_t), abs(hi_t))
-    m = len(nodes)
-    i0 = max(0, int(np.searchsorted(nodes, min(0.0, lo_t - pad), side="right")) - 1)
-    i1 = min(m, int(np.searchsorted(nodes, max(0.0, hi_t + pad))) + 1)
-    return nodes[i0:i1], i0 > 0, i1 < m
+_map_span = map_span  # module attribute, so that tests can narrow the span
 
 
 class OrbitOptionError(ValueError):
@@ -226,24 +207,10 @@ class OrbitModel(ForwardModel):
 
     def _grid(self, t_lin, speed):
         """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times and speeds."""
-        if self.horizon_myr is None:
-            tl = t_lin * _C
-            cap = self.max_horizon_myr
-            t_min, t_max = float(np.min(tl)), float(np.max(tl))
-            pad = 0.5 * (t_max - t_min) + 0.3
-            lo = max(-cap, min(0.0, t_min - pad - 0.25 * abs(t_min)))
-            hi = min(cap, max(0.0, t_max + pad + 0.25 * abs(t_max)))
-        else:
-            lo, hi = self.horizon_myr
-        step = min(self.grid_step_myr, self.grid_travel_pc / max(float(speed), 1e-3) * _C)
-        parts = [np.zeros(1)]
-        if lo < 0:
-            n = math.ceil(-lo / step)
-            parts.insert(0, np.linspace(lo, 0.0, n + 1)[:-1])
-        if hi > 0:
-            n = math.ceil(hi / step)
-            parts.append(np.linspace(0.0, hi, n + 1)[1:])
-        return (lo, hi), np.concatenate(parts) / _C
+        return window_and_nodes(
+            t_lin, speed, horizon_myr=self.horizon_myr, max_horizon_myr=self.max_horizon_myr,
+            grid_step_myr=self.grid_step_myr, grid_travel_pc=self.grid_travel_pc,
+        )  # fmt: skip
 
     # ---------------------------------------------------------------- solvers
     def _direct(self, rel, nodes):
@@ -268,32 +235,17 @@ class OrbitModel(ForwardModel):
             t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, values, t0)
         return t, state, outside, conv
 
-    def _bins(self, rel, ref_rel):
-        """Distance bins: reference index per mapped row, reference states, sparse rows."""
-        dist = _rownorm(rel[:, :3])
-        dref = np.linalg.norm(ref_rel[:3])
-        labels = np.rint((dist - dref) / self.bin_width_pc).astype(np.int64)
-        uniq, inv, counts = np.unique(labels, return_inverse=True, return_counts=True)
-        keep = (counts >= self.min_bin_samples) | (uniq == 0)
-        sparse = ~keep[inv]
-        new_index = np.cumsum(keep) - 1
-        bidx = new_index[inv]
-        nk = int(keep.sum())
-        bk, rk = bidx[~sparse], rel[~sparse]
-        sums = np.stack([np.bincount(bk, weights=rk[:, j], minlength=nk) for j in range(6)], 1)
-        refs = sums / np.maximum(np.bincount(bk, minlength=nk), 1)[:, None]
-        refs[uniq[keep] == 0] = ref_rel
-        return np.where(sparse, 0, bidx), refs, sparse
-
     def _map(self, rel_all, ref_rel, nodes, t_lin_all):
-        bidx, refs, sparse = self._bins(rel_all, ref_rel)
+        bidx, refs, sparse = distance_bins(
+            rel_all, ref_rel, bin_width_pc=self.bin_width_pc, min_bin_samples=self.min_bin_samples
+        )
         mapped = np.flatnonzero(~sparse)
         rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
         kref = refs.shape[0]
         delta = rel - refs[bidx]
         # the samples that check the map: farthest from their reference orbit,
         # by position offset plus velocity offset times the time to perihelion
-        score = _rownorm(delta[:, :3]) + _rownorm(delta[:, 3:]) * (
+        score = rownorm(delta[:, :3]) + rownorm(delta[:, 3:]) * (
             np.abs(t_lin) + 1.0
         )
         picks = []
@@ -338,7 +290,7 @@ class OrbitModel(ForwardModel):
         # perihelia at a cut edge of the span lie beyond it: integrated directly below
         beyond = outside & (((t == nodes[0]) & cut_lo) | ((t == nodes[-1]) & cut_hi))
         beyond_c = oc & (((tc == nodes[0]) & cut_lo) | ((tc == nodes[-1]) & cut_hi))
-        err_au = np.abs(_rownorm(sc[:, :3]) - _rownorm(state[check, :3])) * AU_PER_PC
+        err_au = np.abs(rownorm(sc[:, :3]) - rownorm(state[check, :3])) * AU_PER_PC
         err_t = np.abs(tc - t[check]) * _C
         err_au[beyond_c | beyond[check]] = 0.0
         err_t[beyond_c | beyond[check]] = 0.0
@@ -438,11 +390,11 @@ class OrbitModel(ForwardModel):
         info["n_not_converged"] = int((~conv).sum())
         flags = outside | ~conv
         ph = Perihelion(
-            t * _C, _rownorm(x), _rownorm(w), flags=flags, info=info
+            t * _C, rownorm(x), rownorm(w), flags=flags, info=info
         )
         # the straight-line answer of the same rows, so that reports can show the
         # model difference (orbit minus straight line)
-        sl_d = _rownorm(rel[:, :3] + v * t_lin[:, None])
+        sl_d = rownorm(rel[:, :3] + v * t_lin[:, None])
         sl_v = np.sqrt(vv)
         info["straight_line"] = {"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v}
         info["model_difference_median"] = {
