@@ -128,3 +128,21 @@ def test_extra_levels_and_model_info_are_reported(tmp_path):
     assert "2.5 %:" in out.getvalue() and "97.5 %:" in out.getvalue()
     doc = json.loads(path.read_text())
     assert doc["monte_carlo"]["model_info"]["model"] == "straight_line"
+
+
+def test_prior_that_excludes_the_measured_distance_is_called_a_conflict():
+    # A 0.06 % parallax at 20.8 pc under a uniform prior cut at 10 pc: the posterior sits at the
+    # prior's edge, hundreds of sigma from the measurement (common practice, no source: a
+    # prior-data conflict check).
+    from perierr import PerierrWarning
+    from perierr.priors import posterior_samples
+
+    s = star(parallax=48.0, parallax_error=0.03)
+    with pytest.warns(PerierrWarning, match="prior-data conflict"):
+        out = posterior_samples(s, "uniform:r_max=10pc", n=5000, seed=1)
+    assert out.info["prior_tension_sigma"] > 100
+    assert out.info["effective_size"] <= out.info["n_delivered"] == out.n
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # an agreeing prior raises no conflict
+        fine = posterior_samples(s, "edsd:L=1350pc", n=5000, seed=1)
+    assert abs(fine.info["prior_tension_sigma"]) < 3

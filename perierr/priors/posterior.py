@@ -76,23 +76,39 @@ def posterior_samples(
     if isinstance(prior, NoPrior):
         require_positive_parallax(plx, method="The 'none' distance prior (parallax inversion)")
         values = draw_gaussian(star.mean, star.cov, int(n), rng)
-        return Samples(values, method="gaussian", seed=seed,
-                       info={"effective_size": float(n), "note": "no prior: parallaxes inverted"})
+        return Samples(
+            values,
+            method="gaussian",
+            seed=seed,
+            info={"effective_size": float(n), "note": "no prior: parallaxes inverted"},
+        )
     if sig == 0:
         if not plx > 0 or not np.isfinite(prior.log_density(np.array([1000.0 / plx])))[0]:
-            raise InputError("parallax", plx, "with parallax_error = 0 the distance is fixed at "
-                             "1000 / parallax, which must be > 0 and inside the prior's support")
+            raise InputError(
+                "parallax",
+                plx,
+                "with parallax_error = 0 the distance is fixed at "
+                "1000 / parallax, which must be > 0 and inside the prior's support",
+            )
         values = draw_gaussian(star.mean, star.cov, int(n), rng)
-        return Samples(values, method="reweight", weights=np.full(int(n), 1.0 / int(n)), seed=seed,
-                       info={"effective_size": float(n),
-                             "note": "parallax_error = 0: the distance is fixed and the prior has no effect"})
+        return Samples(
+            values,
+            method="reweight",
+            weights=np.full(int(n), 1.0 / int(n)),
+            seed=seed,
+            info={
+                "effective_size": float(n),
+                "note": "parallax_error = 0: the distance is fixed and the prior has no effect",
+            },
+        )
     if not plx > 0 or plx < sig:
         what = "<= 0" if not plx > 0 else f"below its error ({plx:.3g} < {sig:.3g} mas)"
         warnings.warn(
             f"the parallax is {what}: the distance, and with it the perihelion, is dominated by "
             f"the {prior.name} prior {prior.parameters}; the result states the prior's "
             "assumption more than the measurement",
-            PerierrWarning, stacklevel=2,
+            PerierrWarning,
+            stacklevel=2,
         )
     threshold = float(min(1000.0, n / 10)) if min_effective_size is None else float(min_effective_size)
     switched = None
@@ -106,26 +122,66 @@ def posterior_samples(
             samples = None  # no draw inside the prior's support
         ess = 0.0 if samples is None else samples.info["effective_size"]
         if ess >= threshold:
-            return samples
+            return _check_tension(samples, plx, sig, prior)
         if method == "reweight":
             warnings.warn(
                 f"reweighting kept an effective sample size of {ess:.0f} (< {threshold:.0f}) out of "
                 f"{n} draws: its quantiles are noisy; use prior_method='mcmc' or 'auto'",
-                PerierrWarning, stacklevel=2,
+                PerierrWarning,
+                stacklevel=2,
             )
-            return samples
+            return _check_tension(samples, plx, sig, prior)
         tried = ess
         switched = f"reweighting effective sample size {ess:.0f} < {threshold:.0f}"
     elif method == "auto":
         switched = "nominal parallax <= 0"
     out = sample_posterior_mcmc(
-        star, prior, n_effective=min(int(mcmc_effective_size), int(n)), seed=seed, rng=rng,
-        n_walkers=n_walkers, max_steps=max_steps,
+        star,
+        prior,
+        n_effective=min(int(mcmc_effective_size), int(n)),
+        seed=seed,
+        rng=rng,
+        n_walkers=n_walkers,
+        max_steps=max_steps,
     )
     info = dict(out.info)
     if switched is not None:
         info["switched_to_mcmc"] = switched
     if tried is not None:
         info["reweight_effective_size"] = tried
-    return Samples(out.values, method="mcmc", seed=seed, info=info)
+    info["n_requested"] = int(n)
+    info["n_delivered"] = int(out.values.shape[0])
+    # the thinned chain keeps about one draw per autocorrelation time: never claim more
+    # effective draws than were delivered
+    info["effective_size"] = float(min(info.get("effective_size", np.inf), out.values.shape[0]))
+    return _check_tension(Samples(out.values, method="mcmc", seed=seed, info=info), plx, sig, prior)
 
+
+#: Distance (in parallax sigmas) between the posterior median parallax and the measured one above
+#: which an informative parallax and the prior are said to conflict.
+TENSION_SIGMA = 3.0
+
+
+def _check_tension(samples, plx, sig, prior):
+    """Warn when the prior drags an informative parallax far from its measured value."""
+    if not (plx > 0 and sig > 0 and plx / sig > 5):
+        return samples  # a weak parallax is meant to be prior-dominated (warned above)
+    w = samples.weights
+    x = samples.values[:, _PLX]
+    if w is None:
+        med = float(np.median(x))
+    else:
+        order = np.argsort(x)
+        med = float(x[order][np.searchsorted(np.cumsum(w[order]) / w.sum(), 0.5)])
+    z = (med - plx) / sig
+    samples.info["prior_tension_sigma"] = float(z)
+    if abs(z) > TENSION_SIGMA:
+        warnings.warn(
+            f"prior-data conflict: the posterior median parallax {med:.4g} mas lies {abs(z):.1f} sigma from the "
+            f"measured {plx:.4g} +/- {sig:.2g} mas; the {prior.name} prior {prior.parameters} excludes the "
+            "distance the parallax implies, so the result reflects the prior, not the measurement; "
+            "check the prior's parameters",
+            PerierrWarning,
+            stacklevel=3,
+        )
+    return samples
