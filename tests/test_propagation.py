@@ -192,3 +192,15 @@ def test_weighted_quantiles_without_full_sort_equal_the_sorted_definition():
         want = np.interp(probs, cdf, x[order])
         got = _binned_weighted_quantiles(x, probs, w)
         assert_allclose(got, want, rtol=0, atol=1e-9 * np.ptp(x))
+
+
+def test_unweighted_quantiles_are_hazen_at_every_size():
+    # One definition: the mid-point CDF, numpy's method="hazen" (Hyndman & Fan 1996, definition 5),
+    # for the small-sample path and the bracketed selection of large samples alike.
+    from perierr.summary import weighted_quantiles
+
+    rng = np.random.default_rng(21)
+    probs = np.array([0.001, 0.05, 0.16, 0.5, 0.84, 0.95, 0.999])
+    for n in (1_000, 49_999, 50_000, 400_000):
+        x = rng.lognormal(0.0, 1.0, n)
+        assert_allclose(weighted_quantiles(x, probs), np.quantile(x, probs, method="hazen"), rtol=1e-13)

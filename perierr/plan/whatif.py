@@ -136,7 +136,7 @@ def scenario_metrics(
     for j, q in enumerate(OUTPUTS):
         y = out[..., j]
         quant = np.nanquantile if any_bad else np.quantile
-        lo, med, hi = quant(y, [0.05, 0.5, 0.95], axis=1)
+        lo, med, hi = quant(y, [0.05, 0.5, 0.95], axis=1, method="hazen")  # as perierr.summary
         values[f"{q}.width90"] = hi - lo
         values[f"{q}.median"] = med
         values[f"{q}.std"] = (np.nanstd if any_bad else np.std)(y, axis=1, ddof=1)
