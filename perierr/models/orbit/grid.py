@@ -69,13 +69,16 @@ def map_span(t_lin, nodes):
     Returns the nodes and whether the span was cut below and above the window
     (perihelia found at a cut edge are integrated directly). The widening is
     a quarter of the range plus a tenth of the largest time, out to the next
-    node on each side.
+    node on each side, and always includes the nodes next to now.
     """
     lo_t, hi_t = float(np.min(t_lin)), float(np.max(t_lin))
     pad = 0.25 * (hi_t - lo_t) + 0.1 * max(abs(lo_t), abs(hi_t))
     m = len(nodes)
-    i0 = max(0, int(np.searchsorted(nodes, min(0.0, lo_t - pad), side="right")) - 1)
-    i1 = min(m, int(np.searchsorted(nodes, max(0.0, hi_t + pad))) + 1)
+    zero = int(np.searchsorted(nodes, 0.0))
+    # at least the nodes next to now, so that there is an interval on each side
+    i0 = min(max(0, zero - 1), int(np.searchsorted(nodes, min(0.0, lo_t - pad), side="right")) - 1)
+    i1 = max(min(m, zero + 2), int(np.searchsorted(nodes, max(0.0, hi_t + pad))) + 1)
+    i0, i1 = max(0, i0), min(m, i1)
     return nodes[i0:i1], i0 > 0, i1 < m
 
 
