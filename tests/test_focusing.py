@@ -93,8 +93,26 @@ def test_mass_error_draws_are_seeded_and_truncated():
     raw = StraightLine().evaluate(obs[:1])
     # all focused distances lie below the unfocused one (positive masses only)
     assert np.all(a.distance_pc < raw.distance_pc[0])
-    # spread of d_ph from the mass spread is non-zero
-    assert np.std(a.distance_pc) > 0
+    # the spread of d_ph equals the spread of the closed-form Kepler pericentre
+    # q(M) = mu/v^2 (sqrt(1 + b^2 v^4 / mu^2) - 1), mu = G (M_sun + M), over the truncated normal
+    # mass (scipy.stats.truncnorm.expect); b and v are the straight-line impact parameter and speed
+    import astropy.constants as const
+    import astropy.units as u
+    from scipy import stats
+
+    g = const.G.to_value(u.pc * (u.km / u.s) ** 2 / u.Msun)
+    b, v = raw.distance_pc[0], raw.speed_kms[0]
+
+    def q(m):
+        mu = g * (1.0 + m)
+        return mu / v**2 * (np.sqrt(1.0 + b**2 * v**4 / mu**2) - 1.0)
+
+    mass = stats.truncnorm(-1.0, np.inf, loc=0.3, scale=0.3)
+    mean_q = mass.expect(q)
+    want = np.sqrt(mass.expect(lambda m: (q(m) - mean_q) ** 2))
+    # 4000 draws: sampling error of a std ~ 1/sqrt(2 n) ~ 1.1 %
+    assert abs(np.std(a.distance_pc) / want - 1) < 0.05
+    assert abs(np.mean(a.distance_pc) / mean_q - 1) < 0.01
     with pytest.raises(FocusingError, match="mass_msun=-1"):
         Focused(StraightLine(), mass_msun=-1)
 
