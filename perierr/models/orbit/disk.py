@@ -68,36 +68,11 @@ class MiyamotoNagai(Potential):
 
     def hessian(self, x):
         """Hessian of Phi [(km/s)^2/pc^2], shape (..., 3, 3)."""
-        _, z, zeta, big_b, d2, q = self._parts(x)
-        gm = G_PC_KMS2_PER_MSUN * self.mass_msun
-        c = self._dq(z, zeta, big_b)
-        diag = np.zeros(q.shape + (3,))
-        diag[..., 0, 0] = 1.0
-        diag[..., 1, 1] = 1.0
-        diag[..., 2, 2] = c
-        qq = q[..., :, None] * q[..., None, :]
-        return (gm * d2**-1.5)[..., None, None] * (diag - 3.0 * qq / d2[..., None, None])
+        return self.derivatives(x)[1]
 
     def third_derivatives(self, x):
         """Third derivatives of Phi [(km/s)^2/pc^3], shape (..., 3, 3, 3)."""
-        _, z, zeta, big_b, d2, q = self._parts(x)
-        gm = G_PC_KMS2_PER_MSUN * self.mass_msun
-        c = self._dq(z, zeta, big_b)
-        qmat = np.zeros(q.shape + (3,))
-        qmat[..., 0, 0] = 1.0
-        qmat[..., 1, 1] = 1.0
-        qmat[..., 2, 2] = c
-        qqq = q[..., :, None, None] * q[..., None, :, None] * q[..., None, None, :]
-        sym = (
-            qmat[..., :, :, None] * q[..., None, None, :]
-            + qmat[..., :, None, :] * q[..., None, :, None]
-            + qmat[..., None, :, :] * q[..., :, None, None]
-        )
-        out = (15.0 * gm * d2**-3.5)[..., None, None, None] * qqq
-        out = out - (3.0 * gm * d2**-2.5)[..., None, None, None] * sym
-        dc_dz = -3.0 * self.a_pc * self.b_pc**2 * z / zeta**5
-        out[..., 2, 2, 2] += gm * d2**-1.5 * dc_dz
-        return out
+        return self.derivatives(x)[2]
 
     def derivatives(self, x):
         """Acceleration, Hessian and third derivatives sharing intermediate terms."""
