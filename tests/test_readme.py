@@ -24,3 +24,21 @@ def test_readme_python_blocks_run_in_order():
     d = namespace["d"]
     assert abs(d.median * AU_PER_PC - 18_956) < 10
     assert np.isclose(sum(namespace["result"].budget.share("distance_pc").values()), 1.0)
+
+
+def test_readme_demo_excerpt_is_what_the_demo_prints():
+    # every line of the README's demo excerpt (except the elisions) appears verbatim in
+    # `perierr demo --seed 1`
+    import io
+
+    from perierr.cli import main
+
+    text = README.read_text(encoding="utf-8")
+    excerpt = re.search(r"`perierr demo --seed 1` prints.*?```\n(.*?)```", text, flags=re.S).group(1)
+    out = io.StringIO()
+    assert main(["demo", "--seed", "1"], out=out) == 0
+    printed = out.getvalue().splitlines()
+    lines = [line for line in excerpt.splitlines() if line.strip() and line.strip() != "..."]
+    assert len(lines) >= 10
+    missing = [line for line in lines if line not in printed]
+    assert not missing, missing
