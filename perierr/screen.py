@@ -30,6 +30,8 @@ class ScreenRow:
     status : str
         ``"ok"`` or the reason the row could not be computed.
     time_myr, time_sigma, distance_pc, distance_sigma, speed_kms : float or None
+    parallax_fraction : float or None
+        parallax_error / parallax (above about 0.2, 1/parallax is a biased distance).
     """
 
     row: int
@@ -40,6 +42,7 @@ class ScreenRow:
     distance_pc: float | None = None
     distance_sigma: float | None = None
     speed_kms: float | None = None
+    parallax_fraction: float | None = None
 
     @property
     def distance_au(self) -> float | None:
@@ -85,11 +88,13 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
             lin = linearize(star, model)
         except InputError as exc:
             reason = exc.expected.split(";")[0].split(" (")[0]
+            if exc.field == "parallax" and isinstance(exc.value, float) and exc.value <= 0:
+                reason = "a parallax <= 0 cannot be inverted; analyse it with a distance prior (--distance-prior)"
             out.append(ScreenRow(i, name, f"not computed: {exc.field} = {exc.value!r}: {reason}"))
             continue
         t, d, v = (float(x) for x in lin.value)
         st, sd = float(lin.sigma[0]), float(lin.sigma[1])
-        out.append(ScreenRow(i, star.name, "ok", t, st, d, sd, v))
+        out.append(ScreenRow(i, star.name, "ok", t, st, d, sd, v, star.fractional_parallax_error))
     return out
 
 

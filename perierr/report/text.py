@@ -143,6 +143,12 @@ def format_analysis(analysis) -> str:
         for q in OUTPUTS:
             c = a.comparison[q]
             lines.append(f"  {_LABEL[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
+            if q == "distance_pc":
+                au = AU_PER_PC
+                lines.append(
+                    f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
+                    f"difference {c['difference_of_medians'] * au:+,.0f}"
+                )
     if a.prior:
         lines.append("")
         lines.extend(_prior_lines(a.prior))
