@@ -17,7 +17,7 @@ import numpy as np
 from . import __version__
 from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, linear_budget
-from .errors import PerierrWarning
+from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
 from .propagate.checks import require_motion
 from .propagate.linear import LinearResult, linearize
@@ -161,13 +161,20 @@ def analyze(
 
     calibration = Calibration.from_user(parallax_offset, error_inflation)
     calibration_block = calibration.to_dict(star)
-    star = calibration.apply(star)
-    require_motion(star.mean)
+    if distance_prior is not None and target_error is not None:
+        raise InputError(
+            "target_error",
+            target_error,
+            "the adaptive mode draws plain Gaussian samples; under a distance prior choose n_samples "
+            "(CLI --samples) and read the effective sample size reported beside every summary",
+        )
     notes = []
     prior_block = None
     with_prior = False
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", PerierrWarning)
+        star = calibration.apply(star)
+        require_motion(star.mean)
         if distance_prior is None:
             linear = linearize(star, model)
             mc = monte_carlo(
@@ -187,9 +194,16 @@ def analyze(
             with_prior = prior.name != "none"
             linear = linearize(star, model) if star.mean[2] > 0 else None
             samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
-            mc = propagate_samples(samples, model, reference=star.mean, levels=levels, thresholds=thresholds)
+            reference = star.mean if star.mean[2] > 0 else _posterior_reference(samples)
+            mc = propagate_samples(samples, model, reference=reference, levels=levels, thresholds=thresholds)
             prior_block = {"name": prior.name, "parameters": prior.parameters, **samples.info}
             prior_block["method"] = samples.method
+            asked, got = samples.info.get("n_requested"), samples.info.get("n_delivered")
+            if asked is not None and got is not None and got < asked:
+                notes.append(
+                    f"MCMC delivered {got:,} of the {asked:,} draws asked for (the chain is thinned to about one "
+                    f"draw per autocorrelation time; effective size {samples.effective_size:,.0f})"
+                )
     notes.extend(str(w.message) for w in caught if issubclass(w.category, PerierrWarning))
     if linear is None:
         budget = None
@@ -206,9 +220,14 @@ def analyze(
     return Analysis(star, model.describe(), linear, mc, budget, notes, comparison, prior_block, calibration_block)
 
 
+def _posterior_reference(samples) -> np.ndarray:
+    """Median of each observable over the (weighted) posterior draws: the point to linearize around."""
+    values, w = samples.values, samples.weights
+    return np.array([weighted_quantiles(values[:, k], [0.5], w)[0] for k in range(values.shape[1])])
+
+
 def _with_focusing(model, star, seed):
     """Wrap ``model`` in the focusing correction for the star's mass."""
-    from .errors import InputError
     from .models.focusing import Focused
 
     if star.mass is None:
@@ -269,10 +288,14 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
     if linear is not None:
         d_nom, d_sig = linear.value[1], linear.sigma[1]
         if d_sig > 0 and d_nom < 2.0 * d_sig:
+            why = (
+                "the distance is poorly known"
+                if frac > BIASED_PARALLAX_FRACTION
+                else "the star heads almost straight at the Sun"
+            )
             out.append(
-                f"d_ph ({d_nom:.3g} pc) is comparable to its linear sigma ({d_sig:.3g} pc): the "
-                "star heads almost straight at the Sun and a linearized distance error is "
-                "meaningless; use the Monte Carlo quantiles"
+                f"d_ph ({d_nom:.3g} pc) is comparable to its linear sigma ({d_sig:.3g} pc): {why} and a "
+                "linearized distance error is meaningless; use the Monte Carlo quantiles"
             )
         if with_prior:
             out.append(
@@ -288,6 +311,19 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
                     f"{q}: Monte Carlo std {s_mc:.3g} differs from the linear sigma {s_lin:.3g} by "
                     f"more than 20 %: the model is not linear over the error ellipsoid"
                 )
+    worst = mc.worst_relative_error()
+    if worst > 0.05:
+        out.append(
+            f"Monte Carlo errors are large: a quantile's MC error reaches {worst:.0%} of (q84 - q16)/2; "
+            "draw more samples (--samples, or --target-error without a prior)"
+        )
+    info = mc.perihelion.info
+    n_direct = int(info.get("fallback_samples", 0) or 0) + int(info.get("beyond_span_samples", 0) or 0)
+    if n_direct > 0.1 * max(mc.perihelion.distance_pc.size, 1):
+        out.append(
+            f"{n_direct:,} draws ({n_direct / mc.perihelion.distance_pc.size:.0%}) needed direct orbit "
+            "integration: the state-transition map could not cover the spread of the draws (slow but exact)"
+        )
     n_bad = mc.n_nonpositive_parallax
     if n_bad:
         out.append(

@@ -146,3 +146,36 @@ def test_prior_that_excludes_the_measured_distance_is_called_a_conflict():
         warnings.simplefilter("error")  # an agreeing prior raises no conflict
         fine = posterior_samples(s, "edsd:L=1350pc", n=5000, seed=1)
     assert abs(fine.info["prior_tension_sigma"]) < 3
+
+
+def test_orbit_model_under_a_prior_with_a_negative_parallax():
+    # the model linearizes around the posterior median when the nominal parallax cannot be inverted
+    s = star(parallax=-0.3, parallax_error=0.5, radial_velocity=-40.0, radial_velocity_error=2.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        r = analyze(s, model="orbit", distance_prior="edsd:L=1350pc", n_samples=1000, seed=1)
+    assert r.linear is None and r.prior["method"] == "mcmc"
+    d = r.monte_carlo.summaries["distance_pc"]
+    assert np.isfinite(d.median) and d.quantiles[0.16] < d.median < d.quantiles[0.84]
+    assert r.monte_carlo.n == r.prior["n_delivered"]
+
+
+def test_focused_nominal_value_does_not_depend_on_the_seed():
+    s = ObservedStar.from_mapping({**BASE, "mass": 0.8, "mass_error": 0.4})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        a = analyze(s, n_samples=2000, seed=1, focusing=True)
+        b = analyze(s, n_samples=2000, seed=2, focusing=True)
+    assert a.linear.value[1] == b.linear.value[1]
+
+
+def test_adaptive_mode_and_a_prior_do_not_combine_silently():
+    with pytest.raises(InputError, match="target_error = 0.01: the adaptive mode draws plain Gaussian samples"):
+        analyze(star(), distance_prior="edsd:L=1350pc", target_error=0.01, seed=1)
+
+
+def test_calibration_warnings_reach_the_result():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        r = analyze(star(), error_inflation={"parallax": 0.5}, n_samples=2000, seed=1)
+    assert any("inflation factors below 1 shrink the errors of parallax" in w for w in r.warnings)

@@ -74,6 +74,8 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     """
     require_positive_parallax(star.mean[2], method="linearized propagation")
     require_motion(star.mean)
-    value = model.evaluate(star.mean[None, :], reference=star.mean).as_array()[0]
+    # the nominal value: no reference, so models evaluate this one row as it is (no Monte Carlo
+    # machinery, e.g. no random focusing masses)
+    value = model.evaluate(star.mean[None, :]).as_array()[0]
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     return LinearResult(value=value, jacobian=jac, cov=jac @ star.cov @ jac.T)

@@ -118,7 +118,7 @@ def format_analysis(analysis) -> str:
     for t in mc.thresholds:
         if t.count == 0:
             text = f"  < {t.upper95:.4%} (95 % bound; no draw passed)"
-        elif t.count == mc.n and mc.samples.weights is None:
+        elif t.count == mc.n:
             text = f"  > {t.lower95:.4%} (95 % bound; every draw passed)"
         else:
             text = f"{t.probability:8.2%} ± {t.se:.2%}"
