@@ -6,6 +6,7 @@ The CLI only parses arguments, calls the API and prints or writes results.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import warnings
 from pathlib import Path
@@ -289,6 +290,10 @@ def main(argv=None, out=None) -> int:
     except (InputError, ValueError, ChainTooShortError) as exc:
         print(f"perierr: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # e.g. `perierr demo | head`: stop quietly (Python docs, "Note on SIGPIPE")
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 1
     return 0
 
 

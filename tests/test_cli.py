@@ -86,3 +86,17 @@ def test_usage_errors_exit_nonzero(argv):
     with pytest.raises(SystemExit) as exc:
         main(argv)
     assert exc.value.code == 2
+
+
+def test_output_piped_into_a_closed_reader_stops_quietly():
+    # `perierr demo | head -1`: no traceback on stderr (Python docs, "Note on SIGPIPE")
+    import subprocess
+    import sys
+
+    code = "import sys; from perierr.cli import main; sys.exit(main(['demo', '--seed', '1', '--samples', '2000']))"
+    proc = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    proc.stdout.readline()
+    proc.stdout.close()  # the reader goes away after one line
+    err = proc.stderr.read().decode()
+    proc.wait(timeout=60)
+    assert "Traceback" not in err
