@@ -35,18 +35,22 @@ def _strings(text: str) -> list:
     return [x.strip() for x in text.split(",") if x.strip()]
 
 
+def _add_common_options(p: argparse.ArgumentParser, *, within_help: str, json_help: str) -> None:
+    """Options every analysing command shares: thresholds, seed, JSON output, model."""
+    p.add_argument("--within", type=_strings, default=list(DEFAULT_THRESHOLDS), metavar="D,D", help=within_help)
+    p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
+    p.add_argument("--json", type=Path, default=None, metavar="PATH", help=json_help)
+    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+
+
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--samples", type=int, default=100_000, metavar="N", help="Monte Carlo draws (default 100000)")
-    p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
-    p.add_argument("--json", type=Path, default=None, metavar="PATH", help="also write the full result as JSON")
-    p.add_argument("--levels", type=_floats, default=(), metavar="Q,Q", help="extra quantile levels, e.g. 0.025,0.975")
-    p.add_argument(
-        "--within",
-        type=_strings,
-        default=list(DEFAULT_THRESHOLDS),
-        metavar="D,D",
-        help="distances for P(d_ph < D), with units (default '0.5pc,1pc,2pc,20000au,100000au')",
+    _add_common_options(
+        p,
+        within_help="distances for P(d_ph < D), with units (default '0.5pc,1pc,2pc,20000au,100000au')",
+        json_help="also write the full result as JSON",
     )
+    p.add_argument("--levels", type=_floats, default=(), metavar="Q,Q", help="extra quantile levels, e.g. 0.025,0.975")
     p.add_argument(
         "--target-error",
         type=float,
@@ -55,7 +59,6 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
         help="draw until every quantile's MC error is below F x (q84-q16)/2 (e.g. 0.01)",
     )
     p.add_argument("--max-samples", type=int, default=10_000_000, metavar="N", help="cap for --target-error")
-    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
     p.add_argument(
         "--focusing", action="store_true", help="add the gravitational focusing of the star's mass (mass, mass_error)"
     )
@@ -223,17 +226,10 @@ def _add_plan_parser(sub) -> None:
         metavar="N",
         help="draws for the side-by-side summaries (default 100000)",
     )
-    p.add_argument(
-        "--within",
-        type=_strings,
-        default=list(DEFAULT_THRESHOLDS),
-        metavar="D,D",
-        help="distances for P(d_ph < D) in the what-if summaries",
+    _add_common_options(
+        p, within_help="distances for P(d_ph < D) in the what-if summaries", json_help="also write the plan as JSON"
     )
-    p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
-    p.add_argument("--json", type=Path, default=None, metavar="PATH", help="also write the plan as JSON")
     p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves (needs matplotlib)")
-    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
 
 
 def _plan(args, out) -> None:

@@ -16,6 +16,7 @@ from .._constants import OBSERVABLES
 from ..errors import InputError, PerierrWarning
 from ..propagate.checks import require_positive_parallax
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..summary import weighted_quantiles
 from .densities import DistancePrior, NoPrior
 from .mcmc import sample_posterior_mcmc
 from .parse import resolve_prior
@@ -166,13 +167,7 @@ def _check_tension(samples, plx, sig, prior):
     """Warn when the prior drags an informative parallax far from its measured value."""
     if not (plx > 0 and sig > 0 and plx / sig > 5):
         return samples  # a weak parallax is meant to be prior-dominated (warned above)
-    w = samples.weights
-    x = samples.values[:, _PLX]
-    if w is None:
-        med = float(np.median(x))
-    else:
-        order = np.argsort(x)
-        med = float(x[order][np.searchsorted(np.cumsum(w[order]) / w.sum(), 0.5)])
+    med = float(weighted_quantiles(samples.values[:, _PLX], [0.5], samples.weights)[0])
     z = (med - plx) / sig
     samples.info["prior_tension_sigma"] = float(z)
     if abs(z) > TENSION_SIGMA:
