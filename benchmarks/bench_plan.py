@@ -26,9 +26,9 @@ import time  # noqa: E402
 import numpy as np  # noqa: E402
 
 from perierr import StraightLine, monte_carlo, read_star_file  # noqa: E402
+from perierr.budget import global_budget  # noqa: E402
 from perierr.demo import demo_path  # noqa: E402
 from perierr.plan import gain_curves, plan, spread_goal, update_covariance  # noqa: E402
-from perierr.sensitivity import global_budget  # noqa: E402
 from perierr.star import ObservedStar  # noqa: E402
 
 

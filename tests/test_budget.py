@@ -6,7 +6,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from perierr import StraightLine, linear_budget, linearize
-from perierr.budget import gaussian_linear_shapley
+from perierr.budget import linear_shapley
 
 
 def test_two_input_correlated_closed_form():
@@ -16,7 +16,7 @@ def test_two_input_correlated_closed_form():
         cov = np.array([[s1 * s1, r * s1 * s2], [r * s1 * s2, s2 * s2]])
         var = b1**2 * s1**2 + 2 * r * b1 * b2 * s1 * s2 + b2**2 * s2**2
         sh1 = (b1**2 * s1**2 * (1 - r**2 / 2) + r * b1 * b2 * s1 * s2 + b2**2 * s2**2 * r**2 / 2) / var
-        got = gaussian_linear_shapley([[b1, b2]], cov)[0]
+        got = linear_shapley([[b1, b2]], cov)[0]
         assert_allclose(got, [sh1, 1 - sh1], rtol=1e-10)
 
 
@@ -34,7 +34,7 @@ def test_independent_inputs_reduce_to_scaled_squares():
 def test_input_with_no_influence_gets_a_share_only_through_correlation():
     # Iooss & Prieur 2019: with Y = X1 and corr(X1, X2) = r, Sh2 = r^2 / 2.
     r = 0.8
-    got = gaussian_linear_shapley([[1.0, 0.0]], np.array([[1.0, r], [r, 1.0]]))[0]
+    got = linear_shapley([[1.0, 0.0]], np.array([[1.0, r], [r, 1.0]]))[0]
     assert_allclose(got, [1 - r**2 / 2, r**2 / 2], rtol=1e-12)
 
 

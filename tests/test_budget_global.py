@@ -1,20 +1,20 @@
-"""Global Shapley budget (perierr.sensitivity) against outside sources."""
+"""Global Shapley budget (perierr.budget) against outside sources."""
 
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from perierr.budget import gaussian_linear_shapley
-from perierr.errors import InputError
-from perierr.models import StraightLine
-from perierr.sensitivity import (
+from perierr.budget import (
     GlobalBudget,
     global_budget,
     linear_costs,
-    shapley_from_costs,
+    linear_shapley,
     shapley_gaussian,
+    shapley_values,
 )
+from perierr.errors import InputError
+from perierr.models import StraightLine
 from perierr.star import ObservedStar
 
 
@@ -84,7 +84,7 @@ def test_two_input_linear_gaussian_iooss_prieur():
     assert est.low[0, 0] - 0.01 < sh1 < est.high[0, 0] + 0.01
     # closed form over subsets (Owen & Prieur 2017) agrees to rounding
     costs = linear_costs([[b1, b2]], cov)
-    assert shapley_from_costs(costs)[0, 0] / costs[-1, 0] == pytest.approx(sh1, rel=1e-12)
+    assert shapley_values(costs)[0, 0] / costs[-1, 0] == pytest.approx(sh1, rel=1e-12)
 
 
 def test_six_input_linear_gaussian_matches_closed_form():
@@ -96,8 +96,8 @@ def test_six_input_linear_gaussian_matches_closed_form():
         lambda x: x @ grad.T, np.zeros(6), cov, players=tuple("abcdef"), outputs=("y1", "y2"),
         n_outer=8000, seed=1,
     )
-    # Owen & Prieur 2017 closed form (perierr.budget.gaussian_linear_shapley); MC tolerance 0.03
-    np.testing.assert_allclose(est.shares, gaussian_linear_shapley(grad, cov), atol=0.03)
+    # Owen & Prieur 2017 closed form (perierr.budget.linear_shapley); MC tolerance 0.03
+    np.testing.assert_allclose(est.shares, linear_shapley(grad, cov), atol=0.03)
     np.testing.assert_allclose(est.shares.sum(axis=1), 1.0, rtol=1e-12)
 
 
@@ -131,7 +131,7 @@ def test_group_shares_match_linear_group_game():
     lin = linear_costs(jac, star.cov)
     # group game of the linear Gaussian model (Owen & Prieur 2017): astrometry = bits 0-4, rv = bit 5
     group_costs = lin[[0, 0b011111, 0b100000, 0b111111]]
-    expected = (shapley_from_costs(group_costs) / group_costs[-1]).T
+    expected = (shapley_values(group_costs) / group_costs[-1]).T
     np.testing.assert_allclose(g.groups["astrometry_vs_rv"].shares, expected, atol=0.015)
     np.testing.assert_allclose(g.groups["by_kind"].shares.sum(axis=1), 1.0, rtol=1e-12)
     assert set(g.to_dict()["groups"]["by_kind"]["distance_pc"]) >= {"position", "proper_motion", "total"}
@@ -147,9 +147,9 @@ def test_same_seed_same_result():
 
 @settings(max_examples=40, deadline=None)
 @given(st.lists(st.floats(-10, 10), min_size=7, max_size=7), st.permutations(range(3)))
-def test_shapley_from_costs_efficiency_and_symmetry(values, perm):
+def test_shapley_values_efficiency_and_symmetry(values, perm):
     costs = np.array([0.0] + values)
-    sh = shapley_from_costs(costs)
+    sh = shapley_values(costs)
     # efficiency axiom (Shapley 1953): values sum to c(all) - c(empty)
     assert sh.sum() == pytest.approx(costs[-1], abs=1e-9)
     # relabelling the players permutes the values (symmetry axiom)
@@ -157,7 +157,7 @@ def test_shapley_from_costs_efficiency_and_symmetry(values, perm):
     for mask in range(8):
         new = sum(1 << perm[i] for i in range(3) if mask >> i & 1)
         permuted[new] = costs[mask]
-    np.testing.assert_allclose(shapley_from_costs(permuted)[list(perm)], sh, atol=1e-9)
+    np.testing.assert_allclose(shapley_values(permuted)[list(perm)], sh, atol=1e-9)
 
 
 def test_errors():
@@ -174,7 +174,7 @@ def test_errors():
     with pytest.raises(InputError, match="distance prior"):
         global_budget(invented_star(parallax=0.5, parallax_error=0.2), model)
     with pytest.raises(InputError, match="2\\^k rows"):
-        shapley_from_costs(np.zeros(5))
+        shapley_values(np.zeros(5))
 
 
 def test_nonlinear_star_global_differs_from_linear_and_matches_scipy():

@@ -77,8 +77,8 @@ class Focused(ForwardModel):
         Standard deviation of the mass [Msun]. When positive, Monte Carlo
         evaluations (rows with a ``reference``) draw one mass per row from a
         normal distribution truncated at zero mass; evaluations without a
-        reference and :meth:`jacobian` use the nominal mass (the linear
-        budget then has no mass term, as the six observables are its inputs).
+        reference and :meth:`jacobian` use the nominal mass; the budgets give
+        the mass a share of its own through :meth:`mass_jacobian`.
     rng : None, int or numpy.random.Generator
         Seed or generator for the mass draws (through ``numpy.random.default_rng``).
 
@@ -131,7 +131,18 @@ class Focused(ForwardModel):
     def evaluate(self, observables, *, reference=None) -> Perihelion:
         """Focused perihelion of every row; see :meth:`ForwardModel.evaluate`."""
         raw = self.base.evaluate(observables, reference=reference)
-        masses = self._masses(raw.distance_pc.size, reference)
+        return self.focus(raw, self._masses(raw.distance_pc.size, reference))
+
+    def focus(self, raw: Perihelion, masses) -> Perihelion:
+        """Apply the two-body focusing of given masses to the wrapped model's answer.
+
+        Parameters
+        ----------
+        raw : Perihelion
+            The wrapped model's perihelia (n rows).
+        masses : array_like, shape (n,) or scalar
+            Mass of the star for each row [Msun].
+        """
         q, vq = hyperbolic_perihelion(raw.distance_pc, raw.speed_kms, masses)
         head_on = q == 0
         flags = raw.flags
@@ -156,6 +167,20 @@ class Focused(ForwardModel):
         info["focusing_delta_distance_pc"] = dd
         info["focusing_delta_speed_kms"] = dv
         return Perihelion(raw.time_myr, q, vq, flags=flags, info=info)
+
+    def mass_jacobian(self, point) -> np.ndarray:
+        """Derivative of (t_ph, d_ph, v_ph) with respect to the star's mass at the nominal mass, shape (3,).
+
+        From ``v^2 q^2 + 2 mu q = b^2 v^2`` with ``mu = G (M_sun + M)``:
+        ``dq/dmu = -q / (v^2 q + mu)``, ``v_q = b v / q``, and t_ph does not
+        depend on the mass (module docstring). Units: Myr, pc, km/s per Msun.
+        """
+        raw = self.base.evaluate(np.asarray(point, dtype=float)[None, :], reference=point)
+        b, v = float(raw.distance_pc[0]), float(raw.speed_kms[0])
+        mu = G_PC_KMS2_PER_MSUN * (1.0 + self.mass_msun)
+        q = float(hyperbolic_perihelion(b, v, self.mass_msun)[0])
+        dq = -q / (v * v * q + mu) * G_PC_KMS2_PER_MSUN
+        return np.array([0.0, dq, -b * v / q**2 * dq])
 
     def jacobian(self, point) -> np.ndarray:
         """Chain rule on the wrapped model's Jacobian at the nominal mass, shape (3, 6).

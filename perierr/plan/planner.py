@@ -6,8 +6,8 @@ from dataclasses import dataclass, field
 
 from .. import __version__
 from .._constants import OBSERVABLES
+from ..budget import GlobalBudget, global_budget
 from ..models import ForwardModel, make_model
-from ..sensitivity import GlobalBudget, global_budget
 from ..star import ObservedStar
 from ..thresholds import DEFAULT_THRESHOLDS
 from .curves import GainCurves, gain_curves
@@ -107,7 +107,7 @@ def plan(
         Threshold of the probability curve.
     n_points : int
     budget_options : dict, optional
-        Passed to :func:`perierr.sensitivity.global_budget`.
+        Passed to :func:`perierr.budget.global_budget`.
     """
     from ..sampling.gaussian import resolve_seed
 

@@ -23,12 +23,11 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
-from ..budget import gaussian_linear_shapley
+from .._constants import OBSERVABLES
 from ..errors import InputError, PerierrWarning
 from ..star import ObservedStar
 
-__all__ = ["ZERO_POINT", "Calibration", "CalibratedBudget", "parse_inflation", "parse_offset"]
+__all__ = ["ZERO_POINT", "Calibration", "parse_inflation", "parse_offset"]
 
 #: Name of the zero-point input in budgets.
 ZERO_POINT = "parallax_zero_point"
@@ -210,8 +209,8 @@ class Calibration:
             out["catalogue_parallax_error_mas"] = float(star.sigma[_PLX])
         return out
 
-    def budget(self, jacobian, calibrated_star: ObservedStar) -> CalibratedBudget:
-        """Linearized budget over the six observables plus the zero-point.
+    def budget_inputs(self, jacobian, calibrated_star: ObservedStar) -> tuple:
+        """Jacobian, covariance and names of the budget inputs: the six observables and the zero-point.
 
         Parameters
         ----------
@@ -219,45 +218,19 @@ class Calibration:
             d output / d observable at the calibrated nominal point.
         calibrated_star : ObservedStar
             The output of :meth:`apply` (its parallax variance includes sigma_Z^2).
+
+        Returns
+        -------
+        jacobian : ndarray, shape (3, 7)
+            With ``d output / d Z = - d output / d parallax`` as the last column.
+        cov : ndarray, shape (7, 7)
+            The catalogue covariance (sigma_Z^2 taken back out of the parallax) and sigma_Z^2.
+        inputs : tuple of str
         """
+        from ..budget import extend_inputs
+
         j = np.asarray(jacobian, dtype=float)
         cov6 = np.array(calibrated_star.cov, dtype=float)
         cov6[_PLX, _PLX] -= self.zero_point_error**2
-        cov = np.zeros((7, 7))
-        cov[:6, :6] = cov6
-        cov[6, 6] = self.zero_point_error**2
-        grad = np.concatenate([j, -j[:, _PLX : _PLX + 1]], axis=1)
-        var = np.einsum("mi,ij,mj->m", grad, cov, grad)
-        safe = np.where(var > 0, var, 1.0)
-        contrib = np.where(var[:, None] > 0, grad * (grad @ cov) / safe[:, None], 0.0)
-        return CalibratedBudget(gaussian_linear_shapley(grad, cov), contrib, var)
-
-
-@dataclass(frozen=True)
-class CalibratedBudget:
-    """Linearized budget with the parallax zero-point as a seventh input.
-
-    Same reading as :class:`perierr.budget.LinearBudget`; columns follow
-    :attr:`inputs` (the six observables, then ``parallax_zero_point``).
-    """
-
-    shapley: np.ndarray
-    covariance: np.ndarray
-    variance: np.ndarray
-    inputs: tuple = OBSERVABLES + (ZERO_POINT,)
-
-    def share(self, output: str, kind: str = "shapley") -> dict:
-        """Shares of one output as ``{input: share}``."""
-        table = {"shapley": self.shapley, "covariance": self.covariance}[kind]
-        return dict(zip(self.inputs, table[OUTPUTS.index(output)].tolist()))
-
-    def dominant(self, output: str = "distance_pc") -> str:
-        """The input with the largest Shapley share of an output."""
-        return self.inputs[int(np.argmax(self.shapley[OUTPUTS.index(output)]))]
-
-    def to_dict(self) -> dict:
-        """``{output: {input: share}}`` plus the covariance contributions."""
-        out = {q: self.share(q) for q in OUTPUTS}
-        out["covariance_contributions"] = {q: self.share(q, "covariance") for q in OUTPUTS}
-        out["method"] = "linearized Shapley effects (closed form, Gaussian inputs, zero-point as own input)"
-        return out
+        grad, cov = extend_inputs(j, cov6, -j[:, _PLX], [self.zero_point_error**2])
+        return grad, cov, OBSERVABLES + (ZERO_POINT,)

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import AU_PER_PC, OBSERVABLES
+from .._constants import AU_PER_PC
+from .shares import format_share, input_label
 
 __all__ = ["format_plan"]
 
@@ -65,15 +66,21 @@ def _budget_lines(b) -> list:
     out.append(head + f"{'linear Var(d_ph)':>24}")
     jd = v.outputs.index("distance_pc") if "distance_pc" in v.outputs else 0
     jt = v.outputs.index("time_myr") if "time_myr" in v.outputs else 0
-    for i, name in enumerate(OBSERVABLES):
+    for i, name in enumerate(b.inputs):
         def cell(est, j, i=i):
-            return f"{est.shares[j, i] + 0.0:.3f} [{est.low[j, i] + 0.0:.3f}, {est.high[j, i] + 0.0:.3f}]"
+            lo, hi = format_share(est.low[j, i], decimals=3, percent=False), format_share(
+                est.high[j, i], decimals=3, percent=False
+            )
+            return f"{format_share(est.shares[j, i], decimals=3, percent=False)} [{lo}, {hi}]"
 
-        line = f"  {name:<17}{cell(v, jt):>24}{cell(v, jd):>24}"
+        line = f"  {input_label(name):<17}{cell(v, jt):>24}{cell(v, jd):>24}"
         line += f"{cell(w, jd):>24}" if w is not None else ""
-        out.append(line + f"{b.linear_variance[jd, i]:>18.3f}")
+        lin = format_share(b.linear_variance[jd, i], decimals=3, percent=False, bounded=True)
+        out.append(line + f"{lin:>18}")
     for pname, est in b.groups.items():
-        parts = ", ".join(f"{g} {est.shares[jd, k]:.3f}" for k, g in enumerate(est.players))
+        parts = ", ".join(
+            f"{g} {format_share(est.shares[jd, k], decimals=3, percent=False)}" for k, g in enumerate(est.players)
+        )
         out.append(f"  groups ({pname}), Var(d_ph): {parts}")
     for q, info in b.nonlinearity().items():
         verdict = "agrees with the linear budget" if info["agrees_with_linear"] else (
@@ -103,7 +110,10 @@ def format_plan(plan) -> str:
         if plan.budget_improved is not None:
             est = plan.budget_improved.variance
             j = est.outputs.index("distance_pc")
-            parts = ", ".join(f"{name} {est.shares[j, i]:.3f}" for i, name in enumerate(OBSERVABLES))
+            parts = ", ".join(
+                f"{name} {format_share(est.shares[j, i], decimals=3, percent=False)}"
+                for i, name in enumerate(est.players)
+            )
             lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")
         lines.append("")
     lines.append("perierr predicts statistical encounters, not impact hazards.")

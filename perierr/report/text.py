@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 
 from .._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
+from .shares import format_share, input_label
 
 __all__ = ["format_analysis", "format_value"]
 
@@ -130,10 +131,12 @@ def format_analysis(analysis) -> str:
         b = a.budget
         sd, st = b.share("distance_pc"), b.share("time_myr")
         cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
-        for name in getattr(b, "inputs", OBSERVABLES):
-            c_d, c_t = (0.0 if abs(x) < 5e-4 else x for x in (cd[name], ct[name]))  # no "-0.0 %"
-            label = "parallax zero-pt" if name == "parallax_zero_point" else name
-            lines.append(f"  {label:<17}{sd[name]:>8.1%} ({c_d:>6.1%}){st[name]:>9.1%} ({c_t:>6.1%})")
+        for name in b.inputs:
+            cells = (
+                format_share(sd[name], bounded=True), format_share(cd[name]),
+                format_share(st[name], bounded=True), format_share(ct[name]),
+            )  # fmt: skip
+            lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
         lines.append(
             f"  largest share: {b.dominant('distance_pc')} for the distance, {b.dominant('time_myr')} for the time"
         )

@@ -1,0 +1,26 @@
+"""Error budgets: which input sets the error, by Shapley effects.
+
+One engine for every budget: :mod:`.game` (subsets, exact weights, groups,
+conditional Gaussians in correlation coordinates), :mod:`.linear` (closed form
+of the linearized model, batched over stars) and :mod:`.global_mc` (Monte Carlo
+estimate from the model itself, with bootstrap intervals).
+"""
+
+from .game import group_masks, shapley_values
+from .global_mc import DEFAULT_GROUPS, GlobalBudget, ShapleyEstimate, global_budget, shapley_gaussian
+from .linear import LinearBudget, extend_inputs, linear_budget, linear_costs, linear_shapley
+
+__all__ = [
+    "DEFAULT_GROUPS",
+    "GlobalBudget",
+    "LinearBudget",
+    "ShapleyEstimate",
+    "extend_inputs",
+    "global_budget",
+    "group_masks",
+    "linear_budget",
+    "linear_costs",
+    "linear_shapley",
+    "shapley_gaussian",
+    "shapley_values",
+]
