@@ -15,8 +15,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import __version__
-from ._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
-from .budget import LinearBudget, extend_inputs, linear_budget
+from ._constants import AU_PER_PC, OUTPUTS
+from .budget import LinearBudget, star_budget
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
 from .propagate.checks import require_motion
@@ -205,7 +205,7 @@ def analyze(
                     f"draw per autocorrelation time; effective size {samples.effective_size:,.0f})"
                 )
     notes.extend(str(w.message) for w in caught if issubclass(w.category, PerierrWarning))
-    budget = None if linear is None else _linear_budget(star, linear, calibration, model)
+    budget = None if linear is None else star_budget(star, linear, calibration=calibration)
     notes.extend(_reading_warnings(star, linear, mc, with_prior))
     comparison = {}
     if not isinstance(model, StraightLine):
@@ -213,19 +213,6 @@ def analyze(
     for message in notes:
         warnings.warn(message, PerierrWarning, stacklevel=2)
     return Analysis(star, model.describe(), linear, mc, budget, notes, comparison, prior_block, calibration_block)
-
-
-def _linear_budget(star, linear, calibration, model) -> LinearBudget:
-    """Linearized budget over the six observables, the zero-point (if uncertain) and the mass (if focusing)."""
-    from .models.focusing import Focused
-
-    jac, cov, inputs = linear.jacobian, star.cov, OBSERVABLES
-    if calibration.zero_point_error > 0:
-        jac, cov, inputs = calibration.budget_inputs(jac, star)
-    if isinstance(model, Focused) and model.mass_error_msun > 0:
-        jac, cov = extend_inputs(jac, cov, model.mass_jacobian(star.mean), [model.mass_error_msun**2])
-        inputs = inputs + ("mass",)
-    return linear_budget(jac, cov, inputs=inputs)
 
 
 def _posterior_reference(samples) -> np.ndarray:

@@ -590,3 +590,42 @@ def test_shapley_gaussian_conditional_mean_on_a_quadratic_output():
     )
     assert np.all(est.se > 0)
     assert np.all(np.abs(est.shares - want) <= 4 * est.se), (est.shares, want, est.se)
+
+
+# --------------------------------------------------------------------------------------------
+# 8. Nearly exact relations between inputs: one cut-off for every subset, undefined said aloud
+# --------------------------------------------------------------------------------------------
+
+
+def test_nearly_perfect_correlation_kept_consistently_across_subsets():
+    # corr(x0, x1) = 1 - 2e-10, just above the cut-off, and an output that depends on their difference:
+    # exact rational brute force (raw covariance, all k! orderings). A cut-off relative to each subset's
+    # own largest eigenvalue kept the relation in some subsets and not in others (rows summed to 2).
+    r = np.eye(6)
+    r[0, 1] = r[1, 0] = 1 - 2e-10
+    r[2:, 2:] = 0.95
+    np.fill_diagonal(r, 1.0)
+    jac = np.array([[1.0, -1.0, 1e-6, 0.0, 0.0, 0.0]] * 3)
+    got = linear_shapley(jac, r)
+    want = np.array(exact_raw_shares(jac[:1], r))[0]
+    # the difference direction has eigenvalue 2e-10: rounding of 1e-16 leaves about 1e-6 relative precision
+    np.testing.assert_allclose(got[0], want, atol=1e-5)
+    np.testing.assert_allclose(got.sum(axis=-1), 1.0, atol=1e-9)
+
+
+def test_output_along_a_dropped_relation_is_undefined_and_says_so():
+    # corr = 1 - 1e-12 is below the cut-off (treated as exact); an output equal to x0 - x1 then has all its
+    # variance along the dropped direction: its budget is undefined (NaN, with a warning), never a row of
+    # zeros or shares summing to 2. An output that does not cancel keeps a finite budget.
+    from perierr.errors import PerierrWarning
+
+    cov = np.eye(6)
+    cov[0, 1] = cov[1, 0] = 1 - 1e-12
+    jac = np.array([[1.0, -1.0, 0, 0, 0, 0], [1.0, 0.5, 0.2, 0, 0, 0], [0, 0, 0, 1.0, 0, 0]])
+    with pytest.warns(PerierrWarning, match="undefined"):
+        b = linear_budget(jac, cov, inputs=tuple("abcdef"))
+    assert np.isnan(b.shapley[0]).all()
+    assert b.dominant("time_myr") is None
+    # the finite rows: exact brute force (the pair treated as one input, 1e-12 away from exact)
+    want = np.array(exact_raw_shares(jac[1:], cov))
+    np.testing.assert_allclose(b.shapley[1:], want, atol=1e-6)

@@ -59,8 +59,13 @@ def test_mass_is_an_input_of_the_linear_budget_under_focusing():
         assert b.share(q)["mass"] == pytest.approx(j_m**2 * 0.2**2 / b.variance[k], rel=1e-5)
     assert b.share("speed_kms")["mass"] > 0.5  # this slow encounter's speed error is set by the mass
     assert b.share("time_myr")["mass"] == 0.0  # focusing leaves t_ph alone (module docstring)
-    # the linear variance includes the mass term: sigma^2 = J Sigma J^T + J_M^2 sigma_M^2
-    assert b.variance[1] == pytest.approx(a.linear.sigma[1] ** 2 + ((qp - qm)[0] / (2 * h) * 0.2) ** 2, rel=1e-5)
+    # the linear variance includes the mass term, sigma^2 = J Sigma J^T + J_M^2 sigma_M^2, in the budget and in
+    # the reported linear sigma alike
+    jsj = a.linear.jacobian[1] @ a.star.cov @ a.linear.jacobian[1]
+    assert b.variance[1] == pytest.approx(jsj + ((qp - qm)[0] / (2 * h) * 0.2) ** 2, rel=1e-5)
+    assert a.linear.sigma[1] ** 2 == pytest.approx(b.variance[1], rel=1e-12)
+    # and the Monte Carlo spread of v_ph (truncated-normal mass draws) agrees with it within 10 %
+    assert a.monte_carlo.summaries["speed_kms"].std == pytest.approx(a.linear.sigma[2], rel=0.1)
     doc = json.loads(json.dumps(a.to_dict()))
     assert doc["budget"]["inputs"] == list(b.inputs)
     assert set(doc["budget"]["distance_pc"]) == set(b.inputs)
@@ -120,3 +125,44 @@ def test_report_prints_every_input_and_no_negative_zero_or_excess():
     assert "-0.0%" not in section
     shapley = [float(x) for x in re.findall(r"(-?\d+\.\d)% \(", section)]
     assert all(0.0 <= x <= 100.0 for x in shapley)
+
+
+def test_what_if_budget_keeps_the_mass():
+    # the planner's linear budgets use the same inputs as analyze(): the mass stays an input
+    from perierr.plan import make_measurement, what_if
+
+    star = slow_star()
+    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.2, rng=0)
+    wi = what_if(star, model, [make_measurement("radial_velocity", 0.001, dec=10.0)], n=2_000, seed=1)
+    a = quiet_analyze(star, model=model, n_samples=2_000, seed=1)
+    assert wi.budget_current.inputs == a.budget.inputs == tuple(a.budget.inputs)
+    np.testing.assert_allclose(wi.budget_current.shapley, a.budget.shapley, atol=1e-12)
+    # a better radial velocity leaves the mass an even larger share of Var(v_ph)
+    assert wi.budget_improved.share("speed_kms")["mass"] > wi.budget_current.share("speed_kms")["mass"]
+
+
+def test_global_budget_mass_draws_follow_the_truncated_normal():
+    # the game maps a standard-normal deviate z to the mass with the same quantile of the normal truncated
+    # at zero (scipy.stats.truncnorm) that the Monte Carlo draws from
+    from scipy.stats import norm, truncnorm
+
+    model = Focused(StraightLine(), mass_msun=0.1, mass_error_msun=0.1, rng=0)
+    star = slow_star()
+    z = np.array([-3.0, -1.0, 0.0, 1.5])
+    ph = model.evaluate_nuisance(np.repeat(star.mean[None, :], 4, axis=0), z[:, None], reference=star.mean)
+    masses = truncnorm.ppf(norm.cdf(z), -1.0, np.inf, loc=0.1, scale=0.1)
+    assert np.all(masses > 0)
+    raw = StraightLine().evaluate(np.repeat(star.mean[None, :], 4, axis=0))
+    q, _ = hyperbolic_perihelion(raw.distance_pc, raw.speed_kms, masses)
+    np.testing.assert_allclose(ph.distance_pc, q, rtol=1e-12)
+
+
+def test_a_stack_of_jacobians_broadcasts_against_one_covariance():
+    from perierr.budget import linear_shapley
+
+    rng = np.random.default_rng(8)
+    a = rng.normal(size=(6, 6))
+    cov = a @ a.T + np.eye(6)
+    jac = rng.normal(size=(5, 3, 6))
+    got = linear_shapley(jac, cov)
+    np.testing.assert_allclose(got, np.stack([linear_shapley(j, cov) for j in jac]), atol=1e-13)

@@ -8,12 +8,14 @@ estimate from the model itself, with bootstrap intervals).
 
 from .game import group_masks, shapley_values
 from .global_mc import DEFAULT_GROUPS, GlobalBudget, ShapleyEstimate, global_budget, shapley_gaussian
+from .inputs import budget_inputs, star_budget
 from .linear import LinearBudget, extend_inputs, linear_budget, linear_costs, linear_shapley
 
 __all__ = [
     "DEFAULT_GROUPS",
     "GlobalBudget",
     "LinearBudget",
+    "budget_inputs",
     "ShapleyEstimate",
     "extend_inputs",
     "global_budget",
@@ -23,4 +25,5 @@ __all__ = [
     "linear_shapley",
     "shapley_gaussian",
     "shapley_values",
+    "star_budget",
 ]

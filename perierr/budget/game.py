@@ -16,8 +16,9 @@ with correlation matrix ``R``. Shapley effects do not depend on the units of
 the inputs, and neither does anything computed here: the raw covariance of a
 catalogue solution mixes deg^2 (about 1e-16) with mas^2 and (km/s)^2, and a
 pseudo-inverse of it would treat the position directions as null. In
-correlation coordinates every eigenvalue is of order one, so one relative
-cut-off (:data:`RANK_RTOL`) separates real directions from rounding. An input
+correlation coordinates every eigenvalue lies between 0 and k, so one absolute
+cut-off (:data:`RANK_TOL`), the same for every subset, separates real
+directions from rounding. An input
 held exact (zero variance) becomes an independent dummy with unit variance and
 zero gradient; perfectly correlated inputs give a singular ``R``, which the
 rank-aware solve (an eigen-decomposition pseudo-inverse) handles.
@@ -41,7 +42,7 @@ from ..errors import InputError
 from ..sampling.gaussian import psd_factor
 
 __all__ = [
-    "RANK_RTOL",
+    "RANK_TOL",
     "conditional_map",
     "explained_variance",
     "group_masks",
@@ -51,10 +52,11 @@ __all__ = [
     "standardize",
 ]
 
-#: Relative eigenvalue cut-off of the rank-aware solve in correlation coordinates:
-#: directions of a correlation sub-matrix with eigenvalue below RANK_RTOL times its
-#: largest are treated as exact linear relations (perfectly correlated inputs).
-RANK_RTOL = 1e-10
+#: Eigenvalue cut-off of the rank-aware solve in correlation coordinates, the same for
+#: every subset: directions of a correlation (sub-)matrix with eigenvalue below it are
+#: treated as exact linear relations (perfectly correlated inputs). One cut-off for all
+#: subsets keeps the game consistent: a relation kept in one subset is kept in all.
+RANK_TOL = 1e-10
 
 #: Largest number of players: 2**k subsets are enumerated.
 MAX_PLAYERS = 12
@@ -181,8 +183,8 @@ def standardize(cov) -> tuple:
 def _pinv_psd(a) -> np.ndarray:
     """Rank-aware pseudo-inverse of (stacks of) symmetric PSD matrices of order one."""
     w, v = np.linalg.eigh(a)
-    cut = RANK_RTOL * np.max(np.abs(w), axis=-1, keepdims=True)
-    inv = np.where(w > cut, 1.0 / np.where(w > cut, w, 1.0), 0.0)
+    keep = w > RANK_TOL
+    inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
     return (v * inv[..., None, :]) @ np.swapaxes(v, -1, -2)
 
 
@@ -210,11 +212,14 @@ def explained_variance(gradient, corr) -> np.ndarray:
     """
     g = np.asarray(gradient, dtype=float)
     r = np.asarray(corr, dtype=float)
+    lead = np.broadcast_shapes(g.shape[:-2], r.shape[:-2])
+    g = np.broadcast_to(g, lead + g.shape[-2:])
+    r = np.broadcast_to(r, lead + r.shape[-2:])
     k = r.shape[-1]
     b = r @ np.swapaxes(g, -1, -2)  # (..., k, m)
     inside = members(k)
     size = inside.sum(axis=1)
-    out = np.zeros(r.shape[:-2] + (2**k, g.shape[-2]))
+    out = np.zeros(lead + (2**k, g.shape[-2]))
     for n in range(1, k + 1):
         masks = np.flatnonzero(size == n)
         idx = np.nonzero(inside[masks])[1].reshape(masks.size, n)  # players of each subset, ascending

@@ -50,7 +50,7 @@ from ..errors import InputError
 from ..models.base import ForwardModel
 from ..sampling.gaussian import psd_factor, resolve_seed
 from .game import conditional_map, group_masks, members, shapley_values, standardize
-from .linear import extend_inputs, linear_costs
+from .linear import clip_rounding, extend_inputs, linear_costs
 
 __all__ = [
     "DEFAULT_GROUPS",
@@ -116,7 +116,7 @@ class ShapleyEstimate:
         return dict(zip(self.players, self.shares[self.outputs.index(output)].tolist()))
 
     def to_dict(self) -> dict:
-        """``{output: {player: {"share", "low", "high", "se"}, "total": ...}}`` and the player names."""
+        """``{output: {player: {"share", "low", "high", "se"}, "total": ...}}``, ``players`` and ``confidence``."""
         out = {}
         for j, q in enumerate(self.outputs):
             row = {
@@ -130,7 +130,7 @@ class ShapleyEstimate:
             }
             row["total"] = float(self.total[j])
             out[q] = row
-        out["inputs"] = list(self.players)
+        out["players"] = list(self.players)
         out["confidence"] = self.confidence
         return out
 
@@ -303,31 +303,32 @@ class GlobalBudget:
 
 
 def _game_inputs(star, model, cols):
-    """Inputs of the game: the six observables, plus the star's mass under focusing with a mass error.
+    """Inputs of the game: the six observables, then the model's nuisance parameters (e.g. the mass).
+
+    A nuisance parameter enters the game as its standard-normal deviate (mean 0,
+    variance 1), which the model maps to the parameter's own distribution
+    (:meth:`~perierr.models.base.ForwardModel.evaluate_nuisance`), so the game
+    budgets the same distribution the Monte Carlo draws from.
 
     Returns the player names, mean, covariance, the function of the inputs and
     the linear gradient (rows ``cols``) at the mean.
     """
-    from ..models.focusing import Focused
-
     mean6 = np.array(star.mean)
     jac = np.asarray(model.jacobian(mean6), dtype=float)[cols]
-    if isinstance(model, Focused) and model.mass_error_msun > 0:
-        players = OBSERVABLES + ("mass",)
-        mean = np.append(mean6, model.mass_msun)
-        grad, cov = extend_inputs(jac, star.cov, model.mass_jacobian(mean6)[cols], [model.mass_error_msun**2])
-
+    extra = tuple(model.nuisance(mean6))
+    if not extra:
         def func(x):
-            raw = model.base.evaluate(x[:, :6], reference=mean6)
-            # a Gaussian mass draw below zero is read as zero mass (no focusing)
-            return model.focus(raw, np.clip(x[:, 6], 0.0, None)).as_array()[:, cols]
+            return model.evaluate(x, reference=mean6).as_array()[:, cols]
 
-        return players, mean, cov, func, grad
+        return OBSERVABLES, mean6, np.array(star.cov), func, jac
+    columns = np.stack([p.gradient[cols] * math.sqrt(p.variance) for p in extra], axis=1)
+    grad, cov = extend_inputs(jac, star.cov, columns, np.ones(len(extra)))
 
     def func(x):
-        return model.evaluate(x, reference=mean6).as_array()[:, cols]
+        return model.evaluate_nuisance(x[:, :6], x[:, 6:], reference=mean6).as_array()[:, cols]
 
-    return OBSERVABLES, mean6, np.array(star.cov), func, jac
+    players = OBSERVABLES + tuple(p.name for p in extra)
+    return players, np.concatenate([mean6, np.zeros(len(extra))]), cov, func, grad
 
 
 def global_budget(
@@ -351,8 +352,8 @@ def global_budget(
     ----------
     star : ObservedStar
     model : ForwardModel
-        Under :class:`~perierr.models.focusing.Focused` with a mass error, the
-        star's mass is a seventh input of the budget.
+        Its nuisance parameters (the star's mass under focusing with a mass
+        error) are inputs of the budget after the six observables.
     outputs : sequence of str
         Output names from ``OUTPUTS`` (default t_ph and d_ph).
     n_outer, n_inner : int
@@ -410,9 +411,8 @@ def global_budget(
         )
         width_est = _estimate(stats_w, players, outputs, rng, n_boot, confidence)
     lin = linear_costs(grad, cov)
-    lin_var = (shapley_values(lin) / np.where(lin[-1] > 0, lin[-1], 1.0)).T
     wcost = 2 * Z90 * np.sqrt(lin)
-    lin_w = (shapley_values(wcost) / np.where(wcost[-1] > 0, wcost[-1], 1.0)).T
+    lin_var, lin_w = (clip_rounding((shapley_values(c) / np.where(c[-1] > 0, c[-1], 1.0)).T) for c in (lin, wcost))
     n_subsets = members(len(players)).shape[0] - 1
     settings = {
         "seed": seed,

@@ -24,18 +24,26 @@ Iooss, B. & Prieur, C. 2019, Int. J. Uncertainty Quantification 9, 493.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from .._constants import OBSERVABLES, OUTPUTS
-from ..errors import InputError
+from ..errors import InputError, PerierrWarning
 from .game import explained_variance, shapley_values, standardize
 
 __all__ = ["LinearBudget", "extend_inputs", "linear_budget", "linear_costs", "linear_shapley"]
 
 #: Shares within this of 0 or 1 are rounding, not information (the exact game is monotone).
 _ROUNDING = 1e-12
+
+#: Fraction of an output's variance that may lie along dropped (near-exact) relations
+#: before its budget is called undefined.
+_LOST = 1e-6
+
+#: Stars per block of the batched computation (about 200 kB per star for eight inputs).
+_CHUNK = 512
 
 
 @dataclass(frozen=True)
@@ -70,9 +78,12 @@ class LinearBudget:
             raise InputError("output", output, f"expected one of {OUTPUTS}")
         return dict(zip(self.inputs, tables[kind][OUTPUTS.index(output)].tolist()))
 
-    def dominant(self, output: str = "distance_pc") -> str:
-        """The input with the largest Shapley share of an output."""
-        return self.inputs[int(np.argmax(self.shapley[OUTPUTS.index(output)]))]
+    def dominant(self, output: str = "distance_pc") -> str | None:
+        """The input with the largest Shapley share of an output (None where the budget is undefined)."""
+        row = self.shapley[OUTPUTS.index(output)]
+        if np.isnan(row).any() or not row.any():
+            return None
+        return self.inputs[int(np.argmax(row))]
 
     def to_dict(self) -> dict:
         """``{output: {input: share}}``, the covariance contributions, and the input names."""
@@ -100,23 +111,48 @@ def linear_shapley(jacobian, cov) -> np.ndarray:
     jacobian : array_like, shape (..., m, k)
         One row per output, in any units consistent with ``cov``.
     cov : array_like, shape (..., k, k)
-        Covariance of the inputs (PSD; zero variances and perfect correlations allowed).
+        Covariance of the inputs (PSD; zero variances and perfect correlations
+        allowed). Leading axes broadcast against those of ``jacobian``.
 
     Returns
     -------
     ndarray, shape (..., m, k)
         Shares of each output's variance, in [0, 1], rows summing to 1; an
-        output with zero variance gets a row of zeros.
+        output with zero variance gets a row of zeros. A row is NaN where the
+        budget is undefined: the output's variance lies along a direction in
+        which two or more inputs are correlated to within :data:`.game.RANK_TOL`
+        of an exact relation (the output depends on their tiny difference);
+        :func:`linear_budget` warns about it.
     """
     g, corr = _standardized(jacobian, cov)
-    values = explained_variance(g, corr)  # (..., 2**k, m)
-    effects = np.moveaxis(shapley_values(np.moveaxis(values, -2, 0)), 0, -1)  # (..., m, k)
+    lead = np.broadcast_shapes(g.shape[:-2], corr.shape[:-2])
+    g = np.broadcast_to(g, lead + g.shape[-2:]).reshape((-1,) + g.shape[-2:])
+    corr = np.broadcast_to(corr, lead + corr.shape[-2:]).reshape((-1,) + corr.shape[-2:])
+    out = np.empty(g.shape)
+    for start in range(0, g.shape[0], _CHUNK):  # bounded memory: 2**k subset solves per star
+        block = slice(start, start + _CHUNK)
+        out[block] = _shares(g[block], corr[block])
+    return out.reshape(lead + g.shape[-2:])
+
+
+def _shares(g, corr) -> np.ndarray:
+    """Shares for a stack (s, m, k) of standardized gradients and correlation matrices."""
+    values = explained_variance(g, corr)  # (s, 2**k, m)
+    effects = np.moveaxis(shapley_values(np.moveaxis(values, -2, 0)), 0, -1)  # (s, m, k)
     total = values[..., -1, :]
+    direct = np.einsum("...mi,...ij,...mj->...m", g, corr, g)
     positive = total > 0
     shares = effects / np.where(positive, total, 1.0)[..., None]
-    shares = np.where(positive[..., None], shares, 0.0)
-    shares = np.where(shares < _ROUNDING, 0.0, shares)  # the game is monotone: only rounding is negative
-    return np.where(shares > 1 - _ROUNDING, 1.0, shares)
+    shares = clip_rounding(np.where(positive[..., None], shares, 0.0))
+    lost = direct - total > _LOST * np.maximum(direct, 0.0)
+    return np.where(lost[..., None], np.nan, shares)
+
+
+def clip_rounding(shares) -> np.ndarray:
+    """Set shares within rounding (1e-12) of 0 or 1 to exactly 0 or 1; other values are kept."""
+    s = np.asarray(shares, dtype=float)
+    s = np.where(np.abs(s) < _ROUNDING, 0.0, s)
+    return np.where(np.abs(s - 1) < _ROUNDING, 1.0, s)
 
 
 def linear_costs(jacobian, cov) -> np.ndarray:
@@ -197,4 +233,14 @@ def linear_budget(jacobian, cov, *, inputs=OBSERVABLES) -> LinearBudget:
     var = np.einsum("mi,ij,mj->m", g, corr, g)
     safe = np.where(var > 0, var, 1.0)
     contrib = np.where(var[:, None] > 0, g * (g @ corr) / safe[:, None], 0.0)
-    return LinearBudget(linear_shapley(j, s), contrib, np.einsum("mi,ij,mj->m", j, s, j), inputs)
+    shapley = linear_shapley(j, s)
+    undefined = [q for q, row in zip(OUTPUTS, shapley) if np.isnan(row).any()]
+    if undefined:
+        warnings.warn(
+            f"the Shapley budget of {', '.join(undefined)} is undefined: the output depends on the tiny "
+            "difference of inputs correlated to within 1e-10 of an exact relation; check the correlations "
+            "(the covariance contributions are still given)",
+            PerierrWarning,
+            stacklevel=2,
+        )
+    return LinearBudget(shapley, contrib, np.einsum("mi,ij,mj->m", j, s, j), inputs)

@@ -16,7 +16,26 @@ import numpy as np
 
 from .._constants import OUTPUTS
 
-__all__ = ["ForwardModel", "Perihelion"]
+__all__ = ["ForwardModel", "Nuisance", "Perihelion"]
+
+
+@dataclass(frozen=True)
+class Nuisance:
+    """An uncertain model parameter that is an input of its own (e.g. the star's mass under focusing).
+
+    Attributes
+    ----------
+    name : str
+        Its name in budgets and reports.
+    gradient : ndarray, shape (3,)
+        d (t_ph, d_ph, v_ph) / d parameter at the nominal point.
+    variance : float
+        Its variance (independent of the observables).
+    """
+
+    name: str
+    gradient: np.ndarray
+    variance: float
 
 
 @dataclass(frozen=True)
@@ -103,6 +122,22 @@ class ForwardModel(abc.ABC):
     def describe(self) -> dict:
         """Name and parameters of the model, for outputs."""
         return {"name": self.name}
+
+    def nuisance(self, point) -> tuple:
+        """Uncertain parameters of the model at ``point``, as :class:`Nuisance` records (none by default).
+
+        Linear propagation adds their variance and budgets give each a share.
+        """
+        return ()
+
+    def evaluate_nuisance(self, observables, deviates, *, reference=None) -> Perihelion:
+        """Evaluate with given standard-normal deviates of the nuisance parameters, shape (n, e).
+
+        A model with nuisance parameters maps each column to its parameter's
+        distribution (the same one its Monte Carlo draws from); the default has
+        none and ignores ``deviates``.
+        """
+        return self.evaluate(observables, reference=reference)
 
 
 def _fd_steps(point: np.ndarray) -> np.ndarray:

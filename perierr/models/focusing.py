@@ -22,9 +22,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.stats import truncnorm
+from scipy.stats import norm, truncnorm
 
-from .base import ForwardModel, Perihelion
+from .base import ForwardModel, Nuisance, Perihelion
 from .orbit.potentials import G_PC_KMS2_PER_MSUN
 
 __all__ = ["Focused", "hyperbolic_perihelion", "FocusingError"]
@@ -168,6 +168,26 @@ class Focused(ForwardModel):
         info["focusing_delta_speed_kms"] = dv
         return Perihelion(raw.time_myr, q, vq, flags=flags, info=info)
 
+    def nuisance(self, point) -> tuple:
+        """The star's mass, when its error is positive."""
+        if self.mass_error_msun > 0:
+            return (Nuisance("mass", self.mass_jacobian(point), self.mass_error_msun**2),)
+        return ()
+
+    def evaluate_nuisance(self, observables, deviates, *, reference=None) -> Perihelion:
+        """Focused perihelia with masses from standard-normal deviates, shape (n, 1).
+
+        A deviate z becomes the mass with the same quantile of the normal
+        distribution truncated at zero that :meth:`evaluate` draws from.
+        """
+        raw = self.base.evaluate(observables, reference=reference)
+        z = np.asarray(deviates, dtype=float).reshape(raw.distance_pc.size, -1)[:, 0]
+        if self.mass_error_msun == 0:
+            return self.focus(raw, np.full(z.size, self.mass_msun))
+        lower = -self.mass_msun / self.mass_error_msun
+        masses = truncnorm.ppf(norm.cdf(z), lower, np.inf, loc=self.mass_msun, scale=self.mass_error_msun)
+        return self.focus(raw, masses)
+
     def mass_jacobian(self, point) -> np.ndarray:
         """Derivative of (t_ph, d_ph, v_ph) with respect to the star's mass at the nominal mass, shape (3,).
 
@@ -179,6 +199,8 @@ class Focused(ForwardModel):
         b, v = float(raw.distance_pc[0]), float(raw.speed_kms[0])
         mu = G_PC_KMS2_PER_MSUN * (1.0 + self.mass_msun)
         q = float(hyperbolic_perihelion(b, v, self.mass_msun)[0])
+        if q == 0:  # head-on: q = 0 for any mass; v_q is infinite (undefined, shown as zero like the rest)
+            return np.zeros(3)
         dq = -q / (v * v * q + mu) * G_PC_KMS2_PER_MSUN
         return np.array([0.0, dq, -b * v / q**2 * dq])
 
@@ -194,11 +216,14 @@ class Focused(ForwardModel):
         b, v = float(raw.distance_pc[0]), float(raw.speed_kms[0])
         mu = G_PC_KMS2_PER_MSUN * (1.0 + self.mass_msun)
         q = float(hyperbolic_perihelion(b, v, self.mass_msun)[0])
+        out = jac.copy()
+        if q == 0:  # head-on: dq/db = dq/dv = 0 at b = 0 and v_q is infinite (undefined, shown as zero)
+            out[1:] = 0.0
+            return out
         den = v * v * q + mu
         dq_db, dq_dv = b * v * v / den, v * (b * b - q * q) / den
         dvq_db = v / q - b * v / q**2 * dq_db
         dvq_dv = b / q - b * v / q**2 * dq_dv
-        out = jac.copy()
         out[1] = dq_db * jac[1] + dq_dv * jac[2]
         out[2] = dvq_db * jac[1] + dvq_dv * jac[2]
         return out

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .._constants import AU_PER_PC, OUTPUTS
-from ..budget import LinearBudget, linear_budget
+from ..budget import LinearBudget, star_budget
 from ..models.base import ForwardModel
 from ..propagate.checks import require_positive_parallax
 from ..propagate.linear import LinearResult, linearize
@@ -262,6 +262,6 @@ def what_if(
     lin0, lin1 = linearize(star, model), linearize(improved, model)
     return WhatIf(
         measurements, star, improved, run(star), run(improved), lin0, lin1,
-        linear_budget(lin0.jacobian, star.cov), linear_budget(lin1.jacobian, improved.cov),
+        star_budget(star, lin0), star_budget(improved, lin1),
         {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "model": model.describe()},
     )

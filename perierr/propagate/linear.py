@@ -27,12 +27,15 @@ class LinearResult:
     jacobian : ndarray, shape (3, 6)
         d output / d observable in internal units.
     cov : ndarray, shape (3, 3)
-        ``J Sigma J^T``.
+        ``J Sigma J^T`` plus ``g g^T var`` of each nuisance parameter of the model.
+    nuisance : tuple of Nuisance
+        The model's uncertain parameters (e.g. the star's mass under focusing).
     """
 
     value: np.ndarray
     jacobian: np.ndarray
     cov: np.ndarray
+    nuisance: tuple = ()
 
     @property
     def sigma(self) -> np.ndarray:
@@ -78,4 +81,8 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     # machinery, e.g. no random focusing masses)
     value = model.evaluate(star.mean[None, :]).as_array()[0]
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
-    return LinearResult(value=value, jacobian=jac, cov=jac @ star.cov @ jac.T)
+    nuisance = tuple(model.nuisance(star.mean))
+    cov = jac @ star.cov @ jac.T
+    for p in nuisance:
+        cov = cov + p.variance * np.outer(p.gradient, p.gradient)
+    return LinearResult(value=value, jacobian=jac, cov=cov, nuisance=nuisance)

@@ -79,7 +79,8 @@ def _budget_lines(b) -> list:
         out.append(line + f"{lin:>18}")
     for pname, est in b.groups.items():
         parts = ", ".join(
-            f"{g} {format_share(est.shares[jd, k], decimals=3, percent=False)}" for k, g in enumerate(est.players)
+            f"{input_label(g)} {format_share(est.shares[jd, k], decimals=3, percent=False)}"
+            for k, g in enumerate(est.players)
         )
         out.append(f"  groups ({pname}), Var(d_ph): {parts}")
     for q, info in b.nonlinearity().items():
@@ -111,7 +112,7 @@ def format_plan(plan) -> str:
             est = plan.budget_improved.variance
             j = est.outputs.index("distance_pc")
             parts = ", ".join(
-                f"{name} {format_share(est.shares[j, i], decimals=3, percent=False)}"
+                f"{input_label(name)} {format_share(est.shares[j, i], decimals=3, percent=False)}"
                 for i, name in enumerate(est.players)
             )
             lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")

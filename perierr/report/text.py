@@ -138,7 +138,7 @@ def format_analysis(analysis) -> str:
             )  # fmt: skip
             lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
         lines.append(
-            f"  largest share: {b.dominant('distance_pc')} for the distance, {b.dominant('time_myr')} for the time"
+            f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
         )
     if a.comparison:
         lines.append("")
@@ -181,6 +181,11 @@ def format_analysis(analysis) -> str:
         "assessment for comets or the Oort cloud."
     )
     return "\n".join(lines)
+
+
+def _dominant(budget, output: str) -> str:
+    name = budget.dominant(output)
+    return "undefined" if name is None else input_label(name)
 
 
 def _prior_lines(prior: dict) -> list:
