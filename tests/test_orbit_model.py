@@ -8,8 +8,10 @@ import numpy as np
 import pytest
 from galpy.orbit import Orbit
 from galpy.potential import MWPotential2014 as GALPY_MW2014
+from galpy.potential import evaluateRforces, evaluatezforces
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy.integrate import solve_ivp
 
 from perierr._constants import AU_PER_PC, MYR_PER_PC_PER_KMS
 from perierr.frames import cartesian_to_observables, observables_to_cartesian
@@ -74,6 +76,67 @@ def galpy_perihelion(obs, t_guess_myr):
     d2min = y1 - 0.25 * (y0 - y2) * off
     speed = np.linalg.norm((vs - vu)[1:][i])
     return tmin, math.sqrt(d2min), speed
+
+
+# Myr per pc/(km/s) from astropy's units directly (the independent integration
+# below uses no constant, frame or force of the package).
+REF_MYR_PER_TIME_UNIT = float((1.0 * u.pc / (u.km / u.s)).to_value(u.Myr))
+
+
+def galpy_initial_states(obs):
+    """The Sun (row 0) and the stars in galpy's Galactocentric frame: x, y, z [pc], vx, vy, vz [km/s].
+
+    galpy 1.12 ``Orbit(radec=True)`` does the ICRS -> Galactocentric transformation
+    with the solar parameters of ``GALPY_KW``.
+    """
+    obs = np.atleast_2d(obs)
+    stars = Orbit([[o[0], o[1], 1.0 / o[2], o[3], o[4], o[5]] for o in obs], radec=True, **GALPY_KW)
+    sun = Orbit(**GALPY_KW)
+
+    def xv(o):  # kpc -> pc; km/s
+        cols = [np.atleast_1d(f()) for f in (o.x, o.y, o.z, o.vx, o.vy, o.vz)]
+        return np.stack(cols, axis=-1) * np.array([1000.0, 1000.0, 1000.0, 1.0, 1.0, 1.0])
+
+    return np.concatenate([xv(sun), xv(stars)])
+
+
+def galpy_acceleration(pos):
+    """MWPotential2014 acceleration [(km/s)^2/pc] at Galactocentric positions (k, 3) [pc], from galpy."""
+    big_r = np.hypot(pos[:, 0], pos[:, 1])
+    unit_f = 220.0**2 / 8000.0  # galpy natural force unit vo^2 / ro
+    fr = evaluateRforces(GALPY_MW2014, big_r / 8000.0, pos[:, 2] / 8000.0) * unit_f
+    fz = evaluatezforces(GALPY_MW2014, big_r / 8000.0, pos[:, 2] / 8000.0) * unit_f
+    return np.stack([fr * pos[:, 0] / big_r, fr * pos[:, 1] / big_r, fz], axis=-1)
+
+
+def reference_relative_orbits(obs, t_end_myr, *, rtol=1e-12):
+    """Independent orbits of the stars relative to the Sun from t = 0 to t_end_myr.
+
+    The Sun and every star are test particles in galpy's MWPotential2014
+    (``galpy_acceleration``), integrated in Galactocentric coordinates with
+    scipy's DOP853 (Hairer, Norsett & Wanner 1993) at ``rtol`` and atol 1e-9
+    (pc, km/s), with dense output. Returns ``rel(t_myr) -> (len(t), n, 6)``,
+    the star-minus-Sun states (pc, km/s) from the dense-output interpolant.
+    """
+    y0 = galpy_initial_states(obs)
+    k = y0.shape[0]
+
+    def fun(_t, y):
+        yy = y.reshape(k, 6)
+        return np.concatenate([yy[:, 3:], galpy_acceleration(yy[:, :3])], axis=1).ravel()
+
+    sol = solve_ivp(
+        fun, (0.0, t_end_myr / REF_MYR_PER_TIME_UNIT), y0.ravel(), method="DOP853",
+        rtol=rtol, atol=1e-9, dense_output=True,
+    )  # fmt: skip
+    assert sol.success, sol.message
+
+    def rel(t_myr):
+        y = sol.sol(np.atleast_1d(np.asarray(t_myr, dtype=float)) / REF_MYR_PER_TIME_UNIT)
+        y = y.T.reshape(-1, k, 6)
+        return y[:, 1:] - y[:, :1]
+
+    return rel
 
 
 STARS = invented_stars(22, seed=20261202)
@@ -167,17 +230,45 @@ def test_solar_sets_match_astropy_and_the_issue():
 
 
 def test_perihelion_outside_window_is_flagged_not_clipped():
-    # straight line (Matthews 1994) is the limit for the extrapolation from the edge;
-    # an invented star 5 Myr ahead with a 1 Myr window
-    obs = np.array([[120.0, -30.0, 50.0, 3.0, 1.0, -4.0]])  # 20 pc, slow
-    sl = StraightLine().evaluate(obs)
-    ph = OrbitModel(horizon_myr=1.0).evaluate(obs)
+    # An invented slow star 20 pc away whose perihelion is ~4.8 Myr ahead, searched
+    # in a 1 Myr window. The documented rule (OrbitModel docstring): flagged, and
+    # given the straight-line extrapolation from the relative state at the window
+    # edge, t = t_e - s.w / |w|^2, d = |s + w (t - t_e)|, v = |w| (Matthews 1994
+    # for the straight line).
+    obs = np.array([[120.0, -30.0, 50.0, 3.0, 1.0, -4.0]])
+    edge = 1.0
+    ph = OrbitModel(horizon_myr=edge).evaluate(obs)
     assert ph.flags[0] and ph.info["n_outside_window"] == 1
-    assert ph.time_myr[0] == pytest.approx(sl.time_myr[0], rel=0.02)
-    assert ph.time_myr[0] > 1.0
+    # independent state at the window edge: scipy DOP853 at rtol 1e-12 of the Sun
+    # and the star in galpy's MWPotential2014, initial conditions from galpy's
+    # frame transformation (reference_relative_orbits; no package code involved)
+    rel = reference_relative_orbits(obs, edge)(edge)[0, 0]
+    s, w = rel[:3], rel[3:]
+    assert s @ w < 0  # the separation still falls at the edge: the flag is deserved
+    dt = -(s @ w) / (w @ w)
+    t_ref = edge + dt * REF_MYR_PER_TIME_UNIT
+    d_ref = float(np.linalg.norm(s + w * dt))
+    v_ref = float(np.linalg.norm(w))
+    # Tolerance 1e-6 relative: the package's state at the edge is its DOP853
+    # solution (rtol 1e-10) at a grid node, with no interpolation, in a potential
+    # that matches galpy's forces to 1e-9 (test_potentials); the extrapolation
+    # amplifies relative errors by about dt |w| / d ~ 10. Observed: ~1e-11.
+    tol = 1e-6
+    assert ph.time_myr[0] == pytest.approx(t_ref, rel=tol)
+    assert ph.distance_pc[0] == pytest.approx(d_ref, rel=tol)
+    assert ph.speed_kms[0] == pytest.approx(v_ref, rel=tol)
+    # the check can fail: the straight line from today (Matthews 1994), and the
+    # clipped answer (time and separation at the edge itself), differ from the
+    # reference by far more than the tolerance
+    sl = StraightLine().evaluate(obs)
+    assert abs(sl.time_myr[0] / t_ref - 1) > 100 * tol
+    assert abs(sl.distance_pc[0] / d_ref - 1) > 100 * tol
+    assert abs(np.linalg.norm(s) / d_ref - 1) > 100 * tol and t_ref > edge + 1.0
+    # with a window that holds the perihelion the same star is not flagged, and
+    # its perihelion lies beyond the short window's edge
     full = OrbitModel(horizon_myr=10.0).evaluate(obs)
-    assert not full.flags[0]
-    assert ph.distance_pc[0] == pytest.approx(full.distance_pc[0], rel=0.05)
+    assert not full.flags[0] and full.info["n_outside_window"] == 0
+    assert full.time_myr[0] > edge
 
 
 def test_jacobian_from_transition_matrix_matches_finite_differences():
