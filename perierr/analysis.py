@@ -19,6 +19,7 @@ from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, star_budget
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
+from .models.straight import HEAD_ON_RELATIVE
 from .propagate.checks import require_motion
 from .propagate.linear import LinearResult, linearize
 from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
@@ -275,7 +276,7 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
             "no linearized columns or linear budget: the nominal parallax is <= 0 and cannot be "
             "inverted; the Monte Carlo columns are the posterior under the distance prior"
         )
-    elif linear.value[1] <= 1e-9 * 1000.0 / star.mean[2]:
+    elif linear.value[1] <= HEAD_ON_RELATIVE * 1000.0 / star.mean[2]:
         out.append(
             "the nominal path passes through the Sun (d_ph = 0), where d_ph is not differentiable: "
             "its linearized sigma and linear budget are undefined (shown as zero); use the Monte Carlo quantiles"

@@ -174,7 +174,9 @@ def conditional_costs(func, mean, cov, *, n_outer, n_inner, rng, statistic="vari
         if statistic == "variance":
             stats[mask] = y.var(axis=1, ddof=1).T
         else:
-            lo, hi = np.quantile(y, [0.5 - level / 2, 0.5 + level / 2], axis=1)
+            # median-unbiased sample quantiles (Hyndman & Fan 1996, type 8): numpy's default (type 7) sits
+            # inside the true quantiles for small inner samples (1.2 % narrow at 256 draws of a Gaussian)
+            lo, hi = np.quantile(y, [0.5 - level / 2, 0.5 + level / 2], axis=1, method="median_unbiased")
             stats[mask] = (hi - lo).T
     return stats
 

@@ -25,6 +25,10 @@ from .base import ForwardModel, Perihelion
 
 __all__ = ["StraightLine", "perihelion_from_cartesian", "perihelion_cartesian_jacobian"]
 
+#: A nominal path with d_ph below this fraction of the star's distance counts as head-on: d_ph has a
+#: kink there, its Jacobian row is zero and the analysis says its linear sigma is undefined.
+HEAD_ON_RELATIVE = 1e-9
+
 
 class StraightLine(ForwardModel):
     """Straight-line (linear motion) perihelion model, with an analytic Jacobian.
@@ -116,7 +120,7 @@ def perihelion_cartesian_jacobian(cartesian) -> np.ndarray:
         unit = closest / dist
     # exactly head-on, |closest| is rounding noise and d_ph = |closest| has a kink, not a
     # derivative: give the d_ph row zeros (callers warn that its linear sigma is undefined)
-    unit = np.where(dist > 1e-12 * np.linalg.norm(x, axis=-1)[..., None], unit, 0.0)
+    unit = np.where(dist > HEAD_ON_RELATIVE * np.linalg.norm(x, axis=-1)[..., None], unit, 0.0)
     jac = np.zeros(xv.shape[:-1] + (3, 6))
     jac[..., 0, :3] = -v / vv * _C
     jac[..., 0, 3:] = (-x / vv + 2.0 * xdv * v / vv**2) * _C
