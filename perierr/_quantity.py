@@ -41,7 +41,7 @@ def to_number(field: str, value, unit, *, row=None, text_needs_unit: bool = True
     hint = f" or a quantity such as {example!r}" if example else ""
     if isinstance(value, (bool, np.bool_)):
         raise InputError(field, value, f"expected a number{where}, not a boolean", row)
-    given = value
+    given = str(value) if isinstance(value, np.str_) else value
     try:
         if isinstance(value, str):
             q = u.Quantity(value.strip())
@@ -57,12 +57,12 @@ def to_number(field: str, value, unit, *, row=None, text_needs_unit: bool = True
             value = value.to_value(u.dimensionless_unscaled if unit is None else unit)
         out = float(value)
     except u.UnitsError:
-        raise InputError(
-            field,
-            given if isinstance(given, str) else str(given),
-            f"expected a quantity convertible to {unit} (a number in {unit}{hint})",
-            row,
-        ) from None
+        expected = (
+            "expected a plain number (this field has no unit)"
+            if unit is None
+            else f"expected a quantity convertible to {unit} (a number in {unit}{hint})"
+        )
+        raise InputError(field, given if isinstance(given, str) else str(given), expected, row) from None
     except (TypeError, ValueError) as exc:
         if isinstance(exc, InputError):
             raise

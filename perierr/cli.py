@@ -35,6 +35,31 @@ def _strings(text: str) -> list:
     return [x.strip() for x in text.split(",") if x.strip()]
 
 
+def _check_distances(args) -> None:
+    """Distances of --within and --curve-within are checked when read, used or not (never silently ignored)."""
+    from .thresholds import parse_thresholds
+
+    for option in ("within", "curve_within"):
+        value = getattr(args, option, None)
+        if value is None:
+            continue
+        items = [value] if isinstance(value, str) else list(value)
+        if not items:
+            raise InputError(f"--{option.replace('_', '-')}", ",", "expected distances with units, e.g. 1pc,20000au")
+        parse_thresholds(items)
+
+
+def _count(text: str) -> int:
+    """A whole number >= 1 (draws, points)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 1, got {value}")
+    return value
+
+
 def _add_common_options(p: argparse.ArgumentParser, *, within_help: str, json_help: str) -> None:
     """Options every analysing command shares: thresholds, seed, JSON output, model."""
     p.add_argument("--within", type=_strings, default=list(DEFAULT_THRESHOLDS), metavar="D,D", help=within_help)
@@ -44,7 +69,7 @@ def _add_common_options(p: argparse.ArgumentParser, *, within_help: str, json_he
 
 
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--samples", type=int, default=100_000, metavar="N", help="Monte Carlo draws (default 100000)")
+    p.add_argument("--samples", type=_count, default=100_000, metavar="N", help="Monte Carlo draws (default 100000)")
     _add_common_options(
         p,
         within_help="distances for P(d_ph < D), with units (default '0.5pc,1pc,2pc,20000au,100000au')",
@@ -58,7 +83,7 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
         metavar="F",
         help="draw until every quantile's MC error is below F x (q84-q16)/2 (e.g. 0.01)",
     )
-    p.add_argument("--max-samples", type=int, default=10_000_000, metavar="N", help="cap for --target-error")
+    p.add_argument("--max-samples", type=_count, default=10_000_000, metavar="N", help="cap for --target-error")
     p.add_argument(
         "--focusing", action="store_true", help="add the gravitational focusing of the star's mass (mass, mass_error)"
     )
@@ -167,6 +192,8 @@ def _screen(path, out) -> None:
             f"  {r.parallax_fraction:.1%}{flag}",
             file=out,
         )
+        for note in r.notes:
+            print(f"         note: {note}", file=out)
     if weak:
         print("  (σ_ϖ/ϖ > 20 %: 1/parallax is a biased distance; see perierr run --distance-prior)", file=out)
 
@@ -214,14 +241,14 @@ def _add_plan_parser(sub) -> None:
     p.add_argument(
         "--budget", action=argparse.BooleanOptionalAction, default=True, help="global (Monte Carlo Shapley) budget"
     )
-    p.add_argument("--points", type=int, default=20, metavar="N", help="precisions per gain curve (default 20)")
+    p.add_argument("--points", type=_count, default=20, metavar="N", help="precisions per gain curve (default 20)")
     p.add_argument("--curve-within", default="20000 au", metavar="D", help="threshold of the probability curve")
     p.add_argument(
-        "--samples", type=int, default=20_000, metavar="N", help="common draws for curves and goals (default 20000)"
+        "--samples", type=_count, default=20_000, metavar="N", help="common draws for curves and goals (default 20000)"
     )
     p.add_argument(
         "--whatif-samples",
-        type=int,
+        type=_count,
         default=100_000,
         metavar="N",
         help="draws for the side-by-side summaries (default 100000)",
@@ -266,30 +293,73 @@ def _plan(args, out) -> None:
         print(f"Gain curves plotted to {args.plot}", file=out)
 
 
+#: Exit statuses: 0 done; 2 bad input (a file, a field, an option); 3 the system refused (disk, permissions);
+#: 4 not enough memory; 130 interrupted (Ctrl-C), the shell's convention (128 + SIGINT).
+EXIT_INPUT, EXIT_SYSTEM, EXIT_MEMORY, EXIT_INTERRUPTED = 2, 3, 4, 130
+
+
+def _prepare_outputs(args) -> None:
+    """Check every output path before any work, and remove old results there (said on stderr)."""
+    from .report.files import prepare_output
+
+    for option in ("json", "plot"):
+        path = getattr(args, option, None)
+        if path is not None:
+            note = prepare_output(path, option=f"--{option}")
+            if note:
+                print(f"perierr: {note}", file=sys.stderr)
+
+
+def _dispatch(args, out) -> None:
+    if args.command == "demo":
+        survey = demo_path("kestrel_survey.ecsv")
+        print("Demo on invented data: the Kestrel survey and its stars are fictional.\n", file=out)
+        _screen(survey, out)
+        print("\nFull analysis of the closest pass:\n", file=out)
+        _run_star(_read_star(demo_path("kestrel-4.toml")), args, out)
+    elif args.command == "run":
+        _run_star(_read_star(args.star_file), args, out)
+    elif args.command == "screen":
+        _screen(args.table, out)
+    elif args.command == "plan":
+        _plan(args, out)
+
+
+def _fail(message: str, status: int) -> int:
+    print(f"perierr: {message}", file=sys.stderr)
+    return status
+
+
 def main(argv=None, out=None) -> int:
-    """Entry point of the ``perierr`` command; returns the exit status."""
+    """Entry point of the ``perierr`` command; returns the exit status.
+
+    The one place where faults become messages: bad input, the file system,
+    memory and Ctrl-C each end in one line on stderr and their own exit status
+    (:data:`EXIT_INPUT`, :data:`EXIT_SYSTEM`, :data:`EXIT_MEMORY`,
+    :data:`EXIT_INTERRUPTED`); results are written atomically, so a failed run
+    leaves no partial or stale result behind.
+    """
     out = out or sys.stdout
-    args = _parser().parse_args(argv)
+    args = _parser().parse_args(argv)  # usage errors: argparse prints the usage and exits with status 2
     try:
-        if args.command == "demo":
-            survey = demo_path("kestrel_survey.ecsv")
-            print("Demo on invented data: the Kestrel survey and its stars are fictional.\n", file=out)
-            _screen(survey, out)
-            print("\nFull analysis of the closest pass:\n", file=out)
-            _run_star(_read_star(demo_path("kestrel-4.toml")), args, out)
-        elif args.command == "run":
-            _run_star(_read_star(args.star_file), args, out)
-        elif args.command == "screen":
-            _screen(args.table, out)
-        elif args.command == "plan":
-            _plan(args, out)
+        _check_distances(args)
+        _prepare_outputs(args)
+        _dispatch(args, out)
     except (InputError, ValueError, ChainTooShortError) as exc:
-        print(f"perierr: error: {exc}", file=sys.stderr)
-        return 2
+        return _fail(f"error: {exc}", EXIT_INPUT)
+    except KeyboardInterrupt:
+        return _fail("interrupted (Ctrl-C); no result was written", EXIT_INTERRUPTED)
+    except MemoryError:
+        return _fail(
+            "not enough memory for this run; use fewer draws (--samples) or close other programs", EXIT_MEMORY
+        )
     except BrokenPipeError:  # e.g. `perierr demo | head`: stop quietly (Python docs, "Note on SIGPIPE")
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 1
+    except OSError as exc:
+        where = f": {exc.filename}" if exc.filename else ""
+        return _fail(f"{exc.strerror or exc}{where}; nothing was written there", EXIT_SYSTEM)
     return 0
 
 

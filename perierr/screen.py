@@ -6,13 +6,15 @@ cannot be computed say why instead of disappearing.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from ._constants import AU_PER_PC
-from .errors import InputError
+from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine
+from .models.straight import HEAD_ON_RELATIVE
 from .propagate.linear import linearize
 from .star import ObservedStar
 
@@ -32,6 +34,8 @@ class ScreenRow:
     time_myr, time_sigma, distance_pc, distance_sigma, speed_kms : float or None
     parallax_fraction : float or None
         parallax_error / parallax (above about 0.2, 1/parallax is a biased distance).
+    notes : tuple of str
+        Cautions about this row (unit slips, implausible values, a head-on path).
     """
 
     row: int
@@ -43,6 +47,7 @@ class ScreenRow:
     distance_sigma: float | None = None
     speed_kms: float | None = None
     parallax_fraction: float | None = None
+    notes: tuple = ()
 
     @property
     def distance_au(self) -> float | None:
@@ -80,22 +85,30 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
                 "expected ECSV, FITS or VOTable with catalogue column names",
             ) from None
     model = model or StraightLine()
-    out = []
-    for i, row in enumerate(table):
-        name = str(row["name"]) if "name" in table.colnames else f"row {i}"
-        try:
+    return [_screen_row(i, row, table.colnames, model) for i, row in enumerate(table)]
+
+
+def _screen_row(i, row, colnames, model) -> ScreenRow:
+    """One row: its numbers, or the reason it has none; its cautions stay with it (not on stderr)."""
+    name = str(row["name"]) if "name" in colnames else f"row {i}"
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", PerierrWarning)  # the messages are in star.notes
             star = ObservedStar.from_mapping(row, row=i, strict=False)
-            lin = linearize(star, model)
-        except InputError as exc:
-            reason = exc.expected.split(";")[0].split(" (")[0]
-            if exc.field == "parallax" and isinstance(exc.value, float) and exc.value <= 0:
-                reason = "a parallax <= 0 cannot be inverted; analyse it with a distance prior (--distance-prior)"
-            out.append(ScreenRow(i, name, f"not computed: {exc.field} = {exc.value!r}: {reason}"))
-            continue
-        t, d, v = (float(x) for x in lin.value)
-        st, sd = float(lin.sigma[0]), float(lin.sigma[1])
-        out.append(ScreenRow(i, star.name, "ok", t, st, d, sd, v, star.fractional_parallax_error))
-    return out
+        lin = linearize(star, model)
+    except InputError as exc:
+        reason = exc.expected.split(";")[0].split(" (")[0]
+        if exc.field == "parallax" and isinstance(exc.value, float) and exc.value <= 0:
+            reason = "a parallax <= 0 cannot be inverted; analyse it with a distance prior (--distance-prior)"
+        return ScreenRow(i, name, f"not computed: {exc.field} = {exc.value!r}: {reason}")
+    if not (np.all(np.isfinite(lin.value)) and np.all(np.isfinite(lin.sigma))):
+        return ScreenRow(i, star.name, "not computed: the linearized perihelion is not a finite number")
+    t, d, v = (float(x) for x in lin.value)
+    st, sd = float(lin.sigma[0]), float(lin.sigma[1])
+    notes = tuple(n.removeprefix(f"row {i}: ") for n in star.notes if not n.endswith("held exact"))
+    if d <= HEAD_ON_RELATIVE * 1000.0 / star.mean[2]:
+        notes += ("the nominal path passes through the Sun: the linear sigma of d_ph is undefined (shown as 0)",)
+    return ScreenRow(i, star.name, "ok", t, st, d, sd, v, star.fractional_parallax_error, notes)
 
 
 def nearest_first(rows) -> list:

@@ -28,7 +28,7 @@ import astropy.units as u
 import numpy as np
 import tomllib
 
-from ._constants import MAS_PER_DEG, OBSERVABLES
+from ._constants import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MAS_PER_DEG, OBSERVABLES
 from ._quantity import to_number
 from .errors import InputError, PerierrWarning
 
@@ -217,8 +217,14 @@ class ObservedStar:
         dec = values["dec"]
         if not -90.0 <= dec <= 90.0:
             raise InputError("dec", dec, "expected a declination in [-90, 90] deg", row)
+        notes.extend(_plausibility(values, row))
         corrs = {}
         for name in _CORRS:
+            if data.get(name) is MASKED:
+                raise InputError(
+                    name, "masked", "the column is present but this value is missing (or NaN); expected a "
+                    "correlation in [-1, 1] (a catalogue without the column means 0)", row
+                )
             if name in data and not _is_missing(data[name]):
                 c = _to_float(name, data[name], row, unit=None)
                 if not -1.0 <= c <= 1.0:
@@ -278,11 +284,20 @@ def read_star_file(path) -> ObservedStar:
         ``parallax = "12.3 mas"``).
     """
     path = Path(path)
+    if path.is_dir():
+        raise InputError("star file", str(path), "is a folder; expected a TOML star file")
     try:
         with path.open("rb") as fh:
             data = tomllib.load(fh)
     except FileNotFoundError:
         raise InputError("star file", str(path), "file not found") from None
+    except PermissionError:
+        raise InputError("star file", str(path), "cannot be read (permission denied)") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(
+            "star file", str(path), f"is not UTF-8 text (byte {exc.object[exc.start:exc.start + 1]!r} at offset "
+            f"{exc.start}); save it as UTF-8 TOML"
+        ) from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError("star file", str(path), f"not valid TOML ({exc})") from None
     if "star" in data and isinstance(data["star"], Mapping):
@@ -312,7 +327,7 @@ def _as_dict(mapping) -> dict:
         col = mapping.table[name] if hasattr(mapping, "table") else None
         value = mapping[name]
         if _is_missing(value):  # masked (or NaN read back as masked): missing, never 0
-            out[name] = None
+            out[name] = MASKED
             continue
         if col is not None and getattr(col, "unit", None) is not None and np.ndim(value) == 0:
             value = u.Quantity(value, col.unit)
@@ -320,8 +335,19 @@ def _as_dict(mapping) -> dict:
     return out
 
 
+class _Masked:
+    """A masked table cell: the column is there but the value is not (never read as 0)."""
+
+    def __repr__(self) -> str:
+        return "masked"
+
+
+#: Stands for a masked cell of a present column.
+MASKED = _Masked()
+
+
 def _is_missing(value) -> bool:
-    if value is None:
+    if value is None or value is MASKED:
         return True
     if np.ma.is_masked(value):
         return True
@@ -330,7 +356,8 @@ def _is_missing(value) -> bool:
 
 def _to_float(name, value, row, unit="default") -> float:
     target = _UNITS.get(name) if unit == "default" else unit
-    return to_number(name, value, target, row=row)
+    # a table cell read as text (one bad cell turns a CSV column into text) is a number in the column's unit
+    return to_number(name, value, target, row=row, text_needs_unit=row is None)
 
 
 def _split_corr(name: str) -> tuple:
@@ -355,6 +382,52 @@ def _check_psd(matrix, *, row=None, what="covariance matrix"):
         )
 
 
+#: Speed of light [km/s] (astropy.constants): no star moves faster.
+_C_KMS = 299_792.458
+
+#: Bounds of plausibility, each with its reason. A radial velocity beyond |1,000| km/s exceeds the Galaxy's
+#: escape speed near the Sun (about 550 km/s, Piffl et al. 2014, A&A 562, A91; from memory) by far: most
+#: likely m/s read as km/s. A parallax above 800 mas puts the star closer than the nearest known star
+#: (1.30 pc, from memory); above 1e5 mas, closer than 2,100 au: inside the region perierr's answers are about.
+_RV_CAUTION_KMS = 1_000.0
+_PARALLAX_CAUTION_MAS = 800.0
+_PARALLAX_MAX_MAS = 1e5
+
+
+def _plausibility(values, row) -> list:
+    """Refuse the impossible, note the implausible: ra range, speeds above c, absurd distances."""
+    ra, plx, rv = values["ra"], values["parallax"], values["radial_velocity"]
+    if not 0.0 <= ra < 360.0:
+        raise InputError("ra", ra, "expected a right ascension in [0, 360) deg (perierr does not wrap it)", row)
+    if plx > _PARALLAX_MAX_MAS:
+        raise InputError(
+            "parallax", plx, f"a star closer than {1e3 / plx * AU_PER_PC:,.0f} au is not a passing star; "
+            "expected mas (check the unit)", row
+        )
+    # transverse speed 4.74047 km/s per (mas/yr) at 1 mas; the total speed must stay below c
+    vt = KMS_PER_MASYR_AT_1MAS * math.hypot(values["pmra"], values["pmdec"]) / plx if plx > 0 else 0.0
+    speed = math.hypot(vt, rv)
+    if speed >= _C_KMS:
+        field, value = ("radial_velocity", rv) if abs(rv) >= _C_KMS else ("pmra", values["pmra"])
+        raise InputError(
+            field, value, f"the star would move at {speed:.3g} km/s, faster than light ({_C_KMS:,.0f} km/s); "
+            "check the units", row
+        )
+    where = f"row {row}: " if row is not None else ""
+    notes = []
+    if abs(rv) > _RV_CAUTION_KMS:
+        notes.append(
+            f"{where}radial_velocity = {rv:g} km/s is beyond |{_RV_CAUTION_KMS:,.0f}| km/s, far above the Galaxy's "
+            "escape speed: check the unit (m/s?)"
+        )
+    if plx > _PARALLAX_CAUTION_MAS:
+        notes.append(
+            f"{where}parallax = {plx:g} mas puts the star at {1e3 / plx:.3g} pc, closer than the nearest known "
+            "star (1.30 pc): check the unit"
+        )
+    return notes
+
+
 def _warn_unit_slips(values, row) -> list:
     """Warn about likely unit slips; return the messages so reports can show them."""
     where = f"row {row}: " if row is not None else ""
@@ -365,7 +438,9 @@ def _warn_unit_slips(values, row) -> list:
             f"{where}parallax = {plx} with parallax_error = {eplx} looks like arcsec; "
             "perierr reads bare numbers in mas (pass a Quantity to be explicit)"
         )
-    for name in ("parallax", "pmra", "pmdec", "radial_velocity"):
+    # not the radial velocity: values near zero are common and valid (a star crossing the line of sight), and
+    # spectroscopic errors of a few km/s are normal, so an error far above the value says nothing about units
+    for name in ("parallax", "pmra", "pmdec"):
         value, err = abs(values[name]), values[f"{name}_error"]
         if value > 0 and err > 100 * value and err > 1.0:
             messages.append(

@@ -41,6 +41,8 @@ def weighted_quantiles(x, probs, weights=None) -> np.ndarray:
     twice as fast as ``np.partition`` at 10^6 samples).
     """
     probs = np.asarray(probs, dtype=float)
+    if not np.all(np.isfinite(x)):
+        return _quantiles_with_infinities(np.asarray(x, dtype=float), probs, weights)
     if weights is None:
         x = np.asarray(x, dtype=float)
         if x.size < _BINNED_FROM:
@@ -53,6 +55,17 @@ def weighted_quantiles(x, probs, weights=None) -> np.ndarray:
         cdf = (np.cumsum(ws) - 0.5 * ws) / ws.sum()
         return np.interp(probs, cdf, xs)
     return _binned_weighted_quantiles(x, probs, w)
+
+
+def _quantiles_with_infinities(x, probs, weights) -> np.ndarray:
+    """The same definition where some draws are infinite: between two infinite draws, the draw itself."""
+    w = np.ones(x.size) if weights is None else np.asarray(weights, dtype=float)
+    xs, ws = _stable_sorted(x, w)
+    cdf = (np.cumsum(ws) - 0.5 * ws) / ws.sum()
+    with np.errstate(invalid="ignore"):
+        out = np.interp(probs, cdf, xs)
+    nearest = xs[np.clip(np.searchsorted(cdf, probs), 0, xs.size - 1)]
+    return np.where(np.isnan(out), nearest, out)
 
 
 #: Sample size from which weighted quantiles avoid a full sort.
@@ -162,6 +175,10 @@ class OutputSummary:
     quantile_se : dict
         Level -> Monte Carlo standard error of that quantile.
     skewness : float
+        0 where the spread is below rounding (all draws equal to within 1e-12).
+    note : str
+        Why a moment is not a finite number, when it is not (draws at infinity);
+        empty otherwise.
     """
 
     name: str
@@ -176,6 +193,7 @@ class OutputSummary:
     skewness: float
     quantiles: dict = field(default_factory=dict)
     quantile_se: dict = field(default_factory=dict)
+    note: str = ""
 
     def interval(self, level: float = 0.9) -> tuple:
         """Central interval holding ``level`` of the samples, from stored quantiles."""
@@ -196,7 +214,54 @@ class OutputSummary:
         out["n"] = self.n
         out["effective_size"] = self.effective_size
         out["unit"] = self.unit
+        if self.note:
+            out["note"] = self.note
         return out
+
+
+def _moments(x, w) -> tuple:
+    """Effective size, mean and central moments 2-4 (weighted or not); inf - inf stays quiet here."""
+    with np.errstate(invalid="ignore", over="ignore"):
+        if w is None:
+            n_eff = float(x.size)
+            mean = float(x.mean())
+            dev = x - mean
+            dev2 = dev * dev
+            return n_eff, mean, float(dev2.sum() / x.size), float(np.dot(dev2, dev) / x.size), float(
+                np.dot(dev2, dev2) / x.size
+            )
+        wsum = w.sum()
+        n_eff = float(wsum**2 / np.dot(w, w))
+        mean = float(np.dot(w, x) / wsum)
+        dev = x - mean
+        dev2 = dev * dev
+        wdev2 = w * dev2
+        return n_eff, mean, float(wdev2.sum() / wsum), float(np.dot(wdev2, dev) / wsum), float(
+            np.dot(wdev2, dev2) / wsum
+        )
+
+
+#: A spread below this fraction of the mean is rounding: skewness 0, kurtosis 3 (a point mass has no shape).
+_ROUNDING_SPREAD = 1e-12
+
+
+def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
+    """Standard deviation, skewness, kurtosis and a note where they are not finite numbers."""
+    if not (math.isfinite(mean) and math.isfinite(m2)):
+        bad = ~np.isfinite(x) if w is None else (~np.isfinite(x)) & (w > 0)
+        n_bad = int(np.count_nonzero(bad))
+        note = (
+            f"{n_bad:,} of {x.size:,} draws are infinite or undefined: the mean and the moments are not finite "
+            "numbers; the quantiles are"
+        )
+        return math.inf, math.nan, math.nan, note
+    std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
+    if not math.sqrt(m2) > _ROUNDING_SPREAD * abs(mean):
+        return std, 0.0, 3.0, ""
+    root3, m2sq = math.sqrt(m2) ** 3, m2 * m2
+    if not (root3 > 0 and m2sq > 0):  # an underflowing spread (values near 1e-100 and below)
+        return std, 0.0, 3.0, ""
+    return std, m3 / root3, m4 / m2sq, ""
 
 
 def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:
@@ -222,27 +287,8 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
         if not 0.0 < q < 1.0:
             raise ValueError(f"quantile level {q!r}: expected a number strictly between 0 and 1")
     w = None if weights is None else np.asarray(weights, dtype=float)
-    if w is None:
-        n_eff = float(x.size)
-        mean = float(x.mean())
-        dev = x - mean
-        dev2 = dev * dev
-        m2 = float(dev2.sum() / x.size)
-        m3 = float(np.dot(dev2, dev) / x.size)
-        m4 = float(np.dot(dev2, dev2) / x.size)
-    else:
-        wsum = w.sum()
-        n_eff = float(wsum**2 / np.dot(w, w))
-        mean = float(np.dot(w, x) / wsum)
-        dev = x - mean
-        dev2 = dev * dev
-        wdev2 = w * dev2
-        m2 = float(wdev2.sum() / wsum)
-        m3 = float(np.dot(wdev2, dev) / wsum)
-        m4 = float(np.dot(wdev2, dev2) / wsum)
-    std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
-    skew = m3 / m2**1.5 if m2 > 0 else 0.0
-    kurt = m4 / m2**2 if m2 > 0 else 3.0
+    n_eff, mean, m2, m3, m4 = _moments(x, w)
+    std, skew, kurt, note = _shape(x, w, n_eff, mean, m2, m3, m4)
     spread = np.sqrt(np.asarray(levels) * (1 - np.asarray(levels)) / n_eff)
     probs = np.concatenate(
         [levels, np.clip(np.asarray(levels) - spread, 0, 1), np.clip(np.asarray(levels) + spread, 0, 1)]
@@ -260,10 +306,11 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
         median=float(values[levels.index(0.5)]),
         mean_se=std / math.sqrt(n_eff),
         # SE of a standard deviation for any distribution: s sqrt((kurtosis - 1) / n) / 2
-        std_se=0.5 * std * math.sqrt(max(kurt - 1.0, 0.0) / n_eff),
+        std_se=0.5 * std * math.sqrt(max(kurt - 1.0, 0.0) / n_eff) if not note else math.inf,
         skewness=float(skew),
         quantiles={q: float(v) for q, v in zip(levels, values)},
-        quantile_se={q: float(0.5 * (b - a)) for q, a, b in zip(levels, lo, hi)},
+        quantile_se={q: 0.0 if a == b else float(0.5 * (b - a)) for q, a, b in zip(levels, lo, hi)},
+        note=note,
     )
 
 

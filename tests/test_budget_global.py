@@ -52,6 +52,7 @@ def test_independent_additive_equals_scipy_sobol_first_order():
     np.testing.assert_allclose(est.shares[0], v / v.sum(), atol=0.015)
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_independent_interaction_matches_salib():
     from SALib.analyze import sobol as salib_analyze
     from SALib.sample import sobol as salib_sample
@@ -287,6 +288,7 @@ def width_budget():
     return star, g
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_width_game_total_is_the_90_percent_width(width_budget):
     from scipy.stats import norm
 
@@ -320,6 +322,7 @@ def test_width_shares_of_a_linear_star_match_the_closed_form(width_budget):
     assert np.all(np.abs(g.width.shares - want) <= 4 * g.width.se + 1e-12), (g.width.shares - want) / g.width.se
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_width_game_total_at_the_default_inner_size():
     from perierr import linearize
 

@@ -495,13 +495,13 @@ def test_median_distance_not_finite(fraction, fires):
     assert math.isfinite(a.monte_carlo.summaries["distance_pc"].median) != fires
 
 
-@pytest.mark.xfail(strict=True, raises=RuntimeWarning,
-                   reason="perierr bug: summary.summarize computes moments as x - mean with mean = inf when some draws "
-                   "have an infinite d_ph, so it emits 'invalid value encountered in subtract' (an error under the "
-                   "project's pytest filter) and reports std and skewness as NaN")
 def test_infinite_distances_give_no_runtime_warning():
     a = run(invented(), model=InfiniteDistance(0.6), n_samples=1000)
-    assert not math.isnan(a.monte_carlo.summaries["distance_pc"].std)
+    d = a.monte_carlo.summaries["distance_pc"]
+    assert not math.isnan(d.std)
+    # the moments are labelled, not silently NaN: the note counts the infinite draws
+    n_inf = int(np.count_nonzero(~np.isfinite(a.monte_carlo.perihelion.distance_pc)))
+    assert d.note.startswith(f"{n_inf:,} of 1,000 draws are infinite") and d.to_dict()["note"] == d.note
 
 
 # ------------------------------------------------------------------------------------ held exact inputs
@@ -565,9 +565,12 @@ def test_parallax_in_arcsec_slip(plx, err, fires):
     [(0.02, 2.1, True), (0.02, 1.9, False), (0.005, 0.9, False), (0.005, 1.1, True)],
 )
 def test_error_over_100_times_the_value(name, value, err, fires):
-    # an error over 100 times the value (and above 1) suggests mixed units (common practice, no source)
+    # an error over 100 times the value (and above 1) suggests mixed units (common practice, no source); radial
+    # velocities near zero are valid and errors of a few km/s normal, so the caution never fires for them
+    # (issue 10: it fired falsely on near-zero radial velocities)
     found = hits(slip_messages(**{name: value, f"{name}_error": err}), "is over 100 times")
-    assert bool(found) == fires == (err > 100 * value and err > 1.0)
+    fires = fires and name != "radial_velocity"
+    assert bool(found) == fires == (name != "radial_velocity" and err > 100 * value and err > 1.0)
     if fires:
         assert found == [f"{name}_error = {err} is over 100 times {name} = {value}; check the units of both"]
 
@@ -603,6 +606,7 @@ def test_parallax_below_its_error_under_a_prior(eplx, fires):
         assert "{'L_pc': 1000.0}" in found[0]
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_nonpositive_parallax_under_a_prior_and_mcmc_delivery():
     # parallax <= 0: MCMC under the prior; no linear columns. 12,000 draws asked, the thinned chain (about
     # one draw per autocorrelation time, capped at 10,000 effective) delivers fewer, and says so.

@@ -130,6 +130,7 @@ def test_extra_levels_and_model_info_are_reported(tmp_path):
     assert doc["monte_carlo"]["model_info"]["model"] == "straight_line"
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_prior_that_excludes_the_measured_distance_is_called_a_conflict():
     # A 0.06 % parallax at 20.8 pc under a uniform prior cut at 10 pc: the posterior sits at the
     # prior's edge, hundreds of sigma from the measurement (common practice, no source: a
@@ -148,6 +149,7 @@ def test_prior_that_excludes_the_measured_distance_is_called_a_conflict():
     assert abs(fine.info["prior_tension_sigma"]) < 3
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_orbit_model_under_a_prior_with_a_negative_parallax():
     # the model linearizes around the posterior median when the nominal parallax cannot be inverted
     s = star(parallax=-0.3, parallax_error=0.5, radial_velocity=-40.0, radial_velocity_error=2.0)

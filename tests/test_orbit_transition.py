@@ -101,6 +101,7 @@ def test_fallback_is_automatic_and_reported():
     assert only.info["fallback_samples"] == 0 and only.info["map_error_au_max"] > 0
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_direct_fallback_memory_stays_bounded():
     # issue 3: peak memory under 1 GB for 1e5 samples; here 2e4 samples of a slow
     # invented star over a +/- 40 Myr window, measured with tracemalloc (numpy

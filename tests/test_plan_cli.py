@@ -60,6 +60,7 @@ def test_plan_command_goal_form_reports_precision_or_floor(tmp_path):
     assert floor["floor_value"] > 1e-4 and "floor" in floor["message"]
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_plan_command_full_with_plot(tmp_path):
     png = tmp_path / "curves.png"
     out = io.StringIO()

@@ -75,6 +75,7 @@ def distance_summary(samples):
     return summarize(1000.0 / samples.values[:, 2], levels=LEVELS, weights=samples.weights)
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 @pytest.mark.parametrize("frac", [0.05, 0.2, 0.5])
 @pytest.mark.parametrize("method", ["reweight", "mcmc"])
 def test_distance_quantiles_match_quadrature(frac, method):
@@ -94,6 +95,7 @@ def test_distance_quantiles_match_quadrature(frac, method):
     assert s.effective_size == pytest.approx(samples.info["effective_size"], rel=0.25)
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_negative_parallax_uniform_prior_mcmc_matches_quadrature():
     # scipy.integrate reference; uniform space density to r_max (common practice, no source)
     prior = UniformDensity(800.0)
@@ -128,6 +130,7 @@ def test_tiny_parallax_error_every_prior_gives_plain_monte_carlo(prior):
             assert abs(a.quantiles[lev] - b.quantiles[lev]) < 0.01 * half
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_tiny_parallax_error_mcmc_gives_plain_monte_carlo():
     # same limit through the sampler (Bailer-Jones 2015, Sect. 4); within K_SE standard errors of the
     # difference of two independent quantile estimates, the root sum of squares of their errors
@@ -144,6 +147,7 @@ def test_tiny_parallax_error_mcmc_gives_plain_monte_carlo():
             assert abs(a.quantiles[lev] - b.quantiles[lev]) < K_SE * np.hypot(b.quantile_se[lev], a.quantile_se[lev])
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 @pytest.mark.parametrize("method", ["reweight", "mcmc"])
 def test_only_parallax_uncertain_perihelion_quantiles_are_model_of_distance_quantiles(method):
     # with vr < 0 and v_t << |vr| over the posterior, t_ph, d_ph and v_ph all increase with r
@@ -186,6 +190,7 @@ def test_negative_parallax_end_to_end_through_analyze():
     assert abs(d.median - expected.distance_pc[0]) < 4 * d.quantile_se[0.5]
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_auto_switches_to_mcmc_when_reweighting_degenerates():
     # Kish effective sample size (Kish 1965, Survey Sampling, Sect. 11.7) below the threshold
     star = invented_star(2.0, 1.5)
@@ -207,6 +212,7 @@ def test_reweight_weights_are_prior_times_r_squared():
     assert s.info["n_zero_weight"] == 1000 - s.n
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_same_seed_same_chain_and_generalized_gamma_equals_edsd():
     # Bailer-Jones et al. 2021, AJ 161, 147: GG(alpha=1, beta=2) is EDSD; rounding in the normalization
     # can flip single accept/reject steps, so the chains agree in distribution (4 MC errors)
@@ -223,6 +229,7 @@ def test_same_seed_same_chain_and_generalized_gamma_equals_edsd():
     np.testing.assert_allclose(ra.weights, rb.weights, rtol=1e-9)
 
 
+@pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)
 def test_mcmc_preserves_correlations_of_other_parameters():
     # conditional Gaussian of pmra given parallax: its mean shifts by rho sigma_pm (plx - plx0)/sigma_plx
     # (Gaussian conditioning, common practice, no source); check slope of pmra on parallax

@@ -109,10 +109,15 @@ def plan(
     budget_options : dict, optional
         Passed to :func:`perierr.budget.global_budget`.
     """
+    from ..propagate.checks import require_motion, require_positive_parallax, require_uncertainty
     from ..sampling.gaussian import resolve_seed
 
     if isinstance(model, str):
         model = make_model(model)
+    # the same checks as analyze(): a perihelion must exist, and there must be an error to plan against
+    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_motion(star.mean)
+    require_uncertainty(star.sigma)
     seed = resolve_seed(seed)
     dec = float(star.mean[1])
     wi = None

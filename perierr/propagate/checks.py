@@ -24,3 +24,13 @@ def require_motion(mean) -> None:
             "with pmra = pmdec = 0 as well the star does not move relative to the Sun, so it has no "
             "perihelion; check the input (a zero proper motion or radial velocity is usually a missing value)",
         )
+
+
+def require_uncertainty(sigma) -> None:
+    """Refuse to plan for a star whose every input is held exact (there is nothing to re-observe)."""
+    if not any(s > 0 for s in sigma):
+        raise InputError(
+            "errors",
+            "all zero",
+            "every input is held exact, so there is no error to budget or reduce; give the catalogue errors",
+        )

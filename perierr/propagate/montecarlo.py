@@ -15,9 +15,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .._constants import OUTPUTS
-from ..errors import PerierrWarning
+from ..errors import InputError, PerierrWarning
 from ..models.base import ForwardModel, Perihelion
-from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..sampling.gaussian import Samples, draw_gaussian, require_draws, resolve_seed
 from ..star import ObservedStar
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
@@ -182,10 +182,11 @@ def monte_carlo(
     """
     require_positive_parallax(star.mean[2], method="Monte Carlo by parallax inversion")
     require_motion(star.mean)
-    if target_error is not None and int(max_samples) < int(n):
-        raise ValueError(f"max_samples = {max_samples!r}: expected at least n = {n} (the first round's draws)")
-    if int(n) < 100:
-        raise ValueError(f"n = {n!r}: expected at least 100 samples")
+    n = require_draws(n)
+    if target_error is not None:
+        if isinstance(max_samples, (int, np.integer)) and max_samples < n:
+            raise InputError("max_samples", max_samples, f"expected at least n = {n} (the first round's draws)")
+        max_samples = require_draws(max_samples, field="max_samples", minimum=n)
     seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
     values = draw_gaussian(star.mean, star.cov, n, rng)

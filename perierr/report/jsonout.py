@@ -8,6 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
+from .files import atomic_write_text
+
 __all__ = ["to_json", "write_json"]
 
 
@@ -34,7 +36,5 @@ def to_json(document: dict) -> str:
 
 
 def write_json(document: dict, path) -> Path:
-    """Write a result dict to ``path`` as JSON; returns the path."""
-    path = Path(path)
-    path.write_text(to_json(document) + "\n", encoding="utf-8")
-    return path
+    """Write a result dict to ``path`` as JSON, atomically (see :mod:`.files`); returns the path."""
+    return atomic_write_text(path, to_json(document) + "\n")

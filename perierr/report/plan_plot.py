@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 from .._constants import AU_PER_PC
 
 __all__ = ["plot_gain_curves"]
@@ -50,6 +52,9 @@ def plot_gain_curves(curves, path=None):
     axes[0].legend(fontsize="small")
     fig.suptitle(f"Gain curves ({curves.settings['n']} common draws; dashed: today)")
     if path is not None:
-        fig.savefig(path, dpi=120)
+        from .files import atomic_path
+
+        with atomic_path(path) as tmp:
+            fig.savefig(tmp, dpi=120, format=Path(path).suffix.lstrip(".") or "png")
     return fig
 

@@ -73,6 +73,9 @@ def format_analysis(analysis) -> str:
         lines.append(_row(_LABEL[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
         if q == "distance_pc":
             lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
+    for q in OUTPUTS:
+        if mc.summaries[q].note:
+            lines.append(f"  {_LABEL[q]}: {mc.summaries[q].note}")
     extra = [q for q in mc.levels if q not in (0.05, 0.16, 0.5, 0.84, 0.95)]
     if extra:
         lines.append("  other quantiles (MC error in brackets):")

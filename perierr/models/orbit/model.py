@@ -41,6 +41,11 @@ _RK4_ERROR_FRACTION = 0.3
 _map_span = map_span  # module attribute, so that tests can narrow the span
 
 
+#: Rows farther than this from the Sun [pc] lie beyond the Galactic potential's validity (the halo of
+#: MWPotential2014 is fitted within a few tens of kpc, Bovy 2015): they get the straight-line answer, flagged.
+MAX_DISTANCE_PC = 1e5
+
+
 class OrbitOptionError(ValueError):
     """An option of the orbit model has an invalid value."""
 
@@ -240,6 +245,14 @@ class OrbitModel(ForwardModel):
             rel_all, ref_rel, bin_width_pc=self.bin_width_pc, min_bin_samples=self.min_bin_samples
         )
         mapped = np.flatnonzero(~sparse)
+        if mapped.size == 0:  # every distance bin too sparse for a reference orbit (few, widely spread draws)
+            t, state, outside, conv = self._direct(rel_all, nodes)
+            n = rel_all.shape[0]
+            diag = {"n_reference_orbits": 0, "n_checked": 0, "fallback_samples": 0, "sparse_bin_samples": n,
+                    "beyond_span_samples": 0,
+                    "fallback_reason": f"all {n} samples integrated directly: no distance bin held enough "
+                                       "samples for a reference orbit"}
+            return t, state, outside, conv, diag
         rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
         kref = refs.shape[0]
         delta = rel - refs[bidx]
@@ -366,6 +379,9 @@ class OrbitModel(ForwardModel):
         vv = np.sum(v * v, axis=1)
         # straight-line times start the search (0 for a star at rest)
         t_lin = -np.sum(rel[:, :3] * v, axis=1) / np.where(vv > 0, vv, 1.0)
+        far = rownorm(rel[:, :3]) > MAX_DISTANCE_PC
+        if far.any():
+            return self._beyond_potential(observables, rel, t_lin, far, reference)
         window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
         info = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}
         if reference is None or self.method == "direct":
@@ -404,6 +420,26 @@ class OrbitModel(ForwardModel):
         }
         return ph
 
+    def _beyond_potential(self, observables, rel, t_lin, far, reference) -> Perihelion:
+        """Rows farther than MAX_DISTANCE_PC get the straight-line answer, flagged; the rest run as usual."""
+        obs = np.asarray(observables, dtype=float).reshape(-1, 6)
+        x = rel[:, :3] + rel[:, 3:] * t_lin[:, None]
+        t, d, v = t_lin * _C, rownorm(x), rownorm(rel[:, 3:])
+        flags = far.copy()
+        info = {"model": self.name, "method": "straight line beyond the potential", "n_outside_window": 0,
+                "n_not_converged": 0}
+        if (~far).any():
+            near_ref = None if reference is None or far[0] and obs.shape[0] == 1 else reference
+            if near_ref is not None and rownorm(self._relative(near_ref)[1][:, :3])[0] > MAX_DISTANCE_PC:
+                near_ref = None
+            inner = self.evaluate(obs[~far], reference=near_ref)
+            t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
+            flags[~far] = inner.flags if inner.flags is not None else False
+            info = dict(inner.info)
+        info["n_beyond_potential"] = int(far.sum())
+        info["max_distance_pc"] = MAX_DISTANCE_PC
+        return Perihelion(t, d, v, flags=flags, info=info)
+
     def jacobian(self, point) -> np.ndarray:
         """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.
 
@@ -412,6 +448,10 @@ class OrbitModel(ForwardModel):
         with ``(ds, dw) = Phi1(t_ph) delta``.
         """
         obs, rel = self._relative(point)
+        if np.linalg.norm(rel[0, :3]) > MAX_DISTANCE_PC:  # beyond the potential: the straight line, as evaluate()
+            from ..straight import StraightLine
+
+            return StraightLine().jacobian(obs[0])
         v = rel[0, 3:]
         t_lin = np.array([-np.dot(rel[0, :3], v) / np.dot(v, v)])
         _, nodes = self._grid(t_lin, np.linalg.norm(v))

@@ -1,0 +1,136 @@
+"""Mutation score of perierr's numerical core, from a finished ``mutmut run``.
+
+Reads mutmut's per-file results of every group run by ``tools/mutation_run.py``
+(``.mutation/<group>/mutants/``), sets aside the mutants
+listed as equivalent (with a reason each) in ``tests/mutation/equivalent*.toml``,
+and writes ``tests/mutation/REPORT.md``: the score per module and overall, and
+every surviving mutant with its diff. A mutant counts as killed when a test
+failed, crashed or timed out on it (mutmut's "killed", "timeout", "segfault").
+
+The score is killed / (all mutants - equivalent). A mutant no test reaches
+("no tests") counts as a survivor: code no test runs is code no test checks.
+
+Run (from the repository root; see DEVELOPERS.md for the wall time)::
+
+    pip install mutmut
+    python tools/mutation_run.py
+    python tools/mutation_report.py
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import subprocess
+import sys
+from collections import Counter, defaultdict
+from pathlib import Path
+
+import tomllib
+
+KILLED = {1: "killed", 3: "killed", 36: "timeout", 24: "timeout", -24: "timeout", 152: "timeout", 255: "timeout",
+          -11: "segfault", -9: "segfault", 37: "caught by type check"}
+SURVIVED = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
+
+
+def module_of(name: str) -> str:
+    """``perierr.budget.game.x_explained_variance__mutmut_3`` -> ``perierr.budget.game``."""
+    head = name.split("__mutmut_")[0]
+    return head.rsplit(".", 1)[0]
+
+
+def read_results(root: Path) -> dict:
+    """Mutant name -> (mutmut exit code, group folder), from every group's ``mutants/**/*.meta``."""
+    out = {}
+    for group in sorted(p for p in (root / ".mutation").glob("*") if (p / "mutants").is_dir()):
+        for meta in sorted((group / "mutants").rglob("*.meta")):
+            codes = json.loads(meta.read_text(encoding="utf-8")).get("exit_code_by_key", {})
+            out.update({name: (code, group) for name, code in codes.items()})
+    return out
+
+
+def read_equivalent(folder: Path) -> dict:
+    """Mutant name -> reason it is equivalent (behaves exactly like the original), from ``equivalent*.toml``."""
+    out = {}
+    for path in sorted(folder.glob("equivalent*.toml")):
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        out.update({name: entry["reason"] for name, entry in data.get("equivalent", {}).items()})
+    return out
+
+
+def diff_of(name: str, group: Path) -> str:
+    """The mutant's diff, as ``mutmut show`` prints it in its group's folder (only the changed lines)."""
+    text = subprocess.run(["mutmut", "show", name], capture_output=True, text=True, check=False, cwd=group).stdout
+    lines = [ln for ln in text.splitlines() if ln[:1] in "+-" and not ln.startswith(("+++", "---"))]
+    return "\n".join(lines)
+
+
+def main(argv=None) -> int:
+    """Write the report; returns the exit status."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--root", type=Path, default=Path("."))
+    parser.add_argument("--equivalent", type=Path, default=Path("tests/mutation"), help="folder of equivalent*.toml")
+    parser.add_argument("--out", type=Path, default=Path("tests/mutation/REPORT.md"))
+    parser.add_argument("--no-diffs", action="store_true", help="list survivors without their diffs (fast)")
+    args = parser.parse_args(argv)
+    results = read_results(args.root)
+    if not results:
+        print("no mutmut results under .mutation/: run `python tools/mutation_run.py` first", file=sys.stderr)
+        return 2
+    equivalent = read_equivalent(args.equivalent)
+    stale = sorted(set(equivalent) - set(results))
+    per = defaultdict(Counter)
+    survivors = defaultdict(list)
+    for name, (code, group) in sorted(results.items()):
+        mod = module_of(name)
+        if name in equivalent:
+            per[mod]["equivalent"] += 1
+        elif code in KILLED:
+            per[mod]["killed"] += 1
+        else:
+            per[mod]["survived"] += 1
+            survivors[mod].append((name, SURVIVED.get(code, f"exit code {code}"), group))
+    total = Counter()
+    rows = []
+    for mod in sorted(per):
+        c = per[mod]
+        total.update(c)
+        counted = c["killed"] + c["survived"]
+        score = c["killed"] / counted if counted else 1.0
+        rows.append(f"| `{mod}` | {sum(c.values())} | {c['equivalent']} | {c['killed']} | {c['survived']} | "
+                    f"{score:.1%} |")
+    counted = total["killed"] + total["survived"]
+    overall = total["killed"] / counted if counted else 1.0
+    lines = [
+        "# Mutation report of the numerical core",
+        "",
+        "Written by `python tools/mutation_report.py` after `python tools/mutation_run.py` (see DEVELOPERS.md).",
+        "Score = killed / (mutants - equivalent); a mutant no test reaches counts as a survivor.",
+        "",
+        f"**Overall: {overall:.1%}** ({total['killed']} killed, {total['survived']} survived, "
+        f"{total['equivalent']} equivalent, {sum(total.values())} mutants)",
+        "",
+        "| module | mutants | equivalent | killed | survived | score |",
+        "|---|---|---|---|---|---|",
+        *rows,
+        "",
+    ]
+    if stale:
+        lines += ["Equivalent entries with no such mutant now (the function changed; re-check them):", ""]
+        lines += [f"- `{n}`" for n in stale] + [""]
+    lines += ["## Survivors", ""]
+    for mod in sorted(survivors):
+        lines += [f"### `{mod}`", ""]
+        for name, status, group in survivors[mod]:
+            lines.append(f"- `{name}` ({status})")
+            if not args.no_diffs:
+                lines += ["", "```diff", diff_of(name, group), "```", ""]
+        lines.append("")
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.write_text("\n".join(lines), encoding="utf-8")
+    print(f"mutation score {overall:.1%} ({total['killed']}/{counted}); report written to {args.out}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,140 @@
+"""Mutation testing of perierr's numerical core, one group of modules at a time.
+
+Each group's mutants are tested against the group's own test files (chosen so
+that a surviving mutant, which runs every selected test that reaches its
+function, costs seconds rather than the whole suite). A group runs with mutmut
+in a scratch copy of the repository, ``.mutation/<group>/`` (git-ignored),
+with its own ``[tool.mutmut]`` settings; re-running a group re-tests only what
+changed. The score counts a mutant as killed only by these tests, so it is a
+lower bound of what the whole suite kills.
+
+Run (from the repository root; ``pip install mutmut``)::
+
+    python tools/mutation_run.py            # every group, one after another
+    python tools/mutation_run.py budget orbit
+    python tools/mutation_report.py         # the score and the survivors
+
+Wall times on the 2-core development machine are in DEVELOPERS.md.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+WORK = ROOT / ".mutation"
+
+#: group -> (modules to mutate, test files that check them, include tests marked slow)
+GROUPS = {
+    "budget": (
+        ["perierr/budget/*"],
+        ["tests/test_budget.py", "tests/test_budget_engine.py", "tests/test_budget_inputs.py",
+         "tests/test_budget_global.py", "tests/test_budget_edges.py"],
+        False,
+    ),
+    "summary": (
+        ["perierr/summary.py", "perierr/thresholds.py"],
+        ["tests/test_summary_weighted.py", "tests/test_propagation.py", "tests/test_json_contract.py",
+         "tests/test_summary_edges.py"],
+        False,
+    ),
+    "frames_models": (
+        ["perierr/frames.py", "perierr/models/base.py", "perierr/models/straight.py", "perierr/models/focusing.py",
+         "perierr/models/__init__.py"],
+        ["tests/test_frames.py", "tests/test_straight_line.py", "tests/test_focusing.py",
+         "tests/test_budget_inputs.py", "tests/test_json_contract.py", "tests/test_models_edges.py"],
+        False,
+    ),
+    "propagate": (
+        ["perierr/propagate/*", "perierr/sampling/*"],
+        ["tests/test_propagation.py", "tests/test_edge_cases.py", "tests/test_json_contract.py",
+         "tests/test_cautions.py", "tests/test_propagate_edges.py"],
+        False,
+    ),
+    "orbit": (
+        ["perierr/models/orbit/*"],
+        ["tests/test_potentials.py", "tests/test_orbit_model.py", "tests/test_orbit_transition.py",
+         "tests/test_orbit_fixed_step.py", "tests/test_orbit_search.py", "tests/test_orbit_edges.py"],
+        False,
+    ),
+    "priors": (
+        ["perierr/priors/*"],
+        ["tests/test_priors_densities.py", "tests/test_priors_sampling.py", "tests/test_priors_calibration.py",
+         "tests/test_priors_cli.py", "tests/test_priors_edges.py"],
+        True,
+    ),
+    "plan_update": (
+        ["perierr/plan/update.py"],
+        ["tests/test_plan_update.py", "tests/test_plan_goals.py", "tests/test_plan_update_edges.py"],
+        False,
+    ),
+}
+
+_COPY = ("perierr", "tests", "data_demo", "notebooks", "benchmarks", "README.md", "setup.py", "LICENSE")
+
+
+def _toml_list(items) -> str:
+    return "[" + ", ".join(f'"{x}"' for x in items) + "]"
+
+
+def prepare(group: str) -> Path:
+    """Lay out (or refresh) the group's scratch copy with its own mutmut settings."""
+    sources, tests, slow = GROUPS[group]
+    work = WORK / group
+    work.mkdir(parents=True, exist_ok=True)
+    for name in _COPY:
+        src, dst = ROOT / name, work / name
+        if src.is_dir():
+            shutil.copytree(src, dst, dirs_exist_ok=True, ignore=shutil.ignore_patterns("__pycache__"))
+        elif src.exists():
+            shutil.copy2(src, dst)
+    text = (ROOT / "pyproject.toml").read_text(encoding="utf-8")
+    text = text.split("\n[tool.mutmut]")[0]  # the project's own settings describe the whole-suite run
+    selection = [t for t in tests if (ROOT / t).exists()] + ([] if slow else ["-m", "not slow"])
+    text += (
+        "\n[tool.mutmut]\n"
+        'source_paths = ["perierr/"]\n'
+        f"only_mutate = {_toml_list(sources)}\n"
+        'do_not_mutate_patterns = ["raise \\\\w+\\\\(", "warnings\\\\.warn\\\\(", '
+        '"^\\\\s*\\\\w+ = np\\\\.asarray\\\\(\\\\w+, dtype=float\\\\)$"]\n'
+        f"also_copy = {_toml_list(['data_demo/', 'README.md', 'notebooks/', 'benchmarks/'])}\n"
+        'pytest_add_cli_args = ["-p", "no:cacheprovider", "-q"]\n'
+        f"pytest_add_cli_args_test_selection = {_toml_list(selection)}\n"
+    )
+    (work / "pyproject.toml").write_text(text, encoding="utf-8")
+    return work
+
+
+def run(group: str, children: int) -> float:
+    """Run mutmut for one group; returns the wall time in seconds."""
+    work = prepare(group)
+    mutmut = shutil.which("mutmut") or str(Path(sys.executable).with_name("mutmut"))
+    start = time.perf_counter()
+    with (work / "mutmut.log").open("w", encoding="utf-8") as log:
+        subprocess.run([mutmut, "run", "--max-children", str(children)], cwd=work, stdout=log, stderr=log,
+                       check=False)
+    return time.perf_counter() - start
+
+
+def main(argv=None) -> int:
+    """Run the named groups (default: all); returns the exit status."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("groups", nargs="*", help=f"groups to run (default: all): {', '.join(GROUPS)}")
+    parser.add_argument("--max-children", type=int, default=2, help="parallel mutants (default 2)")
+    args = parser.parse_args(argv)
+    unknown = [g for g in args.groups if g not in GROUPS]
+    if unknown:
+        parser.error(f"unknown group(s) {', '.join(unknown)}; expected some of {', '.join(GROUPS)}")
+    for group in args.groups or list(GROUPS):
+        seconds = run(group, args.max_children)
+        print(f"{group}: {seconds / 60:.1f} min (log: .mutation/{group}/mutmut.log)", flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
