@@ -174,9 +174,22 @@ def _run_star(star, args, out) -> None:
 
 
 def _screen(path, out) -> None:
-    from .screen import nearest_first, screen_catalogue
+    from .screen import iter_screen
 
-    rows = screen_catalogue(path)
+    rows = []
+    try:
+        for row in iter_screen(path):
+            rows.append(row)
+    except KeyboardInterrupt:  # show what was screened, then stop as any interrupted command does
+        print(f"Interrupted after {len(rows)} rows; these were screened:", file=out)
+        _print_screen(rows, path, out)
+        raise
+    _print_screen(rows, path, out)
+
+
+def _print_screen(rows, path, out) -> None:
+    from .screen import nearest_first
+
     print(f"Screening {len(rows)} rows of {Path(path).name} (straight-line model, nominal ± linear 1σ)", file=out)
     print(f"  {'row':>3}  {'star':<24}{'t_ph [Myr]':>18}{'d_ph [pc]':>20}{'d_ph [au]':>12}  σ_ϖ/ϖ", file=out)
     weak = False

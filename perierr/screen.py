@@ -18,7 +18,7 @@ from .models.straight import HEAD_ON_RELATIVE
 from .propagate.linear import linearize
 from .star import ObservedStar
 
-__all__ = ["ScreenRow", "screen_catalogue"]
+__all__ = ["ScreenRow", "iter_screen", "screen_catalogue"]
 
 
 @dataclass(frozen=True)
@@ -56,7 +56,12 @@ class ScreenRow:
 
 
 def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
-    """Nominal perihelion with linear errors for every row of a table.
+    """Nominal perihelion with linear errors for every row of a table (see :func:`iter_screen`)."""
+    return list(iter_screen(table, model=model))
+
+
+def iter_screen(table, *, model: ForwardModel | None = None):
+    """Nominal perihelion with linear errors for every row of a table, one row at a time.
 
     Parameters
     ----------
@@ -65,10 +70,10 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
     model : ForwardModel, optional
         Defaults to the straight-line model.
 
-    Returns
-    -------
-    list of ScreenRow
-        One per input row, in input order.
+    Yields
+    ------
+    ScreenRow
+        One per input row, in input order (so an interrupted screen can still show what it had).
     """
     from astropy.table import Table
 
@@ -85,7 +90,8 @@ def screen_catalogue(table, *, model: ForwardModel | None = None) -> list:
                 "expected ECSV, FITS or VOTable with catalogue column names",
             ) from None
     model = model or StraightLine()
-    return [_screen_row(i, row, table.colnames, model) for i, row in enumerate(table)]
+    for i, row in enumerate(table):
+        yield _screen_row(i, row, table.colnames, model)
 
 
 def _screen_row(i, row, colnames, model) -> ScreenRow:

@@ -107,3 +107,20 @@ def test_ctrl_c_ends_with_one_line_and_status_130(tmp_path):
     assert proc.returncode == EXIT_INTERRUPTED
     assert "interrupted" in err and "Traceback" not in err and len(err.strip().splitlines()) <= 2
     assert not target.exists() and not any(Path(tmp_path).glob(".r.json*"))
+
+
+def test_interrupted_screen_shows_what_it_had(monkeypatch, capsys):
+    import perierr.screen as screen
+
+    real = screen._screen_row
+
+    def interrupt_at_row_3(i, *args):
+        if i == 3:
+            raise KeyboardInterrupt
+        return real(i, *args)
+
+    monkeypatch.setattr(screen, "_screen_row", interrupt_at_row_3)
+    code, out, err = run_cli(["screen", str(demo_path("kestrel_survey.ecsv"))], capsys)
+    assert code == EXIT_INTERRUPTED and "interrupted" in err
+    assert "Interrupted after 3 rows" in out and "Screening 3 rows" in out
+    assert all(f"Kestrel-{k} " in out for k in (1, 2, 3)) and "Kestrel-4" not in out
