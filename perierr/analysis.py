@@ -17,9 +17,9 @@ import numpy as np
 from . import __version__
 from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, star_budget
+from .cautions import BIASED_PARALLAX_FRACTION, biased_parallax, distance_within_sigma, head_on  # noqa: F401
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
-from .models.straight import HEAD_ON_RELATIVE
 from .propagate.checks import require_motion
 from .propagate.linear import LinearResult, linearize
 from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
@@ -30,9 +30,6 @@ from .thresholds import DEFAULT_THRESHOLDS
 
 __all__ = ["Analysis", "analyze"]
 
-#: Fractional parallax error above which 1/parallax is a biased distance
-#: (Bailer-Jones 2015, PASP 127, 994, Sect. 4).
-BIASED_PARALLAX_FRACTION = 0.2
 
 
 @dataclass(frozen=True)
@@ -255,14 +252,7 @@ def _compare_straight_line(star, linear, mc) -> dict:
 
 def _reading_warnings(star, linear, mc, with_prior) -> list:
     """Cases where the numbers could mislead a reader, in plain words."""
-    out = []
-    frac = star.fractional_parallax_error
-    if not with_prior and frac > BIASED_PARALLAX_FRACTION:
-        out.append(
-            f"the fractional parallax error is {frac:.0%} (> {BIASED_PARALLAX_FRACTION:.0%}): "
-            "1/parallax is a biased distance and the intervals assume an implicit prior; "
-            "use a distance prior (--distance-prior)"
-        )
+    out = [] if with_prior else [m for m in [biased_parallax(star)] if m]
     d = mc.summaries["distance_pc"]
     if d.std > 0:
         asym = (d.quantiles[0.84] - d.median) / max(d.median - d.quantiles[0.16], 1e-300)
@@ -276,23 +266,9 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
             "no linearized columns or linear budget: the nominal parallax is <= 0 and cannot be "
             "inverted; the Monte Carlo columns are the posterior under the distance prior"
         )
-    elif linear.value[1] <= HEAD_ON_RELATIVE * 1000.0 / star.mean[2]:
-        out.append(
-            "the nominal path passes through the Sun (d_ph = 0), where d_ph is not differentiable: "
-            "its linearized sigma and linear budget are undefined (shown as zero); use the Monte Carlo quantiles"
-        )
+    else:
+        out.extend(m for m in (head_on(star, linear), distance_within_sigma(star, linear)) if m)
     if linear is not None:
-        d_nom, d_sig = linear.value[1], linear.sigma[1]
-        if d_sig > 0 and d_nom < 2.0 * d_sig:
-            why = (
-                "the distance is poorly known"
-                if frac > BIASED_PARALLAX_FRACTION
-                else "the star heads almost straight at the Sun"
-            )
-            out.append(
-                f"d_ph ({d_nom:.3g} pc) is comparable to its linear sigma ({d_sig:.3g} pc): {why} and a "
-                "linearized distance error is meaningless; use the Monte Carlo quantiles"
-            )
         if with_prior:
             out.append(
                 "under the distance prior the Monte Carlo columns are posterior summaries; the "

@@ -121,8 +121,15 @@ def _add_prior_options(p: argparse.ArgumentParser) -> None:
     )
 
 
+class _Parser(argparse.ArgumentParser):
+    """Usage errors in one line (the command, the option, what was wrong, where to look), status 2."""
+
+    def error(self, message):
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def _parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="perierr",
         description="Perihelion of a star passing the Sun, with uncertainties and an error budget.",
     )
@@ -307,8 +314,25 @@ def _plan(args, out) -> None:
 
 
 #: Exit statuses: 0 done; 2 bad input (a file, a field, an option); 3 the system refused (disk, permissions);
-#: 4 not enough memory; 130 interrupted (Ctrl-C), the shell's convention (128 + SIGINT).
-EXIT_INPUT, EXIT_SYSTEM, EXIT_MEMORY, EXIT_INTERRUPTED = 2, 3, 4, 130
+#: 4 not enough memory; 70 an internal error (a perierr bug: please report it); 130 interrupted (Ctrl-C),
+#: the shell's convention (128 + SIGINT).
+EXIT_INPUT, EXIT_SYSTEM, EXIT_MEMORY, EXIT_BUG, EXIT_INTERRUPTED = 2, 3, 4, 70, 130
+
+
+def _stale_outputs(argv) -> None:
+    """Before anything else: remove old results named by --json/--plot, so none is read as this run's."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    for k, item in enumerate(argv):
+        for option in ("--json", "--plot"):
+            path = None
+            if item == option and k + 1 < len(argv):
+                path = argv[k + 1]
+            elif item.startswith(option + "="):
+                path = item.split("=", 1)[1]
+            if path and Path(path).is_file():
+                Path(path).unlink()
+                print(f"perierr: removed the old {path}; the new one is written only if this run succeeds",
+                      file=sys.stderr)
 
 
 def _prepare_outputs(args) -> None:
@@ -353,10 +377,11 @@ def main(argv=None, out=None) -> int:
     leaves no partial or stale result behind.
     """
     out = out or sys.stdout
+    _stale_outputs(argv)
     args = _parser().parse_args(argv)  # usage errors: argparse prints the usage and exits with status 2
     try:
-        _check_distances(args)
         _prepare_outputs(args)
+        _check_distances(args)
         _dispatch(args, out)
     except (InputError, ValueError, ChainTooShortError) as exc:
         return _fail(f"error: {exc}", EXIT_INPUT)
@@ -373,6 +398,11 @@ def main(argv=None, out=None) -> int:
     except OSError as exc:
         where = f": {exc.filename}" if exc.filename else ""
         return _fail(f"{exc.strerror or exc}{where}; nothing was written there", EXIT_SYSTEM)
+    except Exception as exc:  # the last resort: a bug, said as such, never a traceback as the answer
+        return _fail(
+            f"internal error ({type(exc).__name__}: {exc}); this is a perierr bug: please report it with the "
+            "command and the input", EXIT_BUG
+        )
     return 0
 
 

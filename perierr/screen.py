@@ -78,6 +78,10 @@ def iter_screen(table, *, model: ForwardModel | None = None):
     from astropy.table import Table
 
     if not isinstance(table, Table):
+        from pathlib import Path
+
+        if Path(table).is_dir():
+            raise InputError("table", str(table), "is a folder; expected an ECSV, CSV, FITS or VOTable file")
         try:
             table = Table.read(table)
         except FileNotFoundError:
@@ -86,7 +90,7 @@ def iter_screen(table, *, model: ForwardModel | None = None):
             raise InputError(
                 "table",
                 str(table),
-                f"could not be read as a table ({type(exc).__name__}: {exc}); "
+                f"could not be read as a table ({type(exc).__name__}: {str(exc).splitlines()[0][:200]}); "
                 "expected ECSV, FITS or VOTable with catalogue column names",
             ) from None
     model = model or StraightLine()

@@ -212,6 +212,11 @@ class ObservedStar:
         for name in _ERRORS:
             if values[name] < 0:
                 raise InputError(name, values[name], "expected an error >= 0 (0 means held exact)", row)
+            if values[name] > _LARGEST_ERROR:
+                raise InputError(
+                    name, values[name], f"expected an error below {_LARGEST_ERROR:g} (its square must be a "
+                    "number); check the unit", row
+                )
             if values[name] == 0 and name not in _OPTIONAL_ERRORS:
                 notes.append(f"{name} = 0: {name[:-6]} held exact")
         dec = values["dec"]
@@ -394,11 +399,27 @@ _PARALLAX_CAUTION_MAS = 800.0
 _PARALLAX_MAX_MAS = 1e5
 
 
+#: Errors above this cannot be squared into a variance (the square of 1e150 is near the float limit).
+_LARGEST_ERROR = 1e150
+
+#: A parallax this close to zero but not zero is below any measurement by many orders of magnitude
+#: (10^15 pc); it would only overflow the arithmetic.
+_SMALLEST_PARALLAX_MAS = 1e-12
+
+#: A total speed below this [km/s] would take longer than 10^20 years to cross a parsec.
+_SLOWEST_KMS = 1e-12
+
+
 def _plausibility(values, row) -> list:
     """Refuse the impossible, note the implausible: ra range, speeds above c, absurd distances."""
     ra, plx, rv = values["ra"], values["parallax"], values["radial_velocity"]
     if not 0.0 <= ra < 360.0:
         raise InputError("ra", ra, "expected a right ascension in [0, 360) deg (perierr does not wrap it)", row)
+    if 0 < abs(plx) < _SMALLEST_PARALLAX_MAS:
+        raise InputError(
+            "parallax", plx, f"a parallax of magnitude below {_SMALLEST_PARALLAX_MAS:g} mas (beyond 10^15 pc) is "
+            "below any measurement; give 0 with its error and a distance prior", row
+        )
     if plx > _PARALLAX_MAX_MAS:
         raise InputError(
             "parallax", plx, f"a star closer than {1e3 / plx * AU_PER_PC:,.0f} au is not a passing star; "
@@ -407,6 +428,11 @@ def _plausibility(values, row) -> list:
     # transverse speed 4.74047 km/s per (mas/yr) at 1 mas; the total speed must stay below c
     vt = KMS_PER_MASYR_AT_1MAS * math.hypot(values["pmra"], values["pmdec"]) / plx if plx > 0 else 0.0
     speed = math.hypot(vt, rv)
+    if 0 < speed < _SLOWEST_KMS:
+        raise InputError(
+            "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
+            "perihelion within any meaningful time; give exact zeros for motions that were not measured", row
+        )
     if speed >= _C_KMS:
         field, value = ("radial_velocity", rv) if abs(rv) >= _C_KMS else ("pmra", values["pmra"])
         raise InputError(

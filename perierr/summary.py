@@ -258,10 +258,11 @@ def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
     std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
     if not math.sqrt(m2) > _ROUNDING_SPREAD * abs(mean):
         return std, 0.0, 3.0, ""
-    root3, m2sq = math.sqrt(m2) ** 3, m2 * m2
-    if not (root3 > 0 and m2sq > 0):  # an underflowing spread (values near 1e-100 and below)
+    with np.errstate(over="ignore", under="ignore"):
+        root3, m2sq = np.float64(m2) ** 1.5, np.float64(m2) ** 2
+    if not (0 < root3 < math.inf and 0 < m2sq < math.inf):  # a spread whose powers leave the float range
         return std, 0.0, 3.0, ""
-    return std, m3 / root3, m4 / m2sq, ""
+    return std, float(m3 / root3), float(m4 / m2sq), ""
 
 
 def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:

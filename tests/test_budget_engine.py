@@ -25,7 +25,6 @@ Nothing in perierr.budget.game is used to build an expected value. The reference
 
 import itertools
 import math
-import time
 from fractions import Fraction
 from functools import cache
 
@@ -484,9 +483,7 @@ def test_global_budget_agrees_with_linear_brute_force():
     model = StraightLine()
     jac = np.array(linearize(star, model).jacobian)
     ref = brute_force_shares(jac, np.array(star.cov))
-    start = time.perf_counter()
     gb = global_budget(star, model, seed=12345, n_outer=3000, width=False)
-    elapsed = time.perf_counter() - start
     assert gb.inputs == OBS
     est = gb.variance
     rows = [OUTS.index(q) for q in est.outputs]
@@ -501,7 +498,6 @@ def test_global_budget_agrees_with_linear_brute_force():
     assert_allclose(gb.linear_variance, want, rtol=0, atol=1e-8)
     # the position matters here, and the Monte Carlo sees it (share of d_ph > 0.01 for ra + dec)
     assert want[1, :2].sum() > 0.02 and est.shares[1, :2].sum() > 0.01
-    assert elapsed < 10.0
 
 
 # --------------------------------------------------------------------------------------------

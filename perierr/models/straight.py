@@ -123,7 +123,7 @@ def perihelion_cartesian_jacobian(cartesian) -> np.ndarray:
     unit = np.where(dist > HEAD_ON_RELATIVE * np.linalg.norm(x, axis=-1)[..., None], unit, 0.0)
     jac = np.zeros(xv.shape[:-1] + (3, 6))
     jac[..., 0, :3] = -v / vv * _C
-    jac[..., 0, 3:] = (-x / vv + 2.0 * xdv * v / vv**2) * _C
+    jac[..., 0, 3:] = (-x / vv - 2.0 * ts * (v / vv)) * _C  # -x/|v|^2 + 2 (x.v) v/|v|^4, without |v|^4
     jac[..., 1, :3] = unit
     jac[..., 1, 3:] = ts * unit
     jac[..., 2, 3:] = v / np.sqrt(vv)

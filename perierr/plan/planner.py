@@ -7,7 +7,9 @@ from dataclasses import dataclass, field
 from .. import __version__
 from .._constants import OBSERVABLES
 from ..budget import GlobalBudget, global_budget
+from ..cautions import linear_cautions
 from ..models import ForwardModel, make_model
+from ..propagate.linear import linearize
 from ..star import ObservedStar
 from ..thresholds import DEFAULT_THRESHOLDS
 from .curves import GainCurves, gain_curves
@@ -36,6 +38,9 @@ class Plan:
     budget_improved : GlobalBudget or None
         The same after the what-if measurements (what to measure next after those).
     settings : dict
+    cautions : tuple of str
+        The same cautions ``analyze`` gives for the star's linearization (biased parallax, head-on path,
+        d_ph within its sigma).
     """
 
     star: ObservedStar
@@ -46,6 +51,7 @@ class Plan:
     budget: GlobalBudget | None
     budget_improved: GlobalBudget | None = None
     settings: dict = field(default_factory=dict)
+    cautions: tuple = ()
 
     def to_dict(self) -> dict:
         """The plan JSON: current and improved side by side; required precisions or reasons."""
@@ -60,6 +66,8 @@ class Plan:
             "global_budget": None if self.budget is None else self.budget.to_dict(),
             "global_budget_improved": None if self.budget_improved is None else self.budget_improved.to_dict(),
             "settings": dict(self.settings),
+            "warnings": list(self.cautions),
+            "notes": list(self.star.notes),
             "caution": "perierr predicts statistical encounters, not impact hazards",
         }
 
@@ -134,4 +142,5 @@ def plan(
     if budget and wi is not None:
         gb1 = global_budget(wi.improved, model, seed=seed, **(budget_options or {}))
     settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
-    return Plan(star, model.describe(), wi, required, gc, gb, gb1, settings)
+    cautions = tuple(linear_cautions(star, linearize(star, model)))
+    return Plan(star, model.describe(), wi, required, gc, gb, gb1, settings, cautions)

@@ -117,9 +117,9 @@ def format_plan(plan) -> str:
             )
             lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")
         lines.append("")
-    if plan.star.notes:
+    if plan.cautions or plan.star.notes:
         lines.append("Read with care")
-        lines += [f"  - {note}" for note in plan.star.notes]
+        lines += [f"  - {message}" for message in list(plan.cautions) + list(plan.star.notes)]
         lines.append("")
     lines.append("perierr predicts statistical encounters, not impact hazards.")
     return "\n".join(lines)

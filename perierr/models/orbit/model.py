@@ -45,6 +45,11 @@ _map_span = map_span  # module attribute, so that tests can narrow the span
 #: MWPotential2014 is fitted within a few tens of kpc, Bovy 2015): they get the straight-line answer, flagged.
 MAX_DISTANCE_PC = 1e5
 
+#: Rows moving faster than this relative to the Sun [km/s] are unbound from the Galaxy many times over
+#: (escape speed about 550 km/s near the Sun): their paths are straight lines, flagged, and they do not
+#: shrink the integration grid of the others.
+MAX_SPEED_KMS = 1e4
+
 
 class OrbitOptionError(ValueError):
     """An option of the orbit model has an invalid value."""
@@ -379,7 +384,7 @@ class OrbitModel(ForwardModel):
         vv = np.sum(v * v, axis=1)
         # straight-line times start the search (0 for a star at rest)
         t_lin = -np.sum(rel[:, :3] * v, axis=1) / np.where(vv > 0, vv, 1.0)
-        far = rownorm(rel[:, :3]) > MAX_DISTANCE_PC
+        far = (rownorm(rel[:, :3]) > MAX_DISTANCE_PC) | (np.sqrt(vv) > MAX_SPEED_KMS)
         if far.any():
             return self._beyond_potential(observables, rel, t_lin, far, reference)
         window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
@@ -421,7 +426,7 @@ class OrbitModel(ForwardModel):
         return ph
 
     def _beyond_potential(self, observables, rel, t_lin, far, reference) -> Perihelion:
-        """Rows farther than MAX_DISTANCE_PC get the straight-line answer, flagged; the rest run as usual."""
+        """Rows beyond MAX_DISTANCE_PC or MAX_SPEED_KMS get the straight-line answer, flagged; the rest as usual."""
         obs = np.asarray(observables, dtype=float).reshape(-1, 6)
         x = rel[:, :3] + rel[:, 3:] * t_lin[:, None]
         t, d, v = t_lin * _C, rownorm(x), rownorm(rel[:, 3:])
@@ -430,7 +435,9 @@ class OrbitModel(ForwardModel):
                 "n_not_converged": 0}
         if (~far).any():
             near_ref = None if reference is None or far[0] and obs.shape[0] == 1 else reference
-            if near_ref is not None and rownorm(self._relative(near_ref)[1][:, :3])[0] > MAX_DISTANCE_PC:
+            ref_rel = self._relative(near_ref)[1] if near_ref is not None else None
+            if ref_rel is not None and (rownorm(ref_rel[:, :3])[0] > MAX_DISTANCE_PC
+                                        or rownorm(ref_rel[:, 3:])[0] > MAX_SPEED_KMS):
                 near_ref = None
             inner = self.evaluate(obs[~far], reference=near_ref)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
@@ -448,8 +455,8 @@ class OrbitModel(ForwardModel):
         with ``(ds, dw) = Phi1(t_ph) delta``.
         """
         obs, rel = self._relative(point)
-        if np.linalg.norm(rel[0, :3]) > MAX_DISTANCE_PC:  # beyond the potential: the straight line, as evaluate()
-            from ..straight import StraightLine
+        if np.linalg.norm(rel[0, :3]) > MAX_DISTANCE_PC or np.linalg.norm(rel[0, 3:]) > MAX_SPEED_KMS:
+            from ..straight import StraightLine  # beyond the potential: the straight line, as evaluate()
 
             return StraightLine().jacobian(obs[0])
         v = rel[0, 3:]
