@@ -231,7 +231,7 @@ def monte_carlo(
 
 
 def scalar_info(info: dict) -> dict:
-    """The JSON-able scalar part of a model's diagnostics (arrays left out)."""
+    """The JSON-able scalar part of a model's diagnostics: scalars and lists of at most 16 (no arrays)."""
     out = {}
     for key, value in info.items():
         if isinstance(value, dict):
