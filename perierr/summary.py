@@ -230,6 +230,9 @@ def _moments(x, w) -> tuple:
             return n_eff, mean, float(dev2.sum() / x.size), float(np.dot(dev2, dev) / x.size), float(
                 np.dot(dev2, dev2) / x.size
             )
+        keep = w > 0  # a zero-weight draw has no say, even when it is infinite (0 * inf would be NaN)
+        if not keep.all():
+            x, w = x[keep], w[keep]
         wsum = w.sum()
         n_eff = float(wsum**2 / np.dot(w, w))
         mean = float(np.dot(w, x) / wsum)
@@ -250,10 +253,12 @@ def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
     if not (math.isfinite(mean) and math.isfinite(m2)):
         bad = ~np.isfinite(x) if w is None else (~np.isfinite(x)) & (w > 0)
         n_bad = int(np.count_nonzero(bad))
-        note = (
-            f"{n_bad:,} of {x.size:,} draws are infinite or undefined: the mean and the moments are not finite "
-            "numbers; the quantiles are"
+        why = (
+            f"{n_bad:,} of {x.size:,} draws are infinite or undefined"
+            if n_bad
+            else "the spread of the draws overflows the float range"
         )
+        note = f"{why}: the mean and the moments are not finite numbers (the quantiles are still defined)"
         return math.inf, math.nan, math.nan, note
     std = math.sqrt(m2 * n_eff / (n_eff - 1)) if n_eff > 1 else 0.0
     if not math.sqrt(m2) > _ROUNDING_SPREAD * abs(mean):
