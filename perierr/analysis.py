@@ -254,7 +254,7 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
     """Cases where the numbers could mislead a reader, in plain words."""
     out = [] if with_prior else [m for m in [biased_parallax(star)] if m]
     d = mc.summaries["distance_pc"]
-    if d.std > 0:
+    if d.std > 1e-12 * abs(d.median):  # a spread below rounding has no shape
         asym = (d.quantiles[0.84] - d.median) / max(d.median - d.quantiles[0.16], 1e-300)
         if abs(d.skewness) > 1.0 or not 0.67 < asym < 1.5:
             out.append(
@@ -278,7 +278,8 @@ def _reading_warnings(star, linear, mc, with_prior) -> list:
             s_lin, s_mc = linear.sigma[k], mc.summaries[q].std
             if with_prior:
                 break  # a prior moves the posterior away from the linearization by design
-            if s_lin > 0 and s_mc > 0 and not 0.8 < s_mc / s_lin < 1.25:
+            tiny = 1e-12 * abs(mc.summaries[q].median)  # spreads below rounding are not compared
+            if s_lin > tiny and s_mc > tiny and not 0.8 < s_mc / s_lin < 1.25:
                 out.append(
                     f"{q}: Monte Carlo std {s_mc:.3g} differs from the linear sigma {s_lin:.3g} by "
                     f"more than 20 %: the model is not linear over the error ellipsoid"

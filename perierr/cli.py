@@ -319,29 +319,16 @@ def _plan(args, out) -> None:
 EXIT_INPUT, EXIT_SYSTEM, EXIT_MEMORY, EXIT_BUG, EXIT_INTERRUPTED = 2, 3, 4, 70, 130
 
 
-def _stale_outputs(argv) -> None:
-    """Before anything else: remove old results named by --json/--plot, so none is read as this run's."""
-    argv = list(sys.argv[1:] if argv is None else argv)
-    for k, item in enumerate(argv):
-        for option in ("--json", "--plot"):
-            path = None
-            if item == option and k + 1 < len(argv):
-                path = argv[k + 1]
-            elif item.startswith(option + "="):
-                path = item.split("=", 1)[1]
-            if path and Path(path).is_file():
-                Path(path).unlink()
-                print(f"perierr: removed the old {path}; the new one is written only if this run succeeds",
-                      file=sys.stderr)
-
-
 def _prepare_outputs(args) -> None:
     """Check every output path before any work, and remove old results there (said on stderr)."""
     from .report.files import prepare_output
 
+    inputs = [p for p in (getattr(args, "star_file", None), getattr(args, "table", None)) if p is not None]
     for option in ("json", "plot"):
         path = getattr(args, option, None)
         if path is not None:
+            if any(Path(path).exists() and Path(i).exists() and os.path.samefile(path, i) for i in inputs):
+                raise InputError(f"--{option}", str(path), "is the input file itself; give another file name")
             note = prepare_output(path, option=f"--{option}")
             if note:
                 print(f"perierr: {note}", file=sys.stderr)
@@ -377,7 +364,7 @@ def main(argv=None, out=None) -> int:
     leaves no partial or stale result behind.
     """
     out = out or sys.stdout
-    _stale_outputs(argv)
+    # a usage error touches no file: until the options are read, no word is known to be an output path
     args = _parser().parse_args(argv)  # usage errors: argparse prints the usage and exits with status 2
     try:
         _prepare_outputs(args)

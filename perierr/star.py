@@ -335,7 +335,11 @@ def _as_dict(mapping) -> dict:
             out[name] = MASKED
             continue
         if col is not None and getattr(col, "unit", None) is not None and np.ndim(value) == 0:
-            value = u.Quantity(value, col.unit)
+            try:
+                value = u.Quantity(value, col.unit)
+            except (TypeError, ValueError):
+                value = str(value)  # a bad cell: the field's reader names it with its row
+
         out[name] = value
     return out
 
@@ -428,6 +432,8 @@ def _plausibility(values, row) -> list:
     # transverse speed 4.74047 km/s per (mas/yr) at 1 mas; the total speed must stay below c
     vt = KMS_PER_MASYR_AT_1MAS * math.hypot(values["pmra"], values["pmdec"]) / plx if plx > 0 else 0.0
     speed = math.hypot(vt, rv)
+    if values["parallax_error"] > 0 and plx < 5 * values["parallax_error"]:
+        return _plausibility_notes(values, row)  # a parallax within noise says nothing about the speed
     if 0 < speed < _SLOWEST_KMS:
         raise InputError(
             "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
@@ -439,6 +445,12 @@ def _plausibility(values, row) -> list:
             field, value, f"the star would move at {speed:.3g} km/s, faster than light ({_C_KMS:,.0f} km/s); "
             "check the units", row
         )
+    return _plausibility_notes(values, row)
+
+
+def _plausibility_notes(values, row) -> list:
+    """Cautions about implausible but possible values (the refusals are in :func:`_plausibility`)."""
+    plx, rv = values["parallax"], values["radial_velocity"]
     where = f"row {row}: " if row is not None else ""
     notes = []
     if abs(rv) > _RV_CAUTION_KMS:

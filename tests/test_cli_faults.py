@@ -39,7 +39,7 @@ def test_old_result_is_removed_at_the_start_and_the_new_one_written_whole(tmp_pa
     target.write_text('{"stale": true}\n')
     code, out, err = run_cli(["run", STAR, "--samples", "2000", "--seed", "3", "--json", str(target)], capsys)
     assert code == 0
-    assert f"removed the old {target}" in err and "written only if this run succeeds" in err
+    assert f"removed the old {target}" in err and "written when the run completes" in err
     doc = json.loads(target.read_text())
     assert "stale" not in doc and doc["monte_carlo"]["n"] == 2000
     assert [p.name for p in tmp_path.iterdir()] == ["r.json"]  # no temporary file left behind

@@ -9,7 +9,8 @@ tables, ``screen``. For every run the same checks hold (see :func:`check_outcome
 * status 2 comes with a short message on stderr naming the field (or file, or option) and the value;
 * status 0 prints a report with no ``nan``/``inf`` outside a line that calls it undefined or not finite,
   and a JSON file whose non-finite numbers are all labelled (``test_fuzz_api.unlabelled_nonfinite``);
-* an old file at the ``--json`` path never survives a failed run (no stale result);
+* an old file at the ``--json`` path never survives a failed run (no stale result), except after a usage
+  error, which touches no file;
 * each run finishes within its stated time bound (measured with ``time.perf_counter``; a SIGALRM guard
   turns a hang into a failure).
 
@@ -447,6 +448,10 @@ def test_star_corpus(case, mode, tmp_path, capsys):
         assert "stale" not in document, f"{label}: the old --json file was not replaced"
         bad = unlabelled_nonfinite(document)
         assert not bad, f"{label}: unlabelled non-finite numbers in the JSON: {bad}"
+    elif "--help)" in outcome.err:
+        # a usage error touches no file: until the options are read, no word is known to be an output path
+        # (a forgotten path would make the next word, perhaps the star file itself, the target)
+        assert json_path.read_text(encoding="utf-8") == STALE, f"{label}: a usage error touched the --json file"
     else:
         assert not json_path.exists(), f"{label}: a failed run (status {outcome.code}) left the old --json file"
     assert not list(tmp_path.glob(".result.json.*")), f"{label}: a temporary file was left behind"

@@ -47,7 +47,9 @@ def prepare_output(path, *, option: str) -> str | None:
         raise InputError(option, str(path), f"the folder {str(folder)!r} does not exist; create it first")
     if not os.access(folder, os.W_OK):
         raise InputError(option, str(path), f"the folder {str(folder)!r} is not writable")
-    if path.exists():
+    if path.exists() or path.is_symlink():
+        if path.is_symlink() or not path.is_file():
+            raise InputError(option, str(path), "is not a regular file (a link, device or pipe); give a file name")
         try:
             path.unlink()
         except OSError as exc:
