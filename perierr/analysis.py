@@ -17,7 +17,7 @@ import numpy as np
 from . import __version__
 from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, star_budget
-from .cautions import BIASED_PARALLAX_FRACTION, biased_parallax, distance_within_sigma, head_on  # noqa: F401
+from .cautions import biased_parallax, distance_within_sigma, head_on
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
 from .propagate.checks import require_motion

@@ -26,3 +26,4 @@ def close_star():
         radial_velocity=-31.2, radial_velocity_error=0.6,
         ra_error=0.02, dec_error=0.02, parallax_pmra_corr=-0.2, pmra_pmdec_corr=-0.3,
     )
+

@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+from brute_force import mean_over_orderings
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -244,8 +245,6 @@ def brute_force_width_shares(grad, cov):
     with Var(Y | X_-u) = a_u' (R_uu - R_u,-u R_-u,-u^-1 R_-u,u) a_u in standardized coordinates (Gaussian
     conditioning, textbook); Shapley value = mean over orders of the cost increment (Shapley 1953).
     """
-    import itertools
-
     sigma = np.sqrt(np.diag(cov))
     corr = cov / np.outer(sigma, sigma)
     k = len(sigma)
@@ -263,19 +262,7 @@ def brute_force_width_shares(grad, cov):
                 c = c - corr[np.ix_(u, rest)] @ np.linalg.inv(corr[np.ix_(rest, rest)]) @ corr[np.ix_(rest, u)]
             return 2 * Z95 * np.sqrt(max(a[u] @ c @ a[u], 0.0))
 
-        cache = {}
-        sh = np.zeros(k)
-        orders = list(itertools.permutations(range(k)))
-        for order in orders:
-            before = ()
-            for i in order:
-                now = tuple(sorted(before + (i,)))
-                for s in (before, now):
-                    if s not in cache:
-                        cache[s] = cost(s)
-                sh[i] += cache[now] - cache[before]
-                before = now
-        out.append(sh / len(orders) / cache[tuple(range(k))])
+        out.append(mean_over_orderings(k, cost) / cost(tuple(range(k))))
     return np.array(out)
 
 

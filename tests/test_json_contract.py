@@ -14,7 +14,6 @@ value over all 720 orders of the six inputs (Shapley 1953; Song, Nelson & Staum 
 """
 
 import io
-import itertools
 import json
 import math
 import warnings
@@ -22,6 +21,7 @@ import warnings
 import astropy.units as u
 import numpy as np
 import pytest
+from brute_force import mean_over_orderings
 from scipy import stats
 
 from perierr import ObservedStar, analyze, read_star_file
@@ -126,19 +126,7 @@ def brute_force_shapley(grad, sigma, corr):
         left = corr - cu @ np.linalg.inv(corr[np.ix_(u, u)]) @ cu.T
         return total - a @ left @ a
 
-    cache = {}
-    shares = np.zeros(k)
-    orders = list(itertools.permutations(range(k)))
-    for order in orders:
-        before = ()
-        for i in order:
-            now = tuple(sorted(before + (i,)))
-            for s in (before, now):
-                if s not in cache:
-                    cache[s] = explained(s)
-            shares[i] += cache[now] - cache[before]
-            before = now
-    return shares / len(orders) / total
+    return mean_over_orderings(k, explained) / total
 
 
 # ----------------------------------------------------------------------------------------------- the tests
