@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import difflib
 import math
-import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -30,7 +29,8 @@ import tomllib
 
 from ._constants import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MAS_PER_DEG, OBSERVABLES
 from ._quantity import to_number
-from .errors import InputError, PerierrWarning
+from .cautions import Caution, emit, note
+from .errors import InputError
 
 __all__ = ["ObservedStar", "read_star_file", "read_catalogue"]
 
@@ -84,8 +84,9 @@ class ObservedStar:
         Star mass [M_sun] (used only by gravitational focusing).
     mass_error : float or None
         Its standard error [M_sun].
-    notes : tuple of str
-        Facts about the input a report should show (e.g. inputs held exact).
+    cautions : tuple of Caution
+        Facts about how the input was read (e.g. inputs held exact) and cautions about
+        implausible values, for the reports (see :mod:`perierr.cautions`); ``notes`` lists their text.
     """
 
     mean: np.ndarray
@@ -95,7 +96,7 @@ class ObservedStar:
     ref_epoch: float | None = None
     mass: float | None = None
     mass_error: float | None = None
-    notes: tuple = field(default=())
+    cautions: tuple = field(default=())
 
     def __post_init__(self):
         mean = np.array(self.mean, dtype=float).reshape(-1)
@@ -116,11 +117,18 @@ class ObservedStar:
         cov.setflags(write=False)
         object.__setattr__(self, "mean", mean)
         object.__setattr__(self, "cov", cov)
+        cautions = tuple(c if isinstance(c, Caution) else note("note", str(c)) for c in self.cautions)
+        object.__setattr__(self, "cautions", cautions)
 
     @property
     def sigma(self) -> np.ndarray:
         """Standard errors in internal units, shape (6,)."""
         return np.sqrt(np.diag(self.cov))
+
+    @property
+    def notes(self) -> tuple:
+        """The text of each reading caution, in order (``row N:`` first for table rows)."""
+        return tuple(str(c) for c in self.cautions)
 
     @property
     def held_exact(self) -> tuple:
@@ -205,7 +213,7 @@ class ObservedStar:
             if name not in data or _is_missing(data[name]):
                 if name in _OPTIONAL_ERRORS:
                     values[name] = 0.0
-                    notes.append(f"{name} not given: held exact")
+                    notes.append(note("held-exact", f"{name} not given: held exact", name))
                     continue
                 raise InputError(name, None, f"missing; expected a value in {_UNITS[name]}", row)
             values[name] = _to_float(name, data[name], row)
@@ -218,7 +226,7 @@ class ObservedStar:
                     "number); check the unit", row
                 )
             if values[name] == 0 and name not in _OPTIONAL_ERRORS:
-                notes.append(f"{name} = 0: {name[:-6]} held exact")
+                notes.append(note("held-exact", f"{name} = 0: {name[:-6]} held exact", name))
         dec = values["dec"]
         if not -90.0 <= dec <= 90.0:
             raise InputError("dec", dec, "expected a declination in [-90, 90] deg", row)
@@ -235,7 +243,7 @@ class ObservedStar:
                 if not -1.0 <= c <= 1.0:
                     raise InputError(name, c, "expected a correlation coefficient in [-1, 1]", row)
                 corrs[name] = c
-        notes.extend(_warn_unit_slips(values, row))
+        notes.extend(_unit_slips(values, row))
         cosd = math.cos(math.radians(dec))
         if values["ra_error"] > 0 and cosd < 1e-12:
             raise InputError(
@@ -268,15 +276,17 @@ class ObservedStar:
         source_id = data.get("source_id")
         if _is_missing(name):
             name = str(source_id) if not _is_missing(source_id) else (f"row {row}" if row is not None else "star")
-        return cls(
+        star = cls(
             mean,
             cov,
             name=str(name),
             source_id=None if _is_missing(source_id) else str(source_id),
             ref_epoch=epoch,
-            notes=tuple(notes),
+            cautions=tuple(notes),
             **meta,
         )
+        emit(star.cautions)
+        return star
 
 
 def read_star_file(path) -> ObservedStar:
@@ -451,39 +461,39 @@ def _plausibility(values, row) -> list:
 def _plausibility_notes(values, row) -> list:
     """Cautions about implausible but possible values (the refusals are in :func:`_plausibility`)."""
     plx, rv = values["parallax"], values["radial_velocity"]
-    where = f"row {row}: " if row is not None else ""
-    notes = []
+    out = []
     if abs(rv) > _RV_CAUTION_KMS:
-        notes.append(
-            f"{where}radial_velocity = {rv:g} km/s is beyond |{_RV_CAUTION_KMS:,.0f}| km/s, far above the Galaxy's "
-            "escape speed: check the unit (m/s?)"
-        )
+        out.append(Caution(
+            "implausible-value",
+            f"radial_velocity = {rv:g} km/s is beyond |{_RV_CAUTION_KMS:,.0f}| km/s, far above the Galaxy's "
+            "escape speed: check the unit (m/s?)", "caution", "radial_velocity", row,
+        ))
     if plx > _PARALLAX_CAUTION_MAS:
-        notes.append(
-            f"{where}parallax = {plx:g} mas puts the star at {1e3 / plx:.3g} pc, closer than the nearest known "
-            "star (1.30 pc): check the unit"
-        )
-    return notes
+        out.append(Caution(
+            "implausible-value",
+            f"parallax = {plx:g} mas puts the star at {1e3 / plx:.3g} pc, closer than the nearest known "
+            "star (1.30 pc): check the unit", "caution", "parallax", row,
+        ))
+    return out
 
 
-def _warn_unit_slips(values, row) -> list:
-    """Warn about likely unit slips; return the messages so reports can show them."""
-    where = f"row {row}: " if row is not None else ""
-    messages = []
+def _unit_slips(values, row) -> list:
+    """Cautions about likely unit slips (emitted as warnings by the reader, shown by the reports)."""
+    out = []
     plx, eplx = values["parallax"], values["parallax_error"]
     if 0 < abs(plx) < 1.0 and 0 < eplx < 1e-3:
-        messages.append(
-            f"{where}parallax = {plx} with parallax_error = {eplx} looks like arcsec; "
-            "perierr reads bare numbers in mas (pass a Quantity to be explicit)"
-        )
+        out.append(Caution(
+            "unit-slip",
+            f"parallax = {plx} with parallax_error = {eplx} looks like arcsec; "
+            "perierr reads bare numbers in mas (pass a Quantity to be explicit)", "caution", "parallax", row,
+        ))
     # not the radial velocity: values near zero are common and valid (a star crossing the line of sight), and
     # spectroscopic errors of a few km/s are normal, so an error far above the value says nothing about units
     for name in ("parallax", "pmra", "pmdec"):
         value, err = abs(values[name]), values[f"{name}_error"]
         if value > 0 and err > 100 * value and err > 1.0:
-            messages.append(
-                f"{where}{name}_error = {err} is over 100 times {name} = {values[name]}; check the units of both"
-            )
-    for message in messages:
-        warnings.warn(message, PerierrWarning, stacklevel=4)
-    return messages
+            out.append(Caution(
+                "unit-slip", f"{name}_error = {err} is over 100 times {name} = {values[name]}; check the units of both",
+                "caution", f"{name}_error", row,
+            ))
+    return out

@@ -145,7 +145,7 @@ def test_output_is_symmetric_even_for_a_rounding_level_asymmetric_input(batched)
 
 def test_updated_star_keeps_identity_and_records_every_measurement():
     star = invented_star(name="Invented-7", source_id="42", ref_epoch=2016.0, mass=0.8, mass_error=0.05,
-                         notes=("parallax zero point applied",))
+                         cautions=("parallax zero point applied",))
     ms = [make_measurement("radial_velocity", 0.1), make_measurement("parallax", 0.02)]
     new = updated_star(star, ms)
     assert (new.name, new.source_id, new.ref_epoch, new.mass, new.mass_error) == ("Invented-7", "42", 2016.0,

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 from .. import __version__
 from .._constants import OBSERVABLES
 from ..budget import GlobalBudget, global_budget
-from ..cautions import linear_cautions
+from ..cautions import HAZARD, linear_cautions, messages
 from ..models import ForwardModel, make_model
 from ..propagate.linear import linearize
 from ..star import ObservedStar
@@ -38,7 +38,7 @@ class Plan:
     budget_improved : GlobalBudget or None
         The same after the what-if measurements (what to measure next after those).
     settings : dict
-    cautions : tuple of str
+    cautions : tuple of Caution
         The same cautions ``analyze`` gives for the star's linearization (biased parallax, head-on path,
         d_ph within its sigma).
     """
@@ -66,9 +66,9 @@ class Plan:
             "global_budget": None if self.budget is None else self.budget.to_dict(),
             "global_budget_improved": None if self.budget_improved is None else self.budget_improved.to_dict(),
             "settings": dict(self.settings),
-            "warnings": list(self.cautions),
+            "warnings": messages(self.cautions),
             "notes": list(self.star.notes),
-            "caution": "perierr predicts statistical encounters, not impact hazards",
+            "caution": HAZARD,
         }
 
 

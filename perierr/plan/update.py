@@ -30,6 +30,7 @@ import numpy as np
 
 from .._constants import MAS_PER_DEG, OBSERVABLES
 from .._quantity import to_number
+from ..cautions import note
 from ..errors import InputError
 from ..star import ObservedStar
 
@@ -192,7 +193,7 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
     cov = np.array(star.cov)
     for m in measurements:
         cov = update_covariance(cov, m.index, m.precision)
-    note = "what-if: " + ", ".join(m.label for m in measurements)
+    what_if = note("what-if", "what-if: " + ", ".join(m.label for m in measurements))
     return ObservedStar(
         np.array(star.mean),
         cov,
@@ -201,5 +202,5 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
         ref_epoch=star.ref_epoch,
         mass=star.mass,
         mass_error=star.mass_error,
-        notes=tuple(star.notes) + (note,),
+        cautions=tuple(star.cautions) + (what_if,),
     )

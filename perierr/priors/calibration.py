@@ -24,6 +24,7 @@ import astropy.units as u
 import numpy as np
 
 from .._constants import OBSERVABLES
+from ..cautions import note
 from ..errors import InputError, PerierrWarning
 from ..star import ObservedStar
 
@@ -181,18 +182,20 @@ class Calibration:
         mean[_PLX] -= self.zero_point
         cov = np.asarray(star.cov) * np.outer(f, f)
         cov[_PLX, _PLX] += self.zero_point_error**2
-        notes = list(star.notes)
+        notes = list(star.cautions)
         if self.zero_point or self.zero_point_error:
-            notes.append(
+            notes.append(note(
+                "zero-point-applied",
                 f"parallax corrected for a zero-point of {self.zero_point:+.4g} ± {self.zero_point_error:.2g} mas: "
                 f"{star.mean[_PLX]:.6g} -> {mean[_PLX]:.6g} mas, error {star.sigma[_PLX] * f[_PLX]:.4g} -> "
-                f"{math.sqrt(cov[_PLX, _PLX]):.4g} mas"
-            )
+                f"{math.sqrt(cov[_PLX, _PLX]):.4g} mas",
+                "parallax",
+            ))
         for name, x in zip(OBSERVABLES, f):
             if x != 1:
-                notes.append(f"{name} error inflated by a factor {x:g}")
+                notes.append(note("error-inflated", f"{name} error inflated by a factor {x:g}", f"{name}_error"))
         return ObservedStar(mean, cov, name=star.name, source_id=star.source_id, ref_epoch=star.ref_epoch,
-                            mass=star.mass, mass_error=star.mass_error, notes=tuple(notes))
+                            mass=star.mass, mass_error=star.mass_error, cautions=tuple(notes))
 
     def to_dict(self, star: ObservedStar | None = None) -> dict:
         """JSON block: zero-point (value, error, convention) and inflation factors."""

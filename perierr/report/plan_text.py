@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from .._constants import AU_PER_PC
+from ..cautions import HAZARD, messages
 from .shares import format_share, input_label
 
 __all__ = ["format_plan"]
@@ -117,9 +118,10 @@ def format_plan(plan) -> str:
             )
             lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")
         lines.append("")
-    if plan.cautions or plan.star.notes:
+    shown = messages(tuple(plan.cautions) + tuple(plan.star.cautions))
+    if shown:
         lines.append("Read with care")
-        lines += [f"  - {message}" for message in list(plan.cautions) + list(plan.star.notes)]
+        lines += [f"  - {message}" for message in shown]
         lines.append("")
-    lines.append("perierr predicts statistical encounters, not impact hazards.")
+    lines.append(HAZARD)
     return "\n".join(lines)

@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 
 from .._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
+from ..cautions import HAZARD, messages
 from .shares import format_share, input_label
 
 __all__ = ["format_analysis", "format_value"]
@@ -44,8 +45,16 @@ def _row(label, nominal, sigma, s, scale=1.0, signed=False):
     return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q[0.16])} … {f(q[0.84])}   {f(q[0.05])} … {f(q[0.95])}"
 
 
-def format_analysis(analysis) -> str:
-    """Render an analysis as a readable multi-line report."""
+def format_analysis(analysis, *, hazard: bool = True) -> str:
+    """Render an analysis as a readable multi-line report.
+
+    Parameters
+    ----------
+    analysis : Analysis
+    hazard : bool
+        End with :data:`perierr.cautions.HAZARD`; a face that prints several
+        reports says it once, at the end.
+    """
     a = analysis
     star, mc = a.star, a.monte_carlo
     lines = []
@@ -173,16 +182,14 @@ def format_analysis(analysis) -> str:
         inflated = {k: f for k, f in cal["error_inflation"].items() if f != 1}
         if inflated:
             lines.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in inflated.items()))
-    if a.warnings or star.notes:
+    shown = messages(a.all_cautions)
+    if shown:
         lines.append("")
         lines.append("Read with care")
-        for message in list(a.warnings) + [n for n in star.notes]:
-            lines.append(f"  - {message}")
-    lines.append("")
-    lines.append(
-        "perierr predicts a statistical encounter from the measured motion; it is not an impact-hazard "
-        "assessment for comets or the Oort cloud."
-    )
+        lines.extend(f"  - {message}" for message in shown)
+    if hazard:
+        lines.append("")
+        lines.append(HAZARD)
     return "\n".join(lines)
 
 
