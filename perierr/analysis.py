@@ -15,7 +15,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import __version__
-from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, star_budget
 from .cautions import biased_parallax, distance_within_sigma, head_on
 from .errors import InputError, PerierrWarning
@@ -27,6 +26,7 @@ from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
+from .units import AU_PER_PC, OUTPUTS, PARALLAX
 
 __all__ = ["Analysis", "analyze"]
 
@@ -190,9 +190,9 @@ def analyze(
 
             prior = resolve_prior(distance_prior)
             with_prior = prior.name != "none"
-            linear = linearize(star, model) if star.mean[2] > 0 else None
+            linear = linearize(star, model) if star.mean[PARALLAX] > 0 else None
             samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
-            reference = star.mean if star.mean[2] > 0 else _posterior_reference(samples)
+            reference = star.mean if star.mean[PARALLAX] > 0 else _posterior_reference(samples)
             mc = propagate_samples(samples, model, reference=reference, levels=levels, thresholds=thresholds)
             prior_block = {"name": prior.name, "parameters": prior.parameters, **samples.info}
             prior_block["method"] = samples.method

@@ -8,6 +8,7 @@ and the planner call the same ones, so ``perierr plan`` warns exactly where
 from __future__ import annotations
 
 from .models.straight import HEAD_ON_RELATIVE
+from .units import MAS_PC, PARALLAX
 
 __all__ = ["BIASED_PARALLAX_FRACTION", "biased_parallax", "distance_within_sigma", "head_on", "linear_cautions"]
 
@@ -30,7 +31,7 @@ def biased_parallax(star) -> str | None:
 
 def head_on(star, linear) -> str | None:
     """The nominal path passes through the Sun, where d_ph has no derivative."""
-    if linear.value[1] <= HEAD_ON_RELATIVE * 1000.0 / star.mean[2]:
+    if linear.value[1] <= HEAD_ON_RELATIVE * MAS_PC / star.mean[PARALLAX]:
         return (
             "the nominal path passes through the Sun (d_ph = 0), where d_ph is not differentiable: "
             "its linearized sigma and linear budget are undefined (shown as zero); use the Monte Carlo quantiles"

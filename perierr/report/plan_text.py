@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import AU_PER_PC
+from ..units import AU_PER_PC
 from .shares import format_share, input_label
 
 __all__ = ["format_plan"]
