@@ -14,7 +14,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import __version__
-from ._constants import AU_PER_PC, OUTPUTS
 from .budget import LinearBudget, star_budget
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
 from .errors import InputError, PerierrWarning
@@ -26,6 +25,7 @@ from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
+from .units import AU_PER_PC, OUTPUTS
 
 __all__ = ["Analysis", "analyze"]
 

@@ -28,9 +28,9 @@ from functools import partial
 
 import numpy as np
 
-from ._constants import OUTPUTS, PC_PER_MAS_INVERSE
 from .errors import PerierrWarning
 from .models.straight import HEAD_ON_RELATIVE
+from .units import MAS_PC, OUTPUTS, PARALLAX
 
 __all__ = [
     "BIASED_PARALLAX_FRACTION",
@@ -163,12 +163,12 @@ def biased_parallax(star, linear=None) -> Caution | None:
 
 def is_head_on(distance_pc, parallax_mas) -> bool:
     """Whether a nominal d_ph counts as zero: below :data:`HEAD_ON_RELATIVE` of the star's distance."""
-    return distance_pc <= HEAD_ON_RELATIVE * PC_PER_MAS_INVERSE / parallax_mas
+    return distance_pc <= HEAD_ON_RELATIVE * MAS_PC / parallax_mas
 
 
 def head_on(star, linear) -> Caution | None:
     """The nominal path passes through the Sun, where d_ph has no derivative."""
-    if is_head_on(linear.value[1], star.mean[2]):
+    if is_head_on(linear.value[1], star.mean[PARALLAX]):
         return Caution(
             "head-on",
             "the nominal path passes through the Sun (d_ph = 0), where d_ph is not differentiable: "

@@ -27,10 +27,22 @@ import astropy.units as u
 import numpy as np
 import tomllib
 
-from ._constants import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MAS_PER_DEG, OBSERVABLES
-from ._quantity import to_number
 from .cautions import Caution, emit, note
 from .errors import InputError
+from .units import (
+    AU_PER_PC,
+    DEC,
+    FIELD_UNITS,
+    INDEX,
+    KMS_PER_MASYR_AT_1MAS,
+    MAS_PC,
+    OBSERVABLES,
+    PARALLAX,
+    SPEED_OF_LIGHT_KMS,
+    errors_to_catalogue,
+    errors_to_internal,
+    to_number,
+)
 
 __all__ = ["ObservedStar", "read_star_file", "read_catalogue"]
 
@@ -40,23 +52,6 @@ _CORRS = tuple(f"{a}_{b}_corr" for i, a in enumerate(_ASTROMETRIC) for b in _AST
 _OPTIONAL_ERRORS = ("ra_error", "dec_error")  # sub-mas; held exact when absent
 _META = ("name", "source_id", "ref_epoch", "mass", "mass_error")
 KNOWN_FIELDS = OBSERVABLES + _ERRORS + _CORRS + _META
-
-_UNITS = {
-    "ra": u.deg,
-    "dec": u.deg,
-    "parallax": u.mas,
-    "pmra": u.mas / u.yr,
-    "pmdec": u.mas / u.yr,
-    "radial_velocity": u.km / u.s,
-    "ra_error": u.mas,
-    "dec_error": u.mas,
-    "parallax_error": u.mas,
-    "pmra_error": u.mas / u.yr,
-    "pmdec_error": u.mas / u.yr,
-    "radial_velocity_error": u.km / u.s,
-    "mass": u.Msun,
-    "mass_error": u.Msun,
-}
 
 
 @dataclass(frozen=True)
@@ -138,17 +133,12 @@ class ObservedStar:
     @property
     def fractional_parallax_error(self) -> float:
         """parallax_error / parallax (inf for a non-positive parallax)."""
-        plx = self.mean[2]
-        return float(self.sigma[2] / plx) if plx > 0 else math.inf
+        plx = self.mean[PARALLAX]
+        return float(self.sigma[PARALLAX] / plx) if plx > 0 else math.inf
 
     def catalogue_errors(self) -> dict:
         """Errors in catalogue units (ra_error of alpha* in mas), keyed by field."""
-        s = self.sigma
-        cosd = math.cos(math.radians(self.mean[1]))
-        out = dict(zip(_ERRORS, s.tolist()))
-        out["ra_error"] = float(s[0] * MAS_PER_DEG * cosd)
-        out["dec_error"] = float(s[1] * MAS_PER_DEG)
-        return out
+        return dict(zip(_ERRORS, errors_to_catalogue(self.sigma, self.mean[DEC]).tolist()))
 
     def to_dict(self) -> dict:
         """Inputs in catalogue units, for reports and JSON."""
@@ -158,10 +148,9 @@ class ObservedStar:
         s = self.sigma
         with np.errstate(invalid="ignore", divide="ignore"):
             corr = self.cov / np.outer(s, s)
-        idx = {n: k for k, n in enumerate(OBSERVABLES)}
         for c in _CORRS:
             a, b = _split_corr(c)
-            value = corr[idx[a], idx[b]]
+            value = corr[INDEX[a], INDEX[b]]
             out[c] = float(value) if np.isfinite(value) else 0.0
         out["mass"] = self.mass
         out["mass_error"] = self.mass_error
@@ -215,7 +204,7 @@ class ObservedStar:
                     values[name] = 0.0
                     notes.append(note("held-exact", f"{name} not given: held exact", name))
                     continue
-                raise InputError(name, None, f"missing; expected a value in {_UNITS[name]}", row)
+                raise InputError(name, None, f"missing; expected a value in {FIELD_UNITS[name]}", row)
             values[name] = _to_float(name, data[name], row)
         for name in _ERRORS:
             if values[name] < 0:
@@ -244,23 +233,11 @@ class ObservedStar:
                     raise InputError(name, c, "expected a correlation coefficient in [-1, 1]", row)
                 corrs[name] = c
         notes.extend(_unit_slips(values, row))
-        cosd = math.cos(math.radians(dec))
-        if values["ra_error"] > 0 and cosd < 1e-12:
-            raise InputError(
-                "dec", dec, "ra is undefined at a celestial pole; give ra_error = 0 or move off the pole", row
-            )
-        sigma = np.array(
-            [
-                values["ra_error"] / MAS_PER_DEG / (cosd if cosd > 0 else 1.0),
-                values["dec_error"] / MAS_PER_DEG,
-            ]
-            + [values[e] for e in _ERRORS[2:]]
-        )
+        sigma = errors_to_internal([values[e] for e in _ERRORS], dec, row=row)
         corr = np.eye(6)
-        idx = {n: k for k, n in enumerate(OBSERVABLES)}
         for name, c in corrs.items():
             a, b = _split_corr(name)
-            corr[idx[a], idx[b]] = corr[idx[b], idx[a]] = c
+            corr[INDEX[a], INDEX[b]] = corr[INDEX[b], INDEX[a]] = c
         _check_psd(corr, row=row, what="correlation matrix")
         cov = corr * np.outer(sigma, sigma)
         mean = np.array([values[n] for n in OBSERVABLES])
@@ -374,7 +351,7 @@ def _is_missing(value) -> bool:
 
 
 def _to_float(name, value, row, unit="default") -> float:
-    target = _UNITS.get(name) if unit == "default" else unit
+    target = FIELD_UNITS.get(name) if unit == "default" else unit
     # a table cell read as text (one bad cell turns a CSV column into text) is a number in the column's unit
     return to_number(name, value, target, row=row, text_needs_unit=row is None)
 
@@ -400,9 +377,6 @@ def _check_psd(matrix, *, row=None, what="covariance matrix"):
             row,
         )
 
-
-#: Speed of light [km/s] (astropy.constants): no star moves faster.
-_C_KMS = 299_792.458
 
 #: Bounds of plausibility, each with its reason. A radial velocity beyond |1,000| km/s exceeds the Galaxy's
 #: escape speed near the Sun (about 550 km/s, Piffl et al. 2014, A&A 562, A91; from memory) by far: most
@@ -436,7 +410,7 @@ def _plausibility(values, row) -> list:
         )
     if plx > _PARALLAX_MAX_MAS:
         raise InputError(
-            "parallax", plx, f"a star closer than {1e3 / plx * AU_PER_PC:,.0f} au is not a passing star; "
+            "parallax", plx, f"a star closer than {MAS_PC / plx * AU_PER_PC:,.0f} au is not a passing star; "
             "expected mas (check the unit)", row
         )
     # transverse speed 4.74047 km/s per (mas/yr) at 1 mas; the total speed must stay below c
@@ -449,11 +423,11 @@ def _plausibility(values, row) -> list:
             "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
             "perihelion within any meaningful time; give exact zeros for motions that were not measured", row
         )
-    if speed >= _C_KMS:
-        field, value = ("radial_velocity", rv) if abs(rv) >= _C_KMS else ("pmra", values["pmra"])
+    if speed >= SPEED_OF_LIGHT_KMS:
+        field, value = ("radial_velocity", rv) if abs(rv) >= SPEED_OF_LIGHT_KMS else ("pmra", values["pmra"])
         raise InputError(
-            field, value, f"the star would move at {speed:.3g} km/s, faster than light ({_C_KMS:,.0f} km/s); "
-            "check the units", row
+            field, value, f"the star would move at {speed:.3g} km/s, faster than light "
+            f"({SPEED_OF_LIGHT_KMS:,.0f} km/s); check the units", row
         )
     return _plausibility_notes(values, row)
 
@@ -471,7 +445,7 @@ def _plausibility_notes(values, row) -> list:
     if plx > _PARALLAX_CAUTION_MAS:
         out.append(Caution(
             "implausible-value",
-            f"parallax = {plx:g} mas puts the star at {1e3 / plx:.3g} pc, closer than the nearest known "
+            f"parallax = {plx:g} mas puts the star at {MAS_PC / plx:.3g} pc, closer than the nearest known "
             "star (1.30 pc): check the unit", "caution", "parallax", row,
         ))
     return out

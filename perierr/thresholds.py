@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import astropy.units as u
 
-from ._quantity import to_number
 from .errors import InputError
+from .units import OUTPUT_UNITS, to_number
 
 __all__ = ["DEFAULT_THRESHOLDS", "parse_thresholds"]
 
@@ -25,7 +25,7 @@ def parse_thresholds(values) -> list:
     for item in values:
         if isinstance(item, str):
             item = item.strip()
-        pc = to_number("threshold", item, u.pc, example="0.5 pc")
+        pc = to_number("threshold", item, OUTPUT_UNITS["distance_pc"], example="0.5 pc")
         if not pc > 0:
             raise InputError("threshold", item, "expected a positive distance")
         if isinstance(item, str):

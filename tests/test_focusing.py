@@ -8,11 +8,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from perierr._constants import AU_PER_PC
 from perierr.models import StraightLine, make_model
 from perierr.models.base import ForwardModel
 from perierr.models.focusing import Focused, FocusingError, hyperbolic_perihelion
 from perierr.models.orbit.potentials import G_PC_KMS2_PER_MSUN
+from perierr.units import AU_PER_PC
 
 AU = 1.0 / AU_PER_PC  # pc per au (astropy's IAU 2012 au)
 

@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from perierr import _constants as c
+from perierr import units as c
 from perierr.frames import cartesian_jacobian, cartesian_to_observables, observables_to_cartesian
 
 from .conftest import random_observables

@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-from perierr._constants import AU_PER_PC
 from perierr.models.orbit import OrbitModel
 from perierr.models.orbit import model as model_mod
 from perierr.models.orbit.fixed_step import rk4_on_nodes
+from perierr.units import AU_PER_PC
 
 
 def _oscillator(omega):

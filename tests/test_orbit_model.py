@@ -13,12 +13,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from perierr._constants import AU_PER_PC, MYR_PER_PC_PER_KMS
 from perierr.frames import cartesian_to_observables, observables_to_cartesian
 from perierr.models import StraightLine, make_model
 from perierr.models.base import ForwardModel
 from perierr.models.orbit import OrbitModel, OrbitOptionError, Plummer, get_solar_parameters
 from perierr.models.orbit.integrate import integrate_relative
+from perierr.units import AU_PER_PC, MYR_PER_PC_PER_KMS
 
 GALPY_KW = dict(ro=8.0, vo=220.0, zo=0.0208, solarmotion="schoenrich")
 

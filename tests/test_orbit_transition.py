@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
-from perierr._constants import AU_PER_PC
 from perierr.models.orbit import OrbitModel
 from perierr.models.orbit.transition import N_FEATURES, features
+from perierr.units import AU_PER_PC
 
 # invented stars: nominal observables and independent 1-sigma errors
 NEAR = (np.array([40.0, 20.0, 40.0, 10.0, -5.0, -25.0]),  # 25 pc, ~1 Myr ahead

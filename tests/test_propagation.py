@@ -11,9 +11,9 @@ from scipy import stats
 from uncertainties import umath
 
 from perierr import InputError, ObservedStar, StraightLine, linearize, monte_carlo
-from perierr._constants import KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
 from perierr.sampling.gaussian import draw_gaussian, psd_factor
 from perierr.summary import summarize, threshold_probability
+from perierr.units import KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
 
 #: Monte Carlo checks allow K_SE standard errors, each computed in the test from the statistics. 4: the
 #: checks of this suite already stated from the statistics use 4, so one K never loosens them; the

@@ -7,10 +7,10 @@ import pytest
 from numpy.testing import assert_allclose
 
 from perierr import ObservedStar, StraightLine, analyze
-from perierr._constants import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
 from perierr.frames import cartesian_to_observables, observables_to_cartesian
 from perierr.models.base import ForwardModel
 from perierr.models.straight import perihelion_cartesian_jacobian, perihelion_from_cartesian
+from perierr.units import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
 
 from .conftest import random_observables
 

@@ -73,6 +73,12 @@ GROUPS = {
         ["tests/test_plan_update.py", "tests/test_plan_goals.py", "tests/test_plan_update_edges.py"],
         False,
     ),
+    "units": (
+        ["perierr/units.py"],
+        ["tests/test_units.py", "tests/test_star.py", "tests/test_frames.py", "tests/test_plan_update.py",
+         "tests/test_plan_update_edges.py", "tests/test_priors_calibration.py"],
+        False,
+    ),
 }
 
 _COPY = ("perierr", "tests", "data_demo", "notebooks", "benchmarks", "README.md", "setup.py", "LICENSE")

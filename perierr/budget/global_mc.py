@@ -45,10 +45,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError
 from ..models.base import ForwardModel
 from ..sampling.gaussian import psd_factor, resolve_seed
+from ..units import OBSERVABLES, OUTPUTS, PARALLAX
 from .game import conditional_map, group_masks, members, shapley_values, standardize
 from .linear import clip_rounding, extend_inputs, linear_costs
 
@@ -383,13 +383,13 @@ def global_budget(
     for q in outputs:
         if q not in OUTPUTS:
             raise InputError("outputs", q, f"expected names from {OUTPUTS}")
-    if not star.mean[2] > 0:
-        raise InputError("parallax", float(star.mean[2]), "the global budget inverts the parallax; expected > 0")
-    z = star.mean[2] / star.sigma[2] if star.sigma[2] > 0 else math.inf
+    if not star.mean[PARALLAX] > 0:
+        raise InputError("parallax", float(star.mean[PARALLAX]), "the global budget inverts the parallax; expected > 0")
+    z = star.mean[PARALLAX] / star.sigma[PARALLAX] if star.sigma[PARALLAX] > 0 else math.inf
     if z < 5.5:
         raise InputError(
             "parallax_error",
-            float(star.sigma[2]),
+            float(star.sigma[PARALLAX]),
             f"parallax / error = {z:.2g} < 5.5: conditional draws would reach parallax <= 0 where "
             "the perihelion is undefined; use the linear budget or a distance prior",
         )

@@ -29,8 +29,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError, PerierrWarning
+from ..units import OBSERVABLES, OUTPUTS
 from .game import explained_variance, shapley_values, standardize
 
 __all__ = ["LinearBudget", "extend_inputs", "linear_budget", "linear_costs", "linear_shapley"]

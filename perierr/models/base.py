@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OUTPUTS
+from ..units import OUTPUTS
 
 __all__ = ["ForwardModel", "Nuisance", "Perihelion"]
 

@@ -6,11 +6,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError
 from ..models.base import ForwardModel
 from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..units import DEC, INDEX, OBSERVABLES, OUTPUTS, PARALLAX
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
 from .whatif import STATISTICS, CommonDraws, common_draws, scenario_metrics
 
@@ -109,18 +109,18 @@ def gain_curves(
         Common draws (ignored when ``draws`` is given).
     draws : CommonDraws, optional
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     if int(n_points) < 2:
         raise InputError("n_points", n_points, "expected at least 2 precisions per curve")
     if not (span[0] > 0 and span[1] > 0):
         raise InputError("span", span, "expected two positive multiples of today's error, e.g. (3, 0.01)")
     names = [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0] if inputs is None else [input_name(i) for i in inputs]
     draws = common_draws(n, seed) if draws is None else draws
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     covs, grids = [star.cov[None]], {}
     for name in names:
-        idx = OBSERVABLES.index(name)
+        idx = INDEX[name]
         if star.sigma[idx] == 0:
             raise InputError("inputs", name, "this input is held exact (zero error); leave it out")
         if precisions is not None and name in precisions:
@@ -152,7 +152,7 @@ def gain_curves(
         tuple(names),
         {nm: np.asarray(to_catalogue(nm, g, dec=dec)) for nm, g in grids.items()},
         {nm: UNIT_LABELS[nm] for nm in names},
-        {nm: float(to_catalogue(nm, star.sigma[OBSERVABLES.index(nm)], dec=dec)) for nm in names},
+        {nm: float(to_catalogue(nm, star.sigma[INDEX[nm]], dec=dec)) for nm in names},
         curves, current, label,
         {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)},
     )

@@ -5,13 +5,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 from .. import __version__
-from .._constants import OBSERVABLES
 from ..budget import GlobalBudget, global_budget
 from ..cautions import HAZARD, linear_cautions, messages
 from ..models import ForwardModel, make_model
 from ..propagate.linear import linearize
 from ..star import ObservedStar
 from ..thresholds import DEFAULT_THRESHOLDS
+from ..units import DEC, OBSERVABLES, PARALLAX
 from .curves import GainCurves, gain_curves
 from .required import required_precision
 from .update import make_measurement
@@ -123,11 +123,11 @@ def plan(
     if isinstance(model, str):
         model = make_model(model)
     # the same checks as analyze(): a perihelion must exist, and there must be an error to plan against
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     require_motion(star.mean)
     require_uncertainty(star.sigma)
     seed = resolve_seed(seed)
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     wi = None
     if measure:
         items = measure.items() if isinstance(measure, dict) else None

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..models.base import ForwardModel
+from ..units import DEC
 from .cost import PhotonLimitedCost
 from .update import make_measurement, update_covariance
 from .whatif import common_draws, scenario_metrics
@@ -89,7 +90,7 @@ def rank_measurements(
     draws = common_draws(n, seed)
     rows = []
     for k, star in enumerate(stars):
-        ms = [make_measurement(name, p, dec=float(star.mean[1])) for name, p in candidates.items()]
+        ms = [make_measurement(name, p, dec=float(star.mean[DEC])) for name, p in candidates.items()]
         covs = np.stack([star.cov] + [update_covariance(star.cov, m.index, m.precision) for m in ms])
         values = scenario_metrics(star, model, covs, draws, thresholds=["1 pc"]).metric(metric)
         for j, m in enumerate(ms):

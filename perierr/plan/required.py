@@ -16,10 +16,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..models.base import ForwardModel
 from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..units import DEC, INDEX, PARALLAX, errors_to_internal
 from .goals import Goal
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
 from .whatif import CommonDraws, common_draws, scenario_metrics
@@ -123,12 +123,12 @@ def required_precision(
         Bisection steps in log precision (40 give a relative precision ~1e-6
         of one grid step).
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     name = input_name(input)
-    idx = OBSERVABLES.index(name)
+    idx = INDEX[name]
     draws = common_draws(n, seed) if draws is None else draws
     thresholds = [goal.threshold] if goal.kind == "decide" else ["1 pc"]
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     sigma = float(star.sigma[idx])
 
     def metric(covs):
@@ -201,6 +201,4 @@ def required_precision(
 
 
 def _to_internal(name, value, dec):
-    from .update import make_measurement
-
-    return make_measurement(name, value, dec=dec).precision
+    return float(errors_to_internal([value], dec, names=(name,))[0])

@@ -13,7 +13,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import AU_PER_PC, OUTPUTS
 from ..budget import LinearBudget, star_budget
 from ..models.base import ForwardModel
 from ..propagate.checks import require_positive_parallax
@@ -23,6 +22,7 @@ from ..sampling.gaussian import Samples, psd_factor, resolve_seed
 from ..star import ObservedStar
 from ..summary import DEFAULT_LEVELS
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
+from ..units import AU_PER_PC, OUTPUTS, PARALLAX
 from .update import Measurement, updated_star
 
 __all__ = ["CommonDraws", "ScenarioMetrics", "WhatIf", "common_draws", "scenario_metrics", "what_if"]
@@ -124,7 +124,7 @@ def scenario_metrics(
     for start in range(0, k, per_chunk):
         stop = min(k, start + per_chunk)
         x = np.matmul(draws.z, np.swapaxes(factors[start:stop], 1, 2)) + mean
-        ok = x[..., 2] > 0
+        ok = x[..., PARALLAX] > 0
         valid[start:stop] = ok
         flat = x.reshape(-1, 6)
         res = np.full((flat.shape[0], 3), np.nan)
@@ -247,7 +247,7 @@ def what_if(
     levels, thresholds
         As in :func:`perierr.propagate.monte_carlo`.
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     measurements = tuple(measurements)
     for m in measurements:
         if not isinstance(m, Measurement):

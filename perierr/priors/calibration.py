@@ -23,16 +23,15 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..cautions import note
 from ..errors import InputError, PerierrWarning
 from ..star import ObservedStar
+from ..units import INTERNAL_UNITS, OBSERVABLES, PARALLAX, to_number
 
 __all__ = ["ZERO_POINT", "Calibration", "parse_inflation", "parse_offset"]
 
 #: Name of the zero-point input in budgets.
 ZERO_POINT = "parallax_zero_point"
-_PLX = OBSERVABLES.index("parallax")
 
 
 def parse_offset(value) -> tuple:
@@ -77,18 +76,9 @@ def _has_unit(text) -> bool:
 
 
 def _mas(field, value) -> float:
-    try:
-        if isinstance(value, str):
-            q = u.Quantity(value.strip())
-            value = q.value if q.unit == u.dimensionless_unscaled else q.to_value(u.mas)
-        elif isinstance(value, u.Quantity):
-            value = value.to_value(u.mas)
-        out = float(value)
-    except (u.UnitsError, TypeError, ValueError):
-        raise InputError(field, value, "expected a parallax in mas (a number or e.g. '-17 uas')") from None
-    if not math.isfinite(out):
-        raise InputError(field, value, "expected a finite number in mas")
-    return out
+    """A parallax offset in mas from a number (mas), Quantity or string (``"-17 uas"``)."""
+    unit = INTERNAL_UNITS["parallax"]
+    return to_number(field, value, unit, text_needs_unit=False, example="-17 uas", noun="a parallax")
 
 
 def parse_inflation(value) -> dict:
@@ -179,16 +169,17 @@ class Calibration:
             warnings.warn(f"error inflation factors below 1 shrink the errors of {', '.join(low)}",
                           PerierrWarning, stacklevel=2)
         mean = np.array(star.mean, dtype=float)
-        mean[_PLX] -= self.zero_point
+        mean[PARALLAX] -= self.zero_point
         cov = np.asarray(star.cov) * np.outer(f, f)
-        cov[_PLX, _PLX] += self.zero_point_error**2
+        cov[PARALLAX, PARALLAX] += self.zero_point_error**2
         notes = list(star.cautions)
         if self.zero_point or self.zero_point_error:
             notes.append(note(
                 "zero-point-applied",
                 f"parallax corrected for a zero-point of {self.zero_point:+.4g} ± {self.zero_point_error:.2g} mas: "
-                f"{star.mean[_PLX]:.6g} -> {mean[_PLX]:.6g} mas, error {star.sigma[_PLX] * f[_PLX]:.4g} -> "
-                f"{math.sqrt(cov[_PLX, _PLX]):.4g} mas",
+                f"{star.mean[PARALLAX]:.6g} -> {mean[PARALLAX]:.6g} mas, "
+                f"error {star.sigma[PARALLAX] * f[PARALLAX]:.4g} -> "
+                f"{math.sqrt(cov[PARALLAX, PARALLAX]):.4g} mas",
                 "parallax",
             ))
         for name, x in zip(OBSERVABLES, f):
@@ -208,8 +199,8 @@ class Calibration:
             "error_inflation": {n: self.inflation.get(n, 1.0) for n in OBSERVABLES},
         }
         if star is not None:
-            out["catalogue_parallax_mas"] = float(star.mean[_PLX])
-            out["catalogue_parallax_error_mas"] = float(star.sigma[_PLX])
+            out["catalogue_parallax_mas"] = float(star.mean[PARALLAX])
+            out["catalogue_parallax_error_mas"] = float(star.sigma[PARALLAX])
         return out
 
     def budget_inputs(self, jacobian, calibrated_star: ObservedStar) -> tuple:
@@ -234,6 +225,6 @@ class Calibration:
 
         j = np.asarray(jacobian, dtype=float)
         cov6 = np.array(calibrated_star.cov, dtype=float)
-        cov6[_PLX, _PLX] -= self.zero_point_error**2
-        grad, cov = extend_inputs(j, cov6, -j[:, _PLX], [self.zero_point_error**2])
+        cov6[PARALLAX, PARALLAX] -= self.zero_point_error**2
+        grad, cov = extend_inputs(j, cov6, -j[:, PARALLAX], [self.zero_point_error**2])
         return grad, cov, OBSERVABLES + (ZERO_POINT,)

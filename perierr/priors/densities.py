@@ -24,8 +24,8 @@ import astropy.units as u
 import numpy as np
 from scipy.special import gammaln
 
-from .._constants import PC_PER_MAS_INVERSE
 from ..errors import InputError
+from ..units import MAS_PC, to_number
 
 __all__ = [
     "DistancePrior",
@@ -40,31 +40,17 @@ __all__ = [
 ]
 
 
-def _length_pc(field, value, *, allow_inf=False) -> float:
-    """A positive length in pc from a number (pc), Quantity or string."""
-    try:
-        if isinstance(value, str):
-            q = u.Quantity(value.strip())
-            if q.unit == u.dimensionless_unscaled:
-                q = q.value * u.pc
-            value = q
-        if isinstance(value, u.Quantity):
-            value = value.to_value(u.pc)
-        out = float(value)
-    except (u.UnitsError, TypeError, ValueError):
-        raise InputError(field, value, "expected a length in pc (a number, or e.g. '1.35 kpc')") from None
-    if not out > 0 or (math.isinf(out) and not allow_inf) or math.isnan(out):
+def _length_pc(field, value) -> float:
+    """A positive length in pc from a number (pc), Quantity or string (``"1.35 kpc"``)."""
+    out = to_number(field, value, u.pc, text_needs_unit=False, example="1.35 kpc", noun="a length")
+    if not out > 0:
         raise InputError(field, value, "expected a positive, finite length in pc")
     return out
 
 
 def _number(field, value, *, low=None, low_open=True) -> float:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        raise InputError(field, value, "expected a number") from None
-    if not math.isfinite(out):
-        raise InputError(field, value, "expected a finite number")
+    """A finite plain number, above ``low`` if given."""
+    out = to_number(field, value, None)
     if low is not None and (out <= low if low_open else out < low):
         raise InputError(field, value, f"expected a number {'>' if low_open else '>='} {low}")
     return out
@@ -407,7 +393,7 @@ def log_distance_posterior(r, parallax, parallax_error, prior) -> np.ndarray:
     """
     r = np.asarray(r, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        chi = (parallax - PC_PER_MAS_INVERSE / r) / parallax_error
+        chi = (parallax - MAS_PC / r) / parallax_error
     return np.where(r > 0, -0.5 * chi * chi + prior.log_density(r), -np.inf)
 
 

@@ -33,15 +33,14 @@ import warnings
 
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..errors import InputError, PerierrWarning
 from ..sampling.gaussian import Samples, psd_factor, resolve_seed
+from ..units import MAS_PC, OBSERVABLES, PARALLAX
 from .densities import log_distance_posterior
 
 __all__ = ["ChainTooShortError", "sample_posterior_mcmc"]
 
-_PLX = OBSERVABLES.index("parallax")
-_PERM = (_PLX,) + tuple(k for k in range(6) if k != _PLX)
+_PERM = (PARALLAX,) + tuple(k for k in range(6) if k != PARALLAX)
 _INV = tuple(int(i) for i in np.argsort(_PERM))
 
 #: Chain length after burn-in, in autocorrelation times, for a trusted tau
@@ -66,7 +65,7 @@ def _initial_log_distance(prior, plx, sig, n, rng) -> np.ndarray:
         p = plx + sig * rng.standard_normal(n)
         p = p[p > 0]
         if p.size == n:
-            u = np.log(1000.0 / p)
+            u = np.log(MAS_PC / p)
             if np.all(np.isfinite(prior.log_density(np.exp(u)))):
                 return u
     lo, hi = prior.support
@@ -146,7 +145,7 @@ def sample_posterior_mcmc(
     """
     import emcee
 
-    sig = float(star.sigma[_PLX])
+    sig = float(star.sigma[PARALLAX])
     if not sig > 0:
         raise InputError("parallax_error", sig, "posterior sampling needs a parallax error > 0")
     if int(n_effective) < 100:
@@ -168,7 +167,7 @@ def sample_posterior_mcmc(
         u = x[:, 0]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             r = np.exp(u)
-            z0 = (1000.0 / r - plx0) / sig
+            z0 = (MAS_PC / r - plx0) / sig
             lp = -0.5 * (z0 * z0 + np.sum(x[:, 1:] ** 2, axis=1)) + prior.log_density(r) + u
         return np.where(np.isfinite(lp), lp, -np.inf)
 
@@ -244,7 +243,7 @@ def _judge(info, kept, tau_max, n_effective, max_steps):
 
 def _to_observables(flat, mean_p, basis, plx0, sig) -> np.ndarray:
     """Sampler coordinates (n, k) -> observables (n, 6) in the OBSERVABLES order."""
-    plx = 1000.0 * np.exp(-flat[:, 0])
+    plx = MAS_PC * np.exp(-flat[:, 0])
     z = np.column_stack([(plx - plx0) / sig, flat[:, 1:]])
     theta_p = mean_p + z @ basis.T
     theta_p[:, 0] = plx  # exact, free of rounding in the round trip

@@ -12,11 +12,11 @@ import warnings
 
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..errors import InputError, PerierrWarning
 from ..propagate.checks import require_positive_parallax
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
 from ..summary import weighted_quantiles
+from ..units import MAS_PC, PARALLAX
 from .densities import DistancePrior, NoPrior
 from .mcmc import sample_posterior_mcmc
 from .parse import resolve_prior
@@ -26,7 +26,6 @@ __all__ = ["METHODS", "posterior_samples"]
 
 #: Accepted values of ``method``.
 METHODS = ("auto", "reweight", "mcmc")
-_PLX = OBSERVABLES.index("parallax")
 
 
 def posterior_samples(
@@ -73,7 +72,7 @@ def posterior_samples(
     prior = resolve_prior(prior)
     seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
-    plx, sig = float(star.mean[_PLX]), float(star.sigma[_PLX])
+    plx, sig = float(star.mean[PARALLAX]), float(star.sigma[PARALLAX])
     if isinstance(prior, NoPrior):
         require_positive_parallax(plx, method="The 'none' distance prior (parallax inversion)")
         values = draw_gaussian(star.mean, star.cov, int(n), rng)
@@ -84,7 +83,7 @@ def posterior_samples(
             info={"effective_size": float(n), "note": "no prior: parallaxes inverted"},
         )
     if sig == 0:
-        if not plx > 0 or not np.isfinite(prior.log_density(np.array([1000.0 / plx])))[0]:
+        if not plx > 0 or not np.isfinite(prior.log_density(np.array([MAS_PC / plx])))[0]:
             raise InputError(
                 "parallax",
                 plx,
@@ -167,7 +166,7 @@ def _check_tension(samples, plx, sig, prior):
     """Warn when the prior drags an informative parallax far from its measured value."""
     if not (plx > 0 and sig > 0 and plx / sig > 5):
         return samples  # a weak parallax is meant to be prior-dominated (warned above)
-    med = float(weighted_quantiles(samples.values[:, _PLX], [0.5], samples.weights)[0])
+    med = float(weighted_quantiles(samples.values[:, PARALLAX], [0.5], samples.weights)[0])
     z = (med - plx) / sig
     samples.info["prior_tension_sigma"] = float(z)
     if abs(z) > TENSION_SIGMA:

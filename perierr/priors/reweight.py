@@ -20,13 +20,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..errors import InputError
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..units import MAS_PC, PARALLAX
 
 __all__ = ["importance_weights", "log_weights", "reweight"]
 
-_PLX = OBSERVABLES.index("parallax")
 
 
 def log_weights(parallax, prior) -> np.ndarray:
@@ -44,10 +43,10 @@ def log_weights(parallax, prior) -> np.ndarray:
     """
     plx = np.asarray(parallax, dtype=float)
     if plx.size and plx.min() > 0:  # common case: no mask, one pass fewer
-        return prior.log_weight(1000.0 / plx)
+        return prior.log_weight(MAS_PC / plx)
     out = np.full(plx.shape, -np.inf)
     pos = plx > 0
-    r = 1000.0 / plx[pos]
+    r = MAS_PC / plx[pos]
     out[pos] = prior.log_weight(r)
     return out
 
@@ -110,7 +109,7 @@ def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
     if rng is None:
         rng = np.random.default_rng(seed)
     values = draw_gaussian(star.mean, star.cov, int(n), rng)
-    w, keep = importance_weights(values[:, _PLX], prior)
+    w, keep = importance_weights(values[:, PARALLAX], prior)
     if w is None:
         raise InputError(
             "distance prior", prior.name,

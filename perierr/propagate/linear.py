@@ -6,14 +6,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..models.base import ForwardModel
 from ..star import ObservedStar
+from ..units import OBSERVABLES, OUTPUT_LABELS, OUTPUTS, PARALLAX
 from .checks import require_motion, require_positive_parallax
 
 __all__ = ["LinearResult", "linearize"]
-
-_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
 
 
 @dataclass(frozen=True)
@@ -54,7 +52,7 @@ class LinearResult:
     def to_dict(self) -> dict:
         """``{Q: {"value", "sigma", "unit"}}`` plus the output correlations."""
         out = {
-            q: {"value": float(v), "sigma": float(s), "unit": _UNITS[q]}
+            q: {"value": float(v), "sigma": float(s), "unit": OUTPUT_LABELS[q]}
             for q, v, s in zip(OUTPUTS, self.value, self.sigma)
         }
         c = self.corr
@@ -75,7 +73,7 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     -------
     LinearResult
     """
-    require_positive_parallax(star.mean[2], method="linearized propagation")
+    require_positive_parallax(star.mean[PARALLAX], method="linearized propagation")
     require_motion(star.mean)
     # the nominal value: no reference, so models evaluate this one row as it is (no Monte Carlo
     # machinery, e.g. no random focusing masses)

@@ -14,18 +14,16 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OUTPUTS
 from ..errors import InputError, PerierrWarning
 from ..models.base import ForwardModel, Perihelion
 from ..sampling.gaussian import Samples, draw_gaussian, require_draws, resolve_seed
 from ..star import ObservedStar
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
+from ..units import OUTPUT_LABELS, OUTPUTS, PARALLAX
 from .checks import require_motion, require_positive_parallax
 
 __all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
-
-_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
 
 
 @dataclass(frozen=True)
@@ -123,7 +121,7 @@ def propagate_samples(
         Distances for P(d_ph < D); see :func:`perierr.thresholds.parse_thresholds`.
     """
     values = samples.values
-    valid = values[:, 2] > 0
+    valid = values[:, PARALLAX] > 0
     all_valid = bool(valid.all())
     # compress the (6, n) layout when the draws have it: about twice as fast as boolean indexing,
     # and it keeps each observable contiguous for the model
@@ -137,7 +135,7 @@ def propagate_samples(
     w_all = samples.weights
     w = None if w_all is None else (w_all if all_valid else w_all[valid])
     levels = tuple(sorted(set(DEFAULT_LEVELS) | {round(float(q), 12) for q in levels}))
-    summaries = {q: summarize(ph.output(q), name=q, unit=_UNITS[q], levels=levels, weights=w) for q in OUTPUTS}
+    summaries = {q: summarize(ph.output(q), name=q, unit=OUTPUT_LABELS[q], levels=levels, weights=w) for q in OUTPUTS}
     if all_valid:
         d_all = ph.distance_pc
     else:
@@ -180,7 +178,7 @@ def monte_carlo(
     -------
     MonteCarloResult
     """
-    require_positive_parallax(star.mean[2], method="Monte Carlo by parallax inversion")
+    require_positive_parallax(star.mean[PARALLAX], method="Monte Carlo by parallax inversion")
     require_motion(star.mean)
     n = require_draws(n)
     if target_error is not None:

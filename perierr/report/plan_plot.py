@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .._constants import AU_PER_PC
+from ..units import AU_PER_PC
 
 __all__ = ["plot_gain_curves"]
 

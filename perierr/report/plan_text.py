@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import AU_PER_PC
 from ..cautions import HAZARD, messages
+from ..units import AU_PER_PC
 from .shares import format_share, input_label
 
 __all__ = ["format_plan"]

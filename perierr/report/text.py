@@ -8,21 +8,11 @@ from __future__ import annotations
 
 import math
 
-from .._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
 from ..cautions import HAZARD, messages
+from ..units import AU_PER_PC, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_TITLES, OUTPUTS
 from .shares import format_share, input_label
 
 __all__ = ["format_analysis", "format_value"]
-
-_LABEL = {"time_myr": "time [Myr]", "distance_pc": "distance [pc]", "speed_kms": "speed [km/s]"}
-_UNIT_OBS = {
-    "ra": "deg",
-    "dec": "deg",
-    "parallax": "mas",
-    "pmra": "mas/yr",
-    "pmdec": "mas/yr",
-    "radial_velocity": "km/s",
-}
 
 
 def _decimals(err: float) -> int:
@@ -65,9 +55,9 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
     lines.append("Input (catalogue units)")
     cat = star.catalogue_errors()
     for name in OBSERVABLES:
-        value, err = star.mean[OBSERVABLES.index(name)], cat[f"{name}_error"]
+        value, err = star.mean[INDEX[name]], cat[f"{name}_error"]
         shown = f"{value:.7f}" if name in ("ra", "dec") else format_value(value, err)
-        unit = _UNIT_OBS[name] + ("  (error in mas)" if name in ("ra", "dec") else "")
+        unit = INTERNAL_LABELS[name] + ("  (error in mas)" if name in ("ra", "dec") else "")
         lines.append(f"  {name:<16}{shown:>14} ± {err:<10.4g} {unit}")
     if star.fractional_parallax_error < math.inf:
         lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
@@ -79,12 +69,12 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
     for k, q in enumerate(OUTPUTS):
         nominal = None if lin is None else lin.value[k]
         sigma = None if lin is None else lin.sigma[k]
-        lines.append(_row(_LABEL[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
+        lines.append(_row(OUTPUT_TITLES[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
         if q == "distance_pc":
             lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
     for q in OUTPUTS:
         if mc.summaries[q].note:
-            lines.append(f"  {_LABEL[q]}: {mc.summaries[q].note}")
+            lines.append(f"  {OUTPUT_TITLES[q]}: {mc.summaries[q].note}")
     extra = [q for q in mc.levels if q not in (0.05, 0.16, 0.5, 0.84, 0.95)]
     if extra:
         lines.append("  other quantiles (MC error in brackets):")
@@ -94,7 +84,7 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
             cells = ", ".join(
                 f"{100 * lv:g} %: {format_value(s.quantiles[lv], err)} ({s.quantile_se[lv]:.2g})" for lv in extra
             )
-            lines.append(f"    {_LABEL[q]:<15}{cells}")
+            lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
     info = mc.perihelion.info
     if info.get("method") and info.get("model") != "straight_line":
         parts = [f"method {info['method']}"]
@@ -157,7 +147,9 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
         lines.append("Against straight-line motion on the same draws (this model minus straight line)")
         for q in OUTPUTS:
             c = a.comparison[q]
-            lines.append(f"  {_LABEL[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
+            lines.append(
+                f"  {OUTPUT_TITLES[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}"
+            )
             if q == "distance_pc":
                 au = AU_PER_PC
                 lines.append(

@@ -15,9 +15,9 @@ import math
 
 import numpy as np
 
-from ..._constants import AU_PER_PC
-from ..._constants import MYR_PER_PC_PER_KMS as _C
 from ...frames import cartesian_jacobian, observables_to_cartesian
+from ...units import AU_PER_PC, PARALLAX
+from ...units import MYR_PER_PC_PER_KMS as _C
 from ..base import ForwardModel, Perihelion
 from .grid import distance_bins, map_span, rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
@@ -208,8 +208,8 @@ class OrbitModel(ForwardModel):
             raise ValueError(f"observables have shape {obs.shape}; expected (n, 6)")
         if not np.all(np.isfinite(obs)):
             raise ValueError("observables contain non-finite values; expected finite numbers")
-        if np.any(obs[:, 2] <= 0):
-            bad = float(obs[obs[:, 2] <= 0, 2][0])
+        if np.any(obs[:, PARALLAX] <= 0):
+            bad = float(obs[obs[:, PARALLAX] <= 0, PARALLAX][0])
             raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
         xv = observables_to_cartesian(obs)
         rel = (xv.reshape(-1, 3) @ self._rotation.T).reshape(-1, 6)
