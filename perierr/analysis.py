@@ -18,11 +18,11 @@ from .budget import LinearBudget, star_budget
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
-from .propagate.checks import require_motion
 from .propagate.linear import LinearResult, linearize
 from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
 from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
+from .star.checks import require_motion
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
 from .units import AU_PER_PC, OUTPUTS

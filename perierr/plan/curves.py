@@ -8,8 +8,8 @@ import numpy as np
 
 from ..errors import InputError
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
 from ..units import DEC, INDEX, OBSERVABLES, OUTPUTS, PARALLAX
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
 from .whatif import STATISTICS, CommonDraws, common_draws, scenario_metrics

@@ -117,8 +117,8 @@ def plan(
     budget_options : dict, optional
         Passed to :func:`perierr.budget.global_budget`.
     """
-    from ..propagate.checks import require_motion, require_positive_parallax, require_uncertainty
     from ..sampling.gaussian import resolve_seed
+    from ..star.checks import require_motion, require_positive_parallax, require_uncertainty
 
     if isinstance(model, str):
         model = make_model(model)

@@ -17,8 +17,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
 from ..units import DEC, INDEX, PARALLAX, errors_to_internal
 from .goals import Goal
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance

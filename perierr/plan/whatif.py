@@ -15,11 +15,11 @@ import numpy as np
 
 from ..budget import LinearBudget, star_budget
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..propagate.linear import LinearResult, linearize
 from ..propagate.montecarlo import MonteCarloResult, propagate_samples
 from ..sampling.gaussian import Samples, psd_factor, resolve_seed
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
 from ..summary import DEFAULT_LEVELS
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
 from ..units import AU_PER_PC, OUTPUTS, PARALLAX

@@ -13,8 +13,8 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, PerierrWarning
-from ..propagate.checks import require_positive_parallax
 from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..star.checks import require_positive_parallax
 from ..summary import weighted_quantiles
 from ..units import MAS_PC, PARALLAX
 from .densities import DistancePrior, NoPrior

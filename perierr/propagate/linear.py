@@ -8,8 +8,8 @@ import numpy as np
 
 from ..models.base import ForwardModel
 from ..star import ObservedStar
+from ..star.checks import require_motion, require_positive_parallax
 from ..units import OBSERVABLES, OUTPUT_LABELS, OUTPUTS, PARALLAX
-from .checks import require_motion, require_positive_parallax
 
 __all__ = ["LinearResult", "linearize"]
 

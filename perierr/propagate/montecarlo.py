@@ -18,10 +18,10 @@ from ..errors import InputError, PerierrWarning
 from ..models.base import ForwardModel, Perihelion
 from ..sampling.gaussian import Samples, draw_gaussian, require_draws, resolve_seed
 from ..star import ObservedStar
+from ..star.checks import require_motion, require_positive_parallax
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
 from ..units import OUTPUT_LABELS, OUTPUTS, PARALLAX
-from .checks import require_motion, require_positive_parallax
 
 __all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
 
