@@ -14,8 +14,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import __version__
 from ._constants import AU_PER_PC, OUTPUTS
+from ._version import __version__
 from .budget import LinearBudget, star_budget
 from .cautions import biased_parallax, distance_within_sigma, head_on
 from .errors import InputError, PerierrWarning
@@ -98,7 +98,7 @@ def analyze(
     *,
     model: ForwardModel | str = "straight_line",
     n_samples: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
     target_error: float | None = None,
@@ -118,8 +118,10 @@ def analyze(
         A model or a name accepted by :func:`perierr.models.make_model`.
     n_samples : int
         Monte Carlo draws (first round in the adaptive mode).
-    seed : int or None
-        None picks a seed and records it in the result.
+    seed : int, numpy.random.Generator or None
+        None picks a seed; a Generator gives one (one draw of ``seed.integers(2**63)``); the
+        integer is recorded in the result, so passing it back reproduces the result
+        (:func:`perierr.sampling.gaussian.resolve_seed`).
     levels : sequence of float
         Extra quantile levels to report.
     thresholds : sequence

@@ -129,9 +129,11 @@ def propagate_samples(
     # and it keeps each observable contiguous for the model
     rows = values if all_valid else np.compress(valid, values.T, axis=1).T
     if rows.shape[0] == 0:
-        raise ValueError(
-            "every sample has parallax <= 0, so no perihelion can be computed by "
-            "inverting parallaxes; use a distance prior"
+        raise InputError(
+            "parallax",
+            float(np.max(values[:, 2])) if values.shape[0] else None,
+            "every sample has parallax <= 0 (this is the largest), so no perihelion can be computed by "
+            "inverting parallaxes; use a distance prior",
         )
     ph = model.evaluate(rows, reference=reference)
     w_all = samples.weights
@@ -152,7 +154,7 @@ def monte_carlo(
     model: ForwardModel,
     *,
     n: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
     target_error: float | None = None,
@@ -166,8 +168,9 @@ def monte_carlo(
     model : ForwardModel
     n : int
         Number of draws (the first round, in the adaptive mode).
-    seed : int or None
-        Seed of the ``numpy.random.Generator``; None picks one and records it.
+    seed : int, numpy.random.Generator or None
+        Seed of the ``numpy.random.Generator``; None picks one, a Generator gives one, and the
+        integer is recorded (see :func:`perierr.sampling.gaussian.resolve_seed`).
     levels, thresholds
         See :func:`propagate_samples`.
     target_error : float, optional
@@ -200,7 +203,7 @@ def monte_carlo(
     if target_error is None:
         return result
     if not target_error > 0:
-        raise ValueError(f"target_error = {target_error!r}: expected a positive fraction, e.g. 0.01")
+        raise InputError("target_error", target_error, "expected a positive fraction, e.g. 0.01")
     rounds = 1
     worst = result.worst_relative_error()
     while worst > target_error and values.shape[0] < max_samples:
