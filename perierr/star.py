@@ -19,10 +19,12 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -31,6 +33,9 @@ import tomllib
 from ._constants import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MAS_PER_DEG, OBSERVABLES
 from ._quantity import to_number
 from .errors import InputError, PerierrWarning
+
+if TYPE_CHECKING:
+    from astropy.table import Row, Table
 
 __all__ = ["ObservedStar", "read_star_file", "read_catalogue"]
 
@@ -161,7 +166,7 @@ class ObservedStar:
         return out
 
     @classmethod
-    def from_values(cls, **fields) -> ObservedStar:
+    def from_values(cls, **fields: float | str | u.Quantity | None) -> ObservedStar:
         """Build a star from keyword arguments named as catalogue columns.
 
         Examples
@@ -176,7 +181,7 @@ class ObservedStar:
         return cls.from_mapping(fields)
 
     @classmethod
-    def from_mapping(cls, mapping, *, row=None, strict=True) -> ObservedStar:
+    def from_mapping(cls, mapping: Mapping | Row, *, row: int | str | None = None, strict: bool = True) -> ObservedStar:
         """Build a star from a mapping or an astropy Table row.
 
         Parameters
@@ -279,7 +284,7 @@ class ObservedStar:
         )
 
 
-def read_star_file(path) -> ObservedStar:
+def read_star_file(path: str | os.PathLike) -> ObservedStar:
     """Read one star from a TOML file of catalogue-named fields.
 
     Parameters
@@ -310,7 +315,7 @@ def read_star_file(path) -> ObservedStar:
     return ObservedStar.from_mapping(data)
 
 
-def read_catalogue(source) -> list:
+def read_catalogue(source: str | os.PathLike | Table) -> list[ObservedStar]:
     """Read every row of a table (ECSV/FITS/VOTable path or astropy Table).
 
     Each row becomes an :class:`ObservedStar`; an error names the row.

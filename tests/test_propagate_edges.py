@@ -218,7 +218,7 @@ def test_fresh_seeds_fit_a_signed_64_bit_integer_and_use_its_range():
     for bad in (-1, np.int64(-5), "3", 1.5):
         with pytest.raises((ValueError, TypeError)) as info:
             resolve_seed(bad)
-        assert info.type is ValueError
+        assert info.type is InputError and info.value.field == "seed" and info.value.value is bad
 
 
 # --- propagate_samples ---------------------------------------------------------------------------------------------

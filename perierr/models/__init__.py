@@ -1,4 +1,10 @@
-"""Forward models from the six observables to perihelion time, distance and speed."""
+"""Forward models from the six observables to perihelion time, distance and speed.
+
+:mod:`.orbit` (Galactic orbits) and :mod:`.focusing` are loaded on first use
+(``perierr.models.orbit`` works without importing it first).
+"""
+
+import importlib
 
 from ..errors import InputError
 from .base import ForwardModel, Perihelion
@@ -60,3 +66,9 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
         key = sorted(focus)[0]
         raise InputError(key, focus[key], "needs star_mass_msun (the star's mass in M_sun), which was not given")
     return model
+
+
+def __getattr__(name):
+    if name in ("orbit", "focusing"):  # submodules with heavier imports (scipy), loaded when asked for
+        return importlib.import_module(f"{__name__}.{name}")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -88,10 +88,6 @@ def _initial_log_distance(prior, plx, sig, n, rng) -> np.ndarray:
     dens = np.where(np.isfinite(dens), dens, 0.0)
     u = np.log(r)
     cdf = np.concatenate([[0.0], np.cumsum(0.5 * (dens[1:] + dens[:-1]) * np.diff(u))])
-    if not cdf[-1] > 0:  # density at a single grid node at most: nothing to start walkers from
-        raise InputError("distance prior", prior.parameters,
-                         f"the posterior has no extent between {lo:g} and {hi:g} pc: the prior excludes every "
-                         "distance the parallax allows; check the prior's parameters and units")
     cdf /= cdf[-1]
     if open_top and 1.0 - np.interp(math.log(1e7), u, cdf) > 1e-3:
         raise InputError(

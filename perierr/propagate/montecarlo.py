@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -22,6 +24,9 @@ from ..star import ObservedStar
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
 from .checks import require_motion, require_positive_parallax
+
+if TYPE_CHECKING:
+    from astropy.units import Quantity
 
 __all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
 
@@ -155,8 +160,8 @@ def monte_carlo(
     *,
     n: int = 100_000,
     seed: int | np.random.Generator | None = None,
-    levels=DEFAULT_LEVELS,
-    thresholds=DEFAULT_THRESHOLDS,
+    levels: Sequence[float] = DEFAULT_LEVELS,
+    thresholds: Sequence[str | float | Quantity] = DEFAULT_THRESHOLDS,
     target_error: float | None = None,
     max_samples: int = 10_000_000,
 ) -> MonteCarloResult:
