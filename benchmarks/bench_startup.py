@@ -45,6 +45,8 @@ def commands() -> dict:
 
 
 def environment(source: Path) -> dict:
+    """Environment of the runs: ``source`` first on the path (the runs also start in ``source``: with
+    ``-c`` Python puts the working folder first on ``sys.path``)."""
     env = dict(os.environ)
     env["PYTHONPATH"] = os.pathsep.join([str(source), env.get("PYTHONPATH", "")]).rstrip(os.pathsep)
     env["MPLBACKEND"] = "Agg"
@@ -53,8 +55,9 @@ def environment(source: Path) -> dict:
 
 def wall_time(code: str, env: dict) -> float:
     """Seconds from starting the interpreter to its exit, output discarded."""
+    cwd = env["PYTHONPATH"].split(os.pathsep)[0]
     t0 = time.perf_counter()
-    subprocess.run([sys.executable, "-c", code], env=env, check=True, stdout=subprocess.DEVNULL, cwd=ROOT)
+    subprocess.run([sys.executable, "-c", code], env=env, check=True, stdout=subprocess.DEVNULL, cwd=cwd)
     return time.perf_counter() - t0
 
 
@@ -85,7 +88,9 @@ def report(source, times: dict) -> None:
 
 def import_costs(env: dict, top: int) -> list:
     """The ``top`` largest cumulative import times of ``import perierr.cli`` [(microseconds, module)]."""
-    done = subprocess.run([sys.executable, "-X", "importtime", "-c", "import perierr.cli"], env=env, cwd=ROOT,
+    cwd = env["PYTHONPATH"].split(os.pathsep)[0]
+    code = "import perierr.cli, sys; assert perierr.cli.__file__.startswith(sys.argv[1]), perierr.cli.__file__"
+    done = subprocess.run([sys.executable, "-X", "importtime", "-c", code, cwd], env=env, cwd=cwd,
                           capture_output=True, text=True, check=True)
     rows = []
     for line in done.stderr.splitlines():
