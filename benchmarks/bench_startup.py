@@ -2,7 +2,9 @@
 
 Each command runs in a fresh interpreter (``subprocess``), ``--repeat`` times, interleaved so that load on
 a shared machine hits all of them alike; the reference is ``python -c pass`` measured in the same run
-(this machine's absolute timings are noisy, read the ratios and the differences):
+(this machine's absolute timings are noisy, read the ratios and the differences). Besides the wall time
+each run's CPU time (user + system, from ``resource.getrusage``) is reported: on a busy machine it is
+the steadier of the two.
 
 * ``python -c pass``: the interpreter alone;
 * ``import perierr.cli``: what every command pays before it starts;
@@ -23,6 +25,7 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ[_var] = "1"  # one core
 
 import argparse  # noqa: E402
+import resource  # noqa: E402
 import statistics  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402
@@ -53,12 +56,17 @@ def environment(source: Path) -> dict:
     return env
 
 
-def wall_time(code: str, env: dict) -> float:
-    """Seconds from starting the interpreter to its exit, output discarded."""
+def _children_cpu() -> float:
+    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return usage.ru_utime + usage.ru_stime
+
+
+def wall_time(code: str, env: dict) -> tuple:
+    """(wall, CPU) seconds from starting the interpreter to its exit, output discarded."""
     cwd = env["PYTHONPATH"].split(os.pathsep)[0]
-    t0 = time.perf_counter()
+    cpu0, t0 = _children_cpu(), time.perf_counter()
     subprocess.run([sys.executable, "-c", code], env=env, check=True, stdout=subprocess.DEVNULL, cwd=cwd)
-    return time.perf_counter() - t0
+    return time.perf_counter() - t0, _children_cpu() - cpu0
 
 
 def measure(repeat: int, envs: dict) -> dict:
@@ -76,14 +84,17 @@ def measure(repeat: int, envs: dict) -> dict:
 
 
 def report(source, times: dict) -> None:
-    base = statistics.median(times["python -c pass"])
+    wall = {name: statistics.median(t[0] for t in ts) for name, ts in times.items()}
+    cpu = {name: statistics.median(t[1] for t in ts) for name, ts in times.items()}
+    base, base_cpu = wall["python -c pass"], cpu["python -c pass"]
     print(f"\nperierr from {source}")
-    print(f"{'command':<28}{'median':>10}{'min':>10}{'- pass':>10}{'/ pass':>9}")
+    print(f"{'command':<28}{'wall':>8}{'min':>8}{'- pass':>9}{'/ pass':>8}{'cpu':>9}{'/ pass':>8}")
     for name, ts in times.items():
-        med = statistics.median(ts)
-        print(f"{name:<28}{med * 1e3:>8.0f}ms{min(ts) * 1e3:>8.0f}ms{(med - base) * 1e3:>8.0f}ms{med / base:>8.1f}x")
-    share = (statistics.median(times["import perierr.cli"]) - base) / (statistics.median(times["perierr run"]) - base)
-    print(f"importing is {share:.0%} of a default `perierr run` beyond the interpreter's own start")
+        low = min(t[0] for t in ts)
+        print(f"{name:<28}{wall[name] * 1e3:>6.0f}ms{low * 1e3:>6.0f}ms{(wall[name] - base) * 1e3:>7.0f}ms"
+              f"{wall[name] / base:>7.1f}x{cpu[name] * 1e3:>7.0f}ms{cpu[name] / base_cpu:>7.1f}x")
+    share = (wall["import perierr.cli"] - base) / (wall["perierr run"] - base)
+    print(f"importing is {share:.0%} of a default `perierr run` beyond the interpreter's own start (wall, medians)")
 
 
 def import_costs(env: dict, top: int) -> list:
