@@ -66,8 +66,9 @@ def test_every_readme_import_line_imports(line):
 
 def test_every_dotted_name_in_the_readme_resolves_after_import_perierr():
     # `perierr.plan.rank_measurements`, `perierr.models.orbit.potentials` ...: after a plain `import perierr`
-    # in a fresh interpreter, attribute access alone must reach them (lazy subpackages)
-    dotted = sorted(set(re.findall(r"\bperierr(?:\.[A-Za-z_]\w*)+", README)))
+    # in a fresh interpreter, attribute access alone must reach them (lazy subpackages); a module the README
+    # imports by name (`import perierr.cli`) is not meant as an attribute
+    dotted = sorted(set(re.findall(r"(?<!import )\bperierr(?:\.[A-Za-z_]\w*)+", README)))
     dotted = [d for d in dotted if not d.endswith((".toml", ".json", ".ecsv"))]
     assert "perierr.plan.rank_measurements" in dotted and "perierr.priors" in dotted
     code = (
