@@ -46,8 +46,8 @@ def test_a_derived_quantity_has_the_linear_sigma(close_star):
 
 
 def test_outputs_held_exact_stay_exact():
-    # every input error zero except the radial velocity: t and v vary, d varies too; with all errors zero
-    # the covariance is zero and the values carry zero sigma (correlated_values copes with zero variances)
+    # every input error zero: the linear covariance is zero and the values carry a sigma of exactly 0
+    # (uncertainties.correlated_values normalizes zero variances by 1, its documented special case)
     star = perierr.ObservedStar.from_values(
         ra=120.5, dec=-12.25, parallax=25.0, parallax_error=0.0, pmra=3.1, pmra_error=0.0, pmdec=-4.2,
         pmdec_error=0.0, radial_velocity=-22.0, radial_velocity_error=0.0,
