@@ -11,12 +11,11 @@ import sys
 import warnings
 from pathlib import Path
 
-from . import __version__
+from ._version import __version__
 from .analysis import analyze
 from .demo import demo_path
-from .errors import InputError, PerierrWarning
+from .errors import InputError, PerierrError, PerierrWarning
 from .models import MODEL_NAMES, make_model
-from .priors.mcmc import ChainTooShortError
 from .report import format_analysis, write_json
 from .star import read_star_file
 from .thresholds import DEFAULT_THRESHOLDS
@@ -352,7 +351,7 @@ def main(argv=None, out=None) -> int:
         _prepare_outputs(args)
         _check_distances(args)
         _dispatch(args, out)
-    except (InputError, ValueError, ChainTooShortError) as exc:
+    except PerierrError as exc:  # perierr's own refusals; a stray ValueError is a bug (the last resort below)
         return _fail(f"error: {exc}", EXIT_INPUT)
     except KeyboardInterrupt:
         return _fail("interrupted (Ctrl-C); no result was written", EXIT_INTERRUPTED)

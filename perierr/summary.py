@@ -11,6 +11,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .errors import InputError
+
 __all__ = [
     "DEFAULT_LEVELS",
     "OutputSummary",
@@ -270,6 +272,20 @@ def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
     return std, float(m3 / root3), float(m4 / m2sq), ""
 
 
+def _checked_levels(levels) -> tuple:
+    """Quantile levels rounded to 12 digits, sorted, with 0.5; InputError for one outside (0, 1)."""
+    rounded = []
+    for q in levels:
+        try:
+            rounded.append((q, round(float(q), 12)))
+        except (TypeError, ValueError):
+            raise InputError("levels", q, "expected quantile levels: numbers strictly between 0 and 1") from None
+    for q, r in rounded:
+        if not 0.0 < r < 1.0:
+            raise InputError("levels", q, "expected a quantile level strictly between 0 and 1")
+    return tuple(sorted({r for _, r in rounded} | {0.5}))
+
+
 def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:
     """Summarize samples of one output.
 
@@ -288,10 +304,7 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
     x = np.asarray(x, dtype=float)
     if x.size == 0:
         raise ValueError(f"{name}: no samples to summarize")
-    levels = tuple(sorted({round(float(q), 12) for q in levels} | {0.5}))
-    for q in levels:
-        if not 0.0 < q < 1.0:
-            raise ValueError(f"quantile level {q!r}: expected a number strictly between 0 and 1")
+    levels = _checked_levels(levels)
     w = None if weights is None else np.asarray(weights, dtype=float)
     n_eff, mean, m2, m3, m4 = _moments(x, w)
     std, skew, kurt, note = _shape(x, w, n_eff, mean, m2, m3, m4)

@@ -113,7 +113,7 @@ def test_mass_error_draws_are_seeded_and_truncated():
     # 4000 draws: sampling error of a std ~ 1/sqrt(2 n) ~ 1.1 %
     assert abs(np.std(a.distance_pc) / want - 1) < 0.05
     assert abs(np.mean(a.distance_pc) / mean_q - 1) < 0.01
-    with pytest.raises(FocusingError, match="mass_msun=-1"):
+    with pytest.raises(FocusingError, match="mass_msun = -1: "):
         Focused(StraightLine(), mass_msun=-1)
 
 

@@ -183,7 +183,7 @@ def test_composition_and_bad_parameters():
         Plummer(mass_msun=1.0, b_pc=-1.0)
     with pytest.raises(PotentialParameterError, match="alpha"):
         PowerLawCutoff(mass_msun=1.0, alpha=2.5, rc_pc=1.0)
-    with pytest.raises(PotentialParameterError, match="potential='nope'"):
+    with pytest.raises(PotentialParameterError, match="potential = 'nope': not a known preset"):
         get_potential("nope")
 
 

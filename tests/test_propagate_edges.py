@@ -18,7 +18,7 @@ import pytest
 
 from perierr import InputError, ObservedStar, StraightLine, linearize, monte_carlo
 from perierr.models.base import ForwardModel, Nuisance, Perihelion
-from perierr.propagate import checks
+from perierr.star import checks
 from perierr.propagate import montecarlo as mc_module
 from perierr.propagate.montecarlo import propagate_samples, scalar_info
 from perierr.sampling import gaussian
@@ -218,7 +218,7 @@ def test_fresh_seeds_fit_a_signed_64_bit_integer_and_use_its_range():
     for bad in (-1, np.int64(-5), "3", 1.5):
         with pytest.raises((ValueError, TypeError)) as info:
             resolve_seed(bad)
-        assert info.type is ValueError
+        assert info.type is InputError and info.value.field == "seed" and info.value.value is bad
 
 
 # --- propagate_samples ---------------------------------------------------------------------------------------------

@@ -209,7 +209,7 @@ def shapley_gaussian(
     n_outer=2000,
     n_inner=3,
     n_boot=200,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     statistic="variance",
     confidence=0.95,
 ) -> ShapleyEstimate:
@@ -345,7 +345,7 @@ def global_budget(
     width_inner: int = 256,
     n_boot: int = 200,
     groups=None,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     confidence: float = 0.95,
 ) -> GlobalBudget:
     """Global (Monte Carlo) Shapley budget of a star's perihelion.
@@ -367,7 +367,8 @@ def global_budget(
         Bootstrap resamples of the outer draws.
     groups : dict, optional
         Partition name -> {group name: input names}; default :data:`DEFAULT_GROUPS`.
-    seed : int or None
+    seed : int, numpy.random.Generator or None
+        One seed for every draw; the integer is recorded (see :func:`perierr.sampling.gaussian.resolve_seed`).
     confidence : float
 
     Returns

@@ -1,5 +1,12 @@
-"""Forward models from the six observables to perihelion time, distance and speed."""
+"""Forward models from the six observables to perihelion time, distance and speed.
 
+:mod:`.orbit` (Galactic orbits) and :mod:`.focusing` are loaded on first use
+(``perierr.models.orbit`` works without importing it first).
+"""
+
+import importlib
+
+from ..errors import InputError
 from .base import ForwardModel, Perihelion
 from .straight import StraightLine
 
@@ -28,9 +35,9 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
              if k in options}
     if name == "straight_line":
         if options:
-            raise ValueError(
-                f"model 'straight_line' takes no option {sorted(options)[0]!r} "
-                f"(value {options[sorted(options)[0]]!r}); accepted: star_mass_msun, "
+            key = sorted(options)[0]
+            raise InputError(
+                key, options[key], f"model 'straight_line' has no option {key!r}; accepted: star_mass_msun, "
                 "star_mass_error_msun, rng"
             )
         model = StraightLine()
@@ -39,13 +46,13 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
 
         unknown = sorted(set(options) - set(ORBIT_OPTIONS))
         if unknown:
-            raise ValueError(
-                f"model 'orbit' has no option {unknown[0]!r} (value {options[unknown[0]]!r}); "
+            raise InputError(
+                unknown[0], options[unknown[0]], f"model 'orbit' has no option {unknown[0]!r}; "
                 f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun, rng"
             )
         model = OrbitModel(**options)
     else:
-        raise ValueError(f"unknown model {name!r}; expected one of {', '.join(MODEL_NAMES)}")
+        raise InputError("model", name, f"unknown model; expected one of {', '.join(MODEL_NAMES)}")
     if "star_mass_msun" in focus:
         from .focusing import Focused
 
@@ -56,7 +63,12 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
             rng=focus.get("rng"),
         )
     elif focus:
-        raise ValueError(
-            f"option {sorted(focus)[0]!r} needs star_mass_msun; got star_mass_msun=None"
-        )
+        key = sorted(focus)[0]
+        raise InputError(key, focus[key], "needs star_mass_msun (the star's mass in M_sun), which was not given")
     return model
+
+
+def __getattr__(name):
+    if name in ("orbit", "focusing"):  # submodules with heavier imports (scipy), loaded when asked for
+        return importlib.import_module(f"{__name__}.{name}")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

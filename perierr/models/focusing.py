@@ -24,14 +24,15 @@ import math
 import numpy as np
 from scipy.stats import norm, truncnorm
 
+from ..errors import InputError
 from .base import ForwardModel, Nuisance, Perihelion
 from .orbit.potentials import G_PC_KMS2_PER_MSUN
 
 __all__ = ["Focused", "hyperbolic_perihelion", "FocusingError"]
 
 
-class FocusingError(ValueError):
-    """An invalid focusing parameter."""
+class FocusingError(InputError):
+    """An invalid focusing parameter (an :class:`~perierr.errors.InputError`)."""
 
 
 def hyperbolic_perihelion(impact_pc, speed_kms, mass_msun):
@@ -92,14 +93,14 @@ class Focused(ForwardModel):
 
     def __init__(self, base, *, mass_msun, mass_error_msun=0.0, rng=None):
         if not isinstance(base, ForwardModel):
-            raise FocusingError(f"base={base!r} must be a ForwardModel")
+            raise FocusingError("base", base, "expected a ForwardModel (e.g. perierr.make_model('straight_line'))")
         for key, val in (("mass_msun", mass_msun), ("mass_error_msun", mass_error_msun)):
             try:
                 ok = math.isfinite(float(val)) and float(val) >= 0
             except (TypeError, ValueError):
                 ok = False
             if not ok:
-                raise FocusingError(f"focusing option {key}={val!r} must be a finite number >= 0")
+                raise FocusingError(key, val, "expected a finite mass >= 0 in M_sun (a focusing option)")
         self.base = base
         self.mass_msun = float(mass_msun)
         self.mass_error_msun = float(mass_error_msun)

@@ -86,7 +86,7 @@ def gain_curves(
     precisions=None,
     threshold: str = "20000 au",
     n: int = 20_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
 ) -> GainCurves:
     """Gain curves for each input.
@@ -105,8 +105,10 @@ def gain_curves(
         Input -> explicit precisions in catalogue units (overrides ``span``).
     threshold : str
         Distance for the P(d_ph < D) curve.
-    n, seed : int
+    n : int
         Common draws (ignored when ``draws`` is given).
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
     """
     require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")

@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .. import __version__
+import numpy as np
+
+from .._version import __version__
 from ..budget import GlobalBudget, global_budget
 from ..cautions import HAZARD, linear_cautions, messages
 from ..models import ForwardModel, make_model
@@ -83,7 +85,7 @@ def plan(
     budget: bool = True,
     n: int = 20_000,
     n_whatif: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     thresholds=DEFAULT_THRESHOLDS,
     curve_threshold: str = "20000 au",
     n_points: int = 20,
@@ -107,8 +109,9 @@ def plan(
         Common draws for curves and goals.
     n_whatif : int
         Draws for the side-by-side what-if summaries.
-    seed : int or None
-        One seed for everything (recorded in the settings).
+    seed : int, numpy.random.Generator or None
+        One seed for everything; the integer is recorded in the settings
+        (see :func:`perierr.sampling.gaussian.resolve_seed`).
     thresholds : sequence
         Thresholds of the what-if summaries.
     curve_threshold : str

@@ -59,7 +59,7 @@ def rank_measurements(
     cost: PhotonLimitedCost | None = None,
     magnitudes=None,
     n: int = 20_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
 ) -> Ranking:
     """Rank every (star, measurement) pair by the gain it buys.
 
@@ -77,8 +77,10 @@ def rank_measurements(
         price are ranked after the priced ones, by gain.
     magnitudes : sequence of float, optional
         One magnitude per star (the band the cost reference uses).
-    n, seed : int
+    n : int
         Common draws, the same for every star.
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     """
     stars = list(stars)
     if not stars:

@@ -102,7 +102,7 @@ def required_precision(
     goal: Goal,
     *,
     n: int = 20_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
     iterations: int = 40,
 ) -> RequiredPrecision:
@@ -116,8 +116,10 @@ def required_precision(
         The input to re-observe.
     goal : Goal
         From :func:`~perierr.plan.goals.spread_goal` or ``decide_goal``.
-    n, seed : int
+    n : int
         Common draws (ignored when ``draws`` is given).
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
     iterations : int
         Bisection steps in log precision (40 give a relative precision ~1e-6

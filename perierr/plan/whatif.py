@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..budget import LinearBudget, star_budget
+from ..errors import InputError
 from ..models.base import ForwardModel
 from ..propagate.linear import LinearResult, linearize
 from ..propagate.montecarlo import MonteCarloResult, propagate_samples
@@ -56,10 +57,17 @@ class CommonDraws:
         return self.z @ psd_factor(cov).T + np.asarray(mean, dtype=float)
 
 
-def common_draws(n: int = 20_000, seed=None) -> CommonDraws:
-    """Draw the shared standard normals with ``numpy.random.default_rng(seed)``."""
-    if int(n) < 100:
-        raise ValueError(f"n = {n!r}: expected at least 100 samples")
+def common_draws(n: int = 20_000, seed: int | np.random.Generator | None = None) -> CommonDraws:
+    """Draw the shared standard normals with ``numpy.random.default_rng(seed)``.
+
+    ``seed`` follows :func:`perierr.sampling.gaussian.resolve_seed`; the integer it resolves to is recorded.
+    """
+    try:
+        enough = int(n) >= 100
+    except (TypeError, ValueError):
+        enough = False
+    if not enough:
+        raise InputError("n", n, "expected at least 100 samples")
     seed = resolve_seed(seed)
     return CommonDraws(np.random.default_rng(seed).standard_normal((int(n), 6)), seed)
 
@@ -226,7 +234,7 @@ def what_if(
     measurements,
     *,
     n: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
@@ -241,7 +249,8 @@ def what_if(
         From :func:`~perierr.plan.update.make_measurement` or ``parse_measure``.
     n : int
         Monte Carlo draws (ignored when ``draws`` is given).
-    seed : int or None
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
         Shared draws, to compare with other scenarios.
     levels, thresholds
@@ -251,7 +260,7 @@ def what_if(
     measurements = tuple(measurements)
     for m in measurements:
         if not isinstance(m, Measurement):
-            raise TypeError(f"expected Measurement objects, got {type(m).__name__}")
+            raise InputError("measurements", m, "expected Measurement objects (see perierr.plan.parse_measure)")
     draws = common_draws(n, seed) if draws is None else draws
     improved = updated_star(star, measurements)
 

@@ -22,7 +22,6 @@ import math
 
 import astropy.units as u
 import numpy as np
-from scipy.special import gammaln
 
 from ..errors import InputError
 from ..units import MAS_PC, to_number
@@ -183,6 +182,8 @@ class GeneralizedGamma(DistancePrior):
     name = "generalized_gamma"
 
     def __init__(self, alpha, beta, length_scale):
+        from scipy.special import gammaln  # here, not at import: scipy.special costs start-up time
+
         self.alpha = _number("alpha", alpha, low=0.0)
         self.beta = _number("beta", beta, low=-1.0)
         self.length_scale = _length_pc("L", length_scale)

@@ -33,7 +33,7 @@ import warnings
 
 import numpy as np
 
-from ..errors import InputError, PerierrWarning
+from ..errors import InputError, PerierrError, PerierrWarning
 from ..sampling.gaussian import Samples, psd_factor, resolve_seed
 from ..units import MAS_PC, OBSERVABLES, PARALLAX
 from .densities import log_distance_posterior
@@ -50,7 +50,7 @@ RELIABLE_TAUS = 50
 MINIMUM_TAUS = 20
 
 
-class ChainTooShortError(RuntimeError):
+class ChainTooShortError(PerierrError, RuntimeError):
     """The MCMC chain is too short for its autocorrelation time to be trusted."""
 
 
@@ -71,6 +71,10 @@ def _initial_log_distance(prior, plx, sig, n, rng) -> np.ndarray:
     lo, hi = prior.support
     open_top = not math.isfinite(hi)
     lo, hi = max(lo, 1e-3), min(hi, 1e8)
+    if not hi > lo:
+        raise InputError("distance prior", prior.parameters,
+                         f"the prior allows only distances below {lo:g} pc (about 200 au), closer than any star: "
+                         "bare numbers are pc, give a unit (e.g. r_max=2kpc)")
     r = np.geomspace(lo, hi, 20001)
     if lo == prior.support[0] and lo > 0:
         r = r[1:]  # table priors may be zero at their first node only through interpolation
@@ -104,7 +108,7 @@ def sample_posterior_mcmc(
     prior,
     *,
     n_effective: int = 4000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     rng=None,
     n_walkers: int = 64,
     max_steps: int = 100_000,
@@ -119,9 +123,9 @@ def sample_posterior_mcmc(
         Proper (or proper for this parallax).
     n_effective : int
         Effective sample size to reach.
-    seed : int or None
-        Seed of ``numpy.random.default_rng``; the emcee sampler's legacy
-        ``RandomState`` is seeded from it, so the same seed gives the same chain.
+    seed : int, numpy.random.Generator or None
+        Seed of ``numpy.random.default_rng`` (see :func:`perierr.sampling.gaussian.resolve_seed`); the emcee
+        sampler's legacy ``RandomState`` is seeded from it, so the same seed gives the same chain.
     rng : numpy.random.Generator, optional
         Use this generator instead (``seed`` is then only recorded).
     n_walkers : int
@@ -217,10 +221,20 @@ def _tau_and_burn(sampler, steps):
     from emcee.autocorr import integrated_time
 
     chain = sampler.get_chain()
-    tau = integrated_time(chain[steps // 2 :], tol=0, quiet=True)
+    tau = _finite_tau(integrated_time(chain[steps // 2 :], tol=0, quiet=True), steps)
     burn = min(int(math.ceil(5 * np.max(tau))), steps // 2)
-    tau = integrated_time(chain[burn:], tol=0, quiet=True)
-    return np.asarray(tau, dtype=float), burn
+    return _finite_tau(integrated_time(chain[burn:], tol=0, quiet=True), steps), burn
+
+
+def _finite_tau(tau, steps) -> np.ndarray:
+    """The autocorrelation times as floats; ChainTooShortError when one is not finite (a chain that never moved)."""
+    tau = np.asarray(tau, dtype=float)
+    if not np.all(np.isfinite(tau)):
+        raise ChainTooShortError(
+            f"MCMC chain did not move in {steps} steps (autocorrelation times {tau.tolist()}): the prior leaves "
+            "the walkers no room; check the prior's support against the parallax"
+        )
+    return tau
 
 
 def _judge(info, kept, tau_max, n_effective, max_steps):

@@ -33,7 +33,7 @@ def posterior_samples(
     prior: DistancePrior,
     *,
     n: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     method: str = "auto",
     min_effective_size: float | None = None,
     mcmc_effective_size: int = 10_000,
@@ -50,8 +50,9 @@ def posterior_samples(
         :class:`NoPrior` gives plain Gaussian draws (parallax inversion).
     n : int
         Gaussian draws for reweighting.
-    seed : int or None
-        One seed drives every random number (None picks and records one).
+    seed : int, numpy.random.Generator or None
+        One seed drives every random number; the integer is recorded
+        (see :func:`perierr.sampling.gaussian.resolve_seed`).
     method : {"auto", "reweight", "mcmc"}
     min_effective_size : float, optional
         Reweighting below this Kish effective sample size switches to MCMC

@@ -76,7 +76,9 @@ def importance_weights(parallax, prior) -> tuple:
     return w, keep
 
 
-def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
+def reweight(
+    star, prior, *, n: int = 100_000, seed: int | np.random.Generator | None = None, rng=None
+) -> Samples:
     """Gaussian draws of a star's observables, weighted to the posterior.
 
     Parameters
@@ -85,8 +87,9 @@ def reweight(star, prior, *, n: int = 100_000, seed=None, rng=None) -> Samples:
     prior : DistancePrior
     n : int
         Draws before removing the zero-weight ones.
-    seed : int or None
-        Seed of ``numpy.random.default_rng`` (None picks and records one).
+    seed : int, numpy.random.Generator or None
+        Seed of ``numpy.random.default_rng``; the integer is recorded
+        (see :func:`perierr.sampling.gaussian.resolve_seed`).
     rng : numpy.random.Generator, optional
         Use this generator instead (``seed`` is then only recorded).
 

@@ -49,6 +49,39 @@ class LinearResult:
         np.fill_diagonal(out, 1.0)
         return out
 
+    def as_correlated(self) -> tuple:
+        """The three outputs as correlated numbers of the ``uncertainties`` package.
+
+        Built with ``uncertainties.correlated_values(value, cov)``, so their
+        covariance is this result's ``cov`` and any formula of them carries the
+        linear error through, correlations included (first order, like the rest
+        of this result).
+
+        Returns
+        -------
+        tuple of uncertainties.UFloat
+            ``(time_myr, distance_pc, speed_kms)`` in Myr, pc and km/s. They
+            depend on three new independent variables (the eigen-directions of
+            ``cov``), not on the six inputs.
+
+        Examples
+        --------
+        >>> import perierr
+        >>> star = perierr.ObservedStar.from_values(
+        ...     ra=201.3705, dec=-27.6214, parallax=48.012, parallax_error=0.031,
+        ...     pmra=0.710, pmra_error=0.035, pmdec=-1.200, pmdec_error=0.029,
+        ...     radial_velocity=-31.2, radial_velocity_error=0.6, pmra_pmdec_corr=-0.34,
+        ... )
+        >>> t, d, v = perierr.linearize(star, perierr.StraightLine()).as_correlated()
+        >>> print(f"{d * 206264.806:.0f} au")
+        18956+/-603 au
+        >>> print(f"{d / v:.3e}")  # pc / (km/s), with the d-v correlation
+        (2.946+/-0.136)e-03
+        """
+        from uncertainties import correlated_values  # only when asked for: it is not needed to compute anything
+
+        return tuple(correlated_values(self.value.tolist(), self.cov))
+
     def to_dict(self) -> dict:
         """``{Q: {"value", "sigma", "unit"}}`` plus the output correlations."""
         out = {

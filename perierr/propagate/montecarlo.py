@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -22,6 +24,9 @@ from ..star.checks import require_motion, require_positive_parallax
 from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
 from ..units import OUTPUT_LABELS, OUTPUTS, PARALLAX
+
+if TYPE_CHECKING:
+    from astropy.units import Quantity
 
 __all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
 
@@ -127,9 +132,11 @@ def propagate_samples(
     # and it keeps each observable contiguous for the model
     rows = values if all_valid else np.compress(valid, values.T, axis=1).T
     if rows.shape[0] == 0:
-        raise ValueError(
-            "every sample has parallax <= 0, so no perihelion can be computed by "
-            "inverting parallaxes; use a distance prior"
+        raise InputError(
+            "parallax",
+            float(np.max(values[:, 2])) if values.shape[0] else None,
+            "every sample has parallax <= 0 (this is the largest), so no perihelion can be computed by "
+            "inverting parallaxes; use a distance prior",
         )
     ph = model.evaluate(rows, reference=reference)
     w_all = samples.weights
@@ -150,9 +157,9 @@ def monte_carlo(
     model: ForwardModel,
     *,
     n: int = 100_000,
-    seed=None,
-    levels=DEFAULT_LEVELS,
-    thresholds=DEFAULT_THRESHOLDS,
+    seed: int | np.random.Generator | None = None,
+    levels: Sequence[float] = DEFAULT_LEVELS,
+    thresholds: Sequence[str | float | Quantity] = DEFAULT_THRESHOLDS,
     target_error: float | None = None,
     max_samples: int = 10_000_000,
 ) -> MonteCarloResult:
@@ -164,8 +171,9 @@ def monte_carlo(
     model : ForwardModel
     n : int
         Number of draws (the first round, in the adaptive mode).
-    seed : int or None
-        Seed of the ``numpy.random.Generator``; None picks one and records it.
+    seed : int, numpy.random.Generator or None
+        Seed of the ``numpy.random.Generator``; None picks one, a Generator gives one, and the
+        integer is recorded (see :func:`perierr.sampling.gaussian.resolve_seed`).
     levels, thresholds
         See :func:`propagate_samples`.
     target_error : float, optional
@@ -198,7 +206,7 @@ def monte_carlo(
     if target_error is None:
         return result
     if not target_error > 0:
-        raise ValueError(f"target_error = {target_error!r}: expected a positive fraction, e.g. 0.01")
+        raise InputError("target_error", target_error, "expected a positive fraction, e.g. 0.01")
     rounds = 1
     worst = result.worst_relative_error()
     while worst > target_error and values.shape[0] < max_samples:

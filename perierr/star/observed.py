@@ -9,14 +9,20 @@ of alpha itself, ``(ra_error / cos dec)^2`` converted to deg^2 (see
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
+import astropy.units as u
 import numpy as np
 
 from ..cautions import Caution, note
 from ..errors import InputError
 from ..units import DEC, INDEX, OBSERVABLES, PARALLAX, errors_to_catalogue
 from .fields import CORRELATIONS, ERRORS, split_correlation
+
+if TYPE_CHECKING:
+    from astropy.table import Row
 
 __all__ = ["ObservedStar", "check_psd"]
 
@@ -125,7 +131,7 @@ class ObservedStar:
         return out
 
     @classmethod
-    def from_values(cls, **fields) -> ObservedStar:
+    def from_values(cls, **fields: float | str | u.Quantity | None) -> ObservedStar:
         """Build a star from keyword arguments named as catalogue columns.
 
         Examples
@@ -140,7 +146,7 @@ class ObservedStar:
         return cls.from_mapping(fields)
 
     @classmethod
-    def from_mapping(cls, mapping, *, row=None, strict=True) -> ObservedStar:
+    def from_mapping(cls, mapping: Mapping | Row, *, row: int | str | None = None, strict: bool = True) -> ObservedStar:
         """Build a star from a mapping or an astropy Table row.
 
         Parameters

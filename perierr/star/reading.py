@@ -9,8 +9,10 @@ was expected and, for tables, the row.
 from __future__ import annotations
 
 import difflib
+import os
 from collections.abc import Mapping
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import astropy.units as u
 import numpy as np
@@ -22,6 +24,9 @@ from ..units import FIELD_UNITS, INDEX, OBSERVABLES, errors_to_internal, to_numb
 from .checks import LARGEST_ERROR, plausibility, unit_slips
 from .fields import CORRELATIONS, ERRORS, KNOWN_FIELDS, OPTIONAL_ERRORS, split_correlation
 from .observed import ObservedStar, check_psd
+
+if TYPE_CHECKING:
+    from astropy.table import Table
 
 __all__ = ["MASKED", "read_catalogue", "read_star_file", "star_from_mapping"]
 
@@ -123,7 +128,7 @@ def _read_meta(data, row) -> dict:
     return meta
 
 
-def read_star_file(path) -> ObservedStar:
+def read_star_file(path: str | os.PathLike) -> ObservedStar:
     """Read one star from a TOML file of catalogue-named fields.
 
     Parameters
@@ -154,7 +159,7 @@ def read_star_file(path) -> ObservedStar:
     return ObservedStar.from_mapping(data)
 
 
-def read_catalogue(source) -> list:
+def read_catalogue(source: str | os.PathLike | Table) -> list[ObservedStar]:
     """Read every row of a table (ECSV/FITS/VOTable path or astropy Table).
 
     Each row becomes an :class:`ObservedStar`; an error names the row.

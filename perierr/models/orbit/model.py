@@ -15,6 +15,7 @@ import math
 
 import numpy as np
 
+from ...errors import InputError
 from ...frames import cartesian_jacobian, observables_to_cartesian
 from ...units import AU_PER_PC, PARALLAX
 from ...units import MYR_PER_PC_PER_KMS as _C
@@ -51,12 +52,12 @@ MAX_DISTANCE_PC = 1e5
 MAX_SPEED_KMS = 1e4
 
 
-class OrbitOptionError(ValueError):
-    """An option of the orbit model has an invalid value."""
+class OrbitOptionError(InputError):
+    """An option of the orbit model has an invalid value (an :class:`~perierr.errors.InputError`)."""
 
 
 def _bad(option, value, expected):
-    return OrbitOptionError(f"orbit model option {option}={value!r} is invalid; expected {expected}")
+    return OrbitOptionError(option, value, f"expected {expected} (an option of the orbit model)")
 
 
 def _positive(option, value):
@@ -205,12 +206,13 @@ class OrbitModel(ForwardModel):
         if obs.ndim == 1:
             obs = obs[None, :]
         if obs.ndim != 2 or obs.shape[1] != 6:
-            raise ValueError(f"observables have shape {obs.shape}; expected (n, 6)")
+            raise InputError("observables", f"shape {obs.shape}", "expected shape (n, 6)")
         if not np.all(np.isfinite(obs)):
-            raise ValueError("observables contain non-finite values; expected finite numbers")
+            bad = obs[~np.isfinite(obs)][0]
+            raise InputError("observables", float(bad), "expected finite numbers")
         if np.any(obs[:, PARALLAX] <= 0):
             bad = float(obs[obs[:, PARALLAX] <= 0, PARALLAX][0])
-            raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
+            raise InputError("parallax", bad, "expected a positive parallax in mas (the orbit model inverts it)")
         xv = observables_to_cartesian(obs)
         rel = (xv.reshape(-1, 3) @ self._rotation.T).reshape(-1, 6)
         return obs, rel
