@@ -295,7 +295,9 @@ def test_parallax_exactly_zero_counts_as_nonpositive():
     x[:7, 2] = 0.0
     res = propagate_samples(Samples(x), StraightLine(), thresholds=("1000 pc",))
     assert res.n_nonpositive_parallax == 7
-    assert res.perihelion.distance_pc.size == 493
+    # aligned outputs (MonteCarloResult docstring): 500 rows, NaN exactly at the 7 draws with parallax 0
+    assert res.perihelion.distance_pc.size == 500 and res.n_valid == 493
+    np.testing.assert_array_equal(np.isnan(res.perihelion.distance_pc), np.arange(500) < 7)
     # every kept draw passes 1000 pc; the 7 unbounded ones do not: P = 493 / 500
     assert res.thresholds[0].probability == pytest.approx(493 / 500, rel=1e-15)
 

@@ -22,6 +22,7 @@ from .._constants import MYR_PER_PC_PER_KMS as _C
 from .._constants import PC_PER_MAS_INVERSE as _A
 from ..frames import cartesian_jacobian, observables_to_cartesian
 from .base import ForwardModel, Perihelion
+from .diagnostics import ModelDiagnostics
 
 __all__ = ["StraightLine", "perihelion_from_cartesian", "perihelion_cartesian_jacobian"]
 
@@ -67,7 +68,7 @@ class StraightLine(ForwardModel):
             d = np.where(at_rest, inv, d)
             speed = np.where(at_rest, 0.0, speed)
             flags = at_rest
-        return Perihelion(t, d, speed, flags=flags, info={"model": self.name})
+        return Perihelion(t, d, speed, flags=flags, diagnostics=ModelDiagnostics(model=self.name))
 
     def jacobian(self, point) -> np.ndarray:
         """Analytic (3, 6) Jacobian: d(t_ph, d_ph, v_ph) / d(observables)."""
