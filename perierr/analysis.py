@@ -20,14 +20,16 @@ from .budget import LinearBudget, star_budget
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
+from .priors.calibration import CalibrationInfo
+from .priors.info import PriorInfo
 from .propagate.linear import LinearResult, linearize
-from .propagate.montecarlo import MonteCarloResult, monte_carlo, propagate_samples
+from .propagate.montecarlo import MonteCarloResult, evaluate_aligned, monte_carlo, nuisance_rng, propagate_samples
 from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
 from .star.checks import require_motion
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
-from .units import AU_PER_PC, OUTPUTS
+from .units import AU_PER_PC, OUTPUTS, PARALLAX
 
 if TYPE_CHECKING:  # names for the annotations only; importing them here would slow every start
     from astropy.units import Quantity
@@ -56,11 +58,11 @@ class Analysis:
     comparison : dict
         For models other than the straight line: the straight-line answer on
         the same samples and the difference.
-    prior : dict or None
-        The distance-prior block (name, parameters, method, diagnostics).
-    calibration : dict or None
+    prior : PriorInfo or None
+        The distance prior (name, parameters, method, sampling diagnostics).
+    calibration : CalibrationInfo or None
         Parallax zero-point and error inflation factors that were applied
-        (``star`` is the star after them).
+        (``star`` is the star after them), with the catalogue parallax.
     """
 
     star: ObservedStar
@@ -70,8 +72,8 @@ class Analysis:
     budget: LinearBudget | None
     cautions: tuple = ()
     comparison: dict = field(default_factory=dict)
-    prior: dict | None = None
-    calibration: dict | None = None
+    prior: PriorInfo | None = None
+    calibration: CalibrationInfo | None = None
 
     @property
     def warnings(self) -> list:
@@ -100,9 +102,9 @@ class Analysis:
                 "sigma": float(self.linear.sigma[1] * AU_PER_PC),
             }
         if self.prior is not None:
-            out["prior"] = self.prior
+            out["prior"] = self.prior.to_dict()
         if self.calibration is not None:
-            out["calibration"] = self.calibration
+            out["calibration"] = self.calibration.to_dict()
         if self.comparison:
             out["straight_line_comparison"] = self.comparison
         out["notes"] = list(self.star.notes)
@@ -161,7 +163,8 @@ def analyze(
     focusing : bool
         Apply the two-body gravitational focusing of the star's mass
         (``star.mass``, ``star.mass_error``) on top of ``model``; the mass
-        draws come from the analysis seed, so the same seed gives the same
+        draws come from the analysis seed (``nuisance_rng(seed)`` of
+        :mod:`perierr.propagate.montecarlo`), so the same seed gives the same
         numbers.
 
     Returns
@@ -189,11 +192,11 @@ def analyze(
         model = make_model(model)
     seed = resolve_seed(seed)
     if focusing:
-        model = _with_focusing(model, star, seed)
+        model = _with_focusing(model, star)
     from .priors.calibration import Calibration
 
     calibration = Calibration.from_user(parallax_offset, error_inflation)
-    calibration_block = calibration.to_dict(star)
+    calibration_block = calibration.info(star)
     if distance_prior is not None and target_error is not None:
         raise InputError(
             "target_error",
@@ -232,12 +235,13 @@ def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, lev
 
     prior = resolve_prior(distance_prior)
     with_prior = prior.name != "none"
-    linear = linearize(star, model) if star.mean[2] > 0 else None
+    linear = linearize(star, model) if star.mean[PARALLAX] > 0 else None
     samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
-    reference = star.mean if star.mean[2] > 0 else _posterior_reference(samples)
-    mc = propagate_samples(samples, model, reference=reference, levels=levels, thresholds=thresholds)
-    prior_block = {"name": prior.name, "parameters": prior.parameters, **samples.info}
-    prior_block["method"] = samples.method
+    reference = star.mean if star.mean[PARALLAX] > 0 else _posterior_reference(samples)
+    mc = propagate_samples(
+        samples, model, reference=reference, rng=nuisance_rng(seed), levels=levels, thresholds=thresholds
+    )
+    prior_block = PriorInfo.from_samples(prior, samples)
     found = []
     asked, got = samples.info.get("n_requested"), samples.info.get("n_delivered")
     if asked is not None and got is not None and got < asked:
@@ -256,27 +260,24 @@ def _posterior_reference(samples) -> np.ndarray:
     return np.array([weighted_quantiles(values[:, k], [0.5], w)[0] for k in range(values.shape[1])])
 
 
-def _with_focusing(model, star, seed):
-    """Wrap ``model`` in the focusing correction for the star's mass."""
+def _with_focusing(model, star):
+    """Wrap ``model`` in the focusing correction for the star's mass (its draws take the run's nuisance stream)."""
     from .models.focusing import Focused
 
     if star.mass is None:
         raise InputError(
             "mass", None, "gravitational focusing needs the star's mass: give mass (and mass_error) in M_sun"
         )
-    rng = np.random.default_rng([seed, 1])  # a stream of its own, fixed by the analysis seed
-    return Focused(model, mass_msun=star.mass, mass_error_msun=star.mass_error or 0.0, rng=rng)
+    return Focused(model, mass_msun=star.mass, mass_error_msun=star.mass_error or 0.0)
 
 
 def _compare_straight_line(star, linear, mc) -> dict:
     """Straight-line answer on the same samples, and the difference."""
     straight = StraightLine()
-    valid = mc.valid
-    ph = straight.evaluate(mc.samples.values[valid], reference=star.mean)
-    w = None if mc.samples.weights is None else mc.samples.weights[valid]
+    ph, _ = evaluate_aligned(straight, mc.samples.values, reference=star.mean)
     out = {}
     for k, q in enumerate(OUTPUTS):
-        x = ph.output(q)
+        x, w = mc.valid_values(ph.output(q))
         med = float(weighted_quantiles(x, [0.5], w)[0])  # the definition the summaries use
         entry = {"median": med, "difference_of_medians": mc.summaries[q].median - med}
         if linear is not None:

@@ -297,7 +297,7 @@ def _large_mc_error(r: Reading) -> Caution | None:
 def _direct_integrations(r: Reading) -> Caution | None:
     info = r.mc.perihelion.info
     n_direct = int(info.get("fallback_samples", 0) or 0) + int(info.get("beyond_span_samples", 0) or 0)
-    size = r.mc.perihelion.distance_pc.size
+    size = r.mc.n_valid
     if n_direct > 0.1 * max(size, 1):
         return Caution(
             "direct-integration",

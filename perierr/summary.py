@@ -15,8 +15,10 @@ from .errors import InputError
 
 __all__ = [
     "DEFAULT_LEVELS",
+    "LEVEL_TOLERANCE",
     "OutputSummary",
     "ThresholdProbability",
+    "canonical_level",
     "summarize",
     "threshold_probability",
     "weighted_quantiles",
@@ -24,6 +26,19 @@ __all__ = [
 
 #: Quantile levels always reported.
 DEFAULT_LEVELS = (0.05, 0.16, 0.5, 0.84, 0.95)
+
+#: Decimals a quantile level is rounded to when a summary stores it (the key of ``quantiles``).
+LEVEL_DECIMALS = 12
+
+#: Two levels closer than this are the same level when a quantile is looked up: it absorbs the float noise of a
+#: level computed from others (``0.5 - 0.9 / 2`` differs from 0.05 by about 1e-17) and the rounding to
+#: ``LEVEL_DECIMALS``, and is far below any spacing of levels worth reporting.
+LEVEL_TOLERANCE = 1e-9
+
+
+def canonical_level(q) -> float:
+    """A quantile level as summaries store it: a float rounded to :data:`LEVEL_DECIMALS` decimals."""
+    return round(float(q), LEVEL_DECIMALS)
 
 
 def level_key(q: float) -> str:
@@ -173,9 +188,10 @@ class OutputSummary:
     mean_se, std_se : float
         Monte Carlo standard errors of the mean and the standard deviation.
     quantiles : dict
-        Level -> value.
+        Level (rounded by :func:`canonical_level`) -> value. Look a level up
+        with :meth:`quantile`, which tolerates float noise in the level.
     quantile_se : dict
-        Level -> Monte Carlo standard error of that quantile.
+        Level -> Monte Carlo standard error of that quantile (:meth:`quantile_error`).
     skewness : float
         0 where the spread is below rounding (all draws equal to within 1e-12).
     note : str
@@ -197,13 +213,33 @@ class OutputSummary:
     quantile_se: dict = field(default_factory=dict)
     note: str = ""
 
+    def _stored_level(self, level) -> float:
+        """The stored level within :data:`LEVEL_TOLERANCE` of ``level`` (the nearest one), or a KeyError."""
+        q = float(level)
+        if self.quantiles:
+            near = min(self.quantiles, key=lambda k: abs(k - q))
+            if abs(near - q) <= LEVEL_TOLERANCE:
+                return near
+        have = ", ".join(f"{k:g}" for k in sorted(self.quantiles))
+        raise KeyError(f"quantile {q:.10g} was not computed (have {have}); pass it in levels=")
+
+    def quantile(self, level: float) -> float:
+        """The quantile at ``level``: the stored level within :data:`LEVEL_TOLERANCE` (1e-9) of it.
+
+        Raises
+        ------
+        KeyError
+            Naming the level and the levels that were computed, when none lies that close.
+        """
+        return self.quantiles[self._stored_level(level)]
+
+    def quantile_error(self, level: float) -> float:
+        """Monte Carlo standard error of the quantile at ``level`` (looked up as in :meth:`quantile`)."""
+        return self.quantile_se[self._stored_level(level)]
+
     def interval(self, level: float = 0.9) -> tuple:
-        """Central interval holding ``level`` of the samples, from stored quantiles."""
-        lo, hi = round(0.5 - level / 2, 10), round(0.5 + level / 2, 10)
-        for q in (lo, hi):
-            if q not in self.quantiles:
-                have = ", ".join(f"{k:g}" for k in sorted(self.quantiles))
-                raise KeyError(f"quantile {q:g} was not computed (have {have}); pass it in levels=")
+        """Central interval holding ``level`` of the samples, from stored quantiles (see :meth:`quantile`)."""
+        lo, hi = self._stored_level(0.5 - level / 2), self._stored_level(0.5 + level / 2)
         return self.quantiles[lo], self.quantiles[hi]
 
     def to_dict(self) -> dict:
@@ -273,11 +309,11 @@ def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
 
 
 def _checked_levels(levels) -> tuple:
-    """Quantile levels rounded to 12 digits, sorted, with 0.5; InputError for one outside (0, 1)."""
+    """Quantile levels as stored (:func:`canonical_level`), sorted, with 0.5; InputError for one outside (0, 1)."""
     rounded = []
     for q in levels:
         try:
-            rounded.append((q, round(float(q), 12)))
+            rounded.append((q, canonical_level(q)))
         except (TypeError, ValueError):
             raise InputError("levels", q, "expected quantile levels: numbers strictly between 0 and 1") from None
     for q, r in rounded:
@@ -383,7 +419,8 @@ def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> 
     ----------
     distance_pc : array_like, shape (n,)
         Perihelion distance of every sample; samples whose distance is
-        unbounded (parallax <= 0) carry ``inf`` and so count as not passing.
+        unbounded or undefined (parallax <= 0) carry ``inf`` or NaN and so
+        count as not passing.
     threshold_pc : float
     label : str
     weights : array_like, shape (n,), optional

@@ -34,7 +34,7 @@ def quiet_analyze(star, **kw):
 def test_mass_derivative_matches_finite_differences_of_the_hyperbola():
     # central differences of the closed-form pericentre (Murray & Dermott 1999, Sect. 2.5), step 1e-4 Msun
     star = slow_star()
-    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.2, rng=0)
+    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.2)
     raw = StraightLine().evaluate(star.mean[None, :])
     h = 1e-4
     qp, vp = hyperbolic_perihelion(raw.distance_pc, raw.speed_kms, 0.5 + h)
@@ -82,7 +82,7 @@ def test_without_mass_error_the_mass_is_not_an_input():
 
 def test_global_budget_gives_the_mass_its_share_and_agrees_with_linear():
     star = slow_star()
-    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.05, rng=0)
+    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.05)
     g = global_budget(star, model, seed=4, n_outer=3000, width=False, outputs=("distance_pc", "speed_kms"))
     assert g.inputs[-1] == "mass"
     assert g.to_dict()["inputs"] == list(g.inputs)
@@ -132,7 +132,7 @@ def test_what_if_budget_keeps_the_mass():
     from perierr.plan import make_measurement, what_if
 
     star = slow_star()
-    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.2, rng=0)
+    model = Focused(StraightLine(), mass_msun=0.5, mass_error_msun=0.2)
     wi = what_if(star, model, [make_measurement("radial_velocity", 0.001, dec=10.0)], n=2_000, seed=1)
     a = quiet_analyze(star, model=model, n_samples=2_000, seed=1)
     assert wi.budget_current.inputs == a.budget.inputs == tuple(a.budget.inputs)
@@ -146,7 +146,7 @@ def test_global_budget_mass_draws_follow_the_truncated_normal():
     # at zero (scipy.stats.truncnorm) that the Monte Carlo draws from
     from scipy.stats import norm, truncnorm
 
-    model = Focused(StraightLine(), mass_msun=0.1, mass_error_msun=0.1, rng=0)
+    model = Focused(StraightLine(), mass_msun=0.1, mass_error_msun=0.1)
     star = slow_star()
     z = np.array([-3.0, -1.0, 0.0, 1.5])
     ph = model.evaluate_nuisance(np.repeat(star.mean[None, :], 4, axis=0), z[:, None], reference=star.mean)

@@ -83,14 +83,16 @@ def test_wrapper_reports_change_with_either_model():
 
 
 def test_mass_error_draws_are_seeded_and_truncated():
-    # truncated normal (scipy.stats.truncnorm): no negative masses; same seed, same draws
+    # truncated normal (scipy.stats.truncnorm): no negative masses; same generator seed, same draws
     obs = np.tile([[10.0, 10.0, 100.0, 0.01, 0.0, -3.0]], (4000, 1))
-    model_a = Focused(StraightLine(), mass_msun=0.3, mass_error_msun=0.3, rng=7)
-    model_b = Focused(StraightLine(), mass_msun=0.3, mass_error_msun=0.3, rng=7)
-    a = model_a.evaluate(obs, reference=obs[0])
-    b = model_b.evaluate(obs, reference=obs[0])
+    model = Focused(StraightLine(), mass_msun=0.3, mass_error_msun=0.3)
+    a = model.evaluate_draws(obs, np.random.default_rng(7), reference=obs[0])
+    b = model.evaluate_draws(obs, np.random.default_rng(7), reference=obs[0])
     assert np.array_equal(a.distance_pc, b.distance_pc)
     raw = StraightLine().evaluate(obs[:1])
+    # without a generator (and in evaluate) every row has the nominal mass: the closed-form pericentre below
+    nominal = model.evaluate(obs[:3], reference=obs[0]).distance_pc
+    assert np.array_equal(model.evaluate_draws(obs[:3], None, reference=obs[0]).distance_pc, nominal)
     # all focused distances lie below the unfocused one (positive masses only)
     assert np.all(a.distance_pc < raw.distance_pc[0])
     # the spread of d_ph equals the spread of the closed-form Kepler pericentre
@@ -113,6 +115,7 @@ def test_mass_error_draws_are_seeded_and_truncated():
     # 4000 draws: sampling error of a std ~ 1/sqrt(2 n) ~ 1.1 %
     assert abs(np.std(a.distance_pc) / want - 1) < 0.05
     assert abs(np.mean(a.distance_pc) / mean_q - 1) < 0.01
+    assert nominal == pytest.approx(q(0.3), rel=1e-9)
     with pytest.raises(FocusingError, match="mass_msun = -1: "):
         Focused(StraightLine(), mass_msun=-1)
 

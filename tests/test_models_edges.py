@@ -17,6 +17,7 @@ from scipy.optimize import minimize_scalar
 
 from perierr.frames import cartesian_to_observables, observables_to_cartesian
 from perierr.models import StraightLine, make_model
+from perierr.errors import InputError
 from perierr.models.base import ForwardModel, Perihelion
 from perierr.models.focusing import Focused, FocusingError, hyperbolic_perihelion
 from perierr.models.straight import perihelion_cartesian_jacobian, perihelion_from_cartesian
@@ -396,8 +397,9 @@ def test_focused_passes_the_reference_to_the_wrapped_model():
     point = np.array([10.0, 20.0, 50.0, 5.0, -5.0, -10.0])
     rows = np.stack([point, point * 1.001])
     probe = _Probe()
-    model = Focused(probe, mass_msun=1.0, mass_error_msun=0.2, rng=np.random.default_rng(3))
+    model = Focused(probe, mass_msun=1.0, mass_error_msun=0.2)
     model.evaluate(rows, reference=point)
+    model.evaluate_draws(rows, np.random.default_rng(3), reference=point)
     model.evaluate_nuisance(rows, np.zeros((2, 1)), reference=point)
     model.jacobian(point)
     model.mass_jacobian(point)
@@ -463,8 +465,8 @@ def test_focused_evaluate_nuisance_maps_deviates_to_masses():
 
 
 def test_make_model_defaults_and_focusing_options():
-    # make_model docstring: the default is the straight line; the three focusing options are taken out of the
-    # options and given to Focused (mass error default 0; the same seed gives the same mass draws).
+    # make_model docstring: the default is the straight line; the two focusing options are taken out of the
+    # options and given to Focused (mass error default 0); the same generator seed gives the same mass draws.
     assert isinstance(make_model(), StraightLine) and not isinstance(make_model(), Focused)
     plain = make_model("straight_line", star_mass_msun=0.6)
     assert isinstance(plain, Focused) and plain.mass_error_msun == 0.0 and plain.mass_msun == 0.6
@@ -472,12 +474,15 @@ def test_make_model_defaults_and_focusing_options():
     ref = rows[0]
     draws = []
     for _ in range(2):
-        model = make_model("straight_line", star_mass_msun=0.6, star_mass_error_msun=0.3, rng=11)
+        model = make_model("straight_line", star_mass_msun=0.6, star_mass_error_msun=0.3)
         assert model.mass_error_msun == 0.3
-        draws.append(model.evaluate(rows, reference=ref).distance_pc)
+        draws.append(model.evaluate_draws(rows, np.random.default_rng(11), reference=ref).distance_pc)
     np.testing.assert_array_equal(draws[0], draws[1])
-    other = make_model("straight_line", star_mass_msun=0.6, star_mass_error_msun=0.3, rng=12)
-    assert not np.array_equal(other.evaluate(rows, reference=ref).distance_pc, draws[0])
+    other = model.evaluate_draws(rows, np.random.default_rng(12), reference=ref).distance_pc
+    assert not np.array_equal(other, draws[0])
+    # models hold no random state: the generator is an argument of evaluate_draws, not an option
+    with pytest.raises(InputError, match=r"rng = 11: model 'straight_line' has no option 'rng'"):
+        make_model("straight_line", star_mass_msun=0.6, rng=11)
 
 
 def test_make_model_orbit_rejects_unknown_options_by_name():

@@ -152,15 +152,15 @@ def test_ranking_by_gain_and_per_hour():
     r = rank_measurements(stars, MODEL, {"radial_velocity": 0.2, "parallax": 0.005}, metric="time_myr.width90", seed=1)
     top = r.rows[0]
     # the star with the worse rv gains most from a 0.2 km/s rv (t_ph is rv-dominated; linear ratio ~0.2/3)
-    assert (top["star"], top["input"]) == (faint.name, "radial_velocity")
-    assert top["gain"] >= r.rows[1]["gain"]
-    assert top["gain"] == pytest.approx(1 - 0.2 / 3.0, abs=0.03)
-    assert [row["rank"] for row in r.rows] == [1, 2, 3, 4]
+    assert (top.star, top.input) == (faint.name, "radial_velocity")
+    assert top.gain >= r.rows[1].gain
+    assert top.gain == pytest.approx(1 - 0.2 / 3.0, abs=0.03)
+    assert [row.rank for row in r.rows] == [1, 2, 3, 4]
     rc = rank_measurements(stars, MODEL, {"radial_velocity": 0.2, "parallax": 0.005}, metric="time_myr.width90",
                            cost=PhotonLimitedCost(), magnitudes=[9.0, 14.0], seed=1)
-    priced = [row for row in rc.rows if row["hours"] is not None]
-    assert [row["input"] for row in rc.rows[-2:]] == ["parallax", "parallax"]
-    assert priced[0]["gain_per_hour"] >= priced[1]["gain_per_hour"]
+    priced = [row for row in rc.rows if row.hours is not None]
+    assert [row.input for row in rc.rows[-2:]] == ["parallax", "parallax"]
+    assert priced[0].gain_per_hour >= priced[1].gain_per_hour
     with pytest.raises(InputError, match="one magnitude per star"):
         rank_measurements(stars, MODEL, {"radial_velocity": 0.2}, cost=PhotonLimitedCost())
     with pytest.raises(InputError, match="width90"):

@@ -139,7 +139,7 @@ def test_zero_point_applied_before_the_prior():
     assert a.star.mean[2] == pytest.approx(0.05, abs=1e-14)
     ref = quadrature_quantiles(ExponentialDensity(5000.0), 0.05, np.hypot(0.02, 0.01))
     s = posterior_samples(a.star, ExponentialDensity(5000.0), n=100_000, seed=4)
-    assert s.method == a.prior["method"]
+    assert s.method == a.prior.method
     from perierr.summary import summarize
 
     d = summarize(1000.0 / s.values[:, 2], levels=LEVELS, weights=s.weights)

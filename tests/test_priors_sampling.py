@@ -279,11 +279,11 @@ def test_analyze_with_prior_explains_linear_columns_and_matches_quadrature():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)
         result = analyze(star, distance_prior=UniformDensity(3000.0), n_samples=100_000, seed=5)
-    assert result.prior["method"] == "reweight"
+    assert result.prior.method == "reweight"
     assert any("posterior summaries; the linearized columns" in w for w in result.warnings)
     assert not any("not linear over the error ellipsoid" in w for w in result.warnings)
     med_r = quadrature_quantiles(UniformDensity(3000.0), 1.0, 0.35, levels=(0.5,))[0]
     expected = StraightLine().evaluate(np.r_[star.mean[:2], 1000.0 / med_r, star.mean[3:]][None, :])
     d = result.monte_carlo.summaries["distance_pc"]
     assert abs(d.median - expected.distance_pc[0]) < 4 * d.quantile_se[0.5]
-    assert d.effective_size == pytest.approx(result.prior["effective_size"], rel=1e-9)
+    assert d.effective_size == pytest.approx(result.prior.effective_size, rel=1e-9)

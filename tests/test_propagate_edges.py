@@ -18,11 +18,11 @@ import pytest
 
 from perierr import InputError, ObservedStar, StraightLine, linearize, monte_carlo
 from perierr.models.base import ForwardModel, Nuisance, Perihelion
-from perierr.star import checks
 from perierr.propagate import montecarlo as mc_module
 from perierr.propagate.montecarlo import propagate_samples, scalar_info
 from perierr.sampling import gaussian
 from perierr.sampling.gaussian import Samples, draw_gaussian, psd_factor, require_draws, resolve_seed
+from perierr.star import checks
 from perierr.summary import DEFAULT_LEVELS
 
 MAS_PER_DEG = 3.6e6  # definition of the milliarcsecond
@@ -295,7 +295,9 @@ def test_parallax_exactly_zero_counts_as_nonpositive():
     x[:7, 2] = 0.0
     res = propagate_samples(Samples(x), StraightLine(), thresholds=("1000 pc",))
     assert res.n_nonpositive_parallax == 7
-    assert res.perihelion.distance_pc.size == 493
+    # aligned outputs (MonteCarloResult docstring): 500 rows, NaN exactly at the 7 draws with parallax 0
+    assert res.perihelion.distance_pc.size == 500 and res.n_valid == 493
+    np.testing.assert_array_equal(np.isnan(res.perihelion.distance_pc), np.arange(500) < 7)
     # every kept draw passes 1000 pc; the 7 unbounded ones do not: P = 493 / 500
     assert res.thresholds[0].probability == pytest.approx(493 / 500, rel=1e-15)
 

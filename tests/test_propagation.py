@@ -157,7 +157,9 @@ def test_nonpositive_parallax_samples_are_counted_not_dropped():
     expected = stats.norm.cdf(-2 / 1.5)
     frac = mc.n_nonpositive_parallax / mc.n
     assert abs(frac - expected) < K_SE * np.sqrt(expected * (1 - expected) / mc.n)  # binomial standard error
-    assert mc.perihelion.distance_pc.size == mc.n - mc.n_nonpositive_parallax
+    # outputs aligned with the draws (MonteCarloResult docstring): one row per draw, NaN exactly where parallax <= 0
+    assert mc.perihelion.distance_pc.shape == (mc.n,)
+    np.testing.assert_array_equal(np.isnan(mc.perihelion.distance_pc), mc.samples.values[:, 2] <= 0)
     # The threshold rule, recomputed independently from the draws: straight-line d_ph = r v_t / |v| with
     # r = 1000 / parallax, v_t = k mu r / 1000 (Matthews 1994, QJRAS 35, 1; k = 1 au/yr in km/s from
     # astropy), thresholds converted with astropy units. A draw passes if its parallax is > 0 and d_ph < D;

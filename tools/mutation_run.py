@@ -40,20 +40,21 @@ GROUPS = {
     "summary": (
         ["perierr/summary.py", "perierr/thresholds.py"],
         ["tests/test_summary_weighted.py", "tests/test_propagation.py", "tests/test_json_contract.py",
-         "tests/test_summary_edges.py"],
+         "tests/test_summary_edges.py", "tests/test_typed_results.py"],
         False,
     ),
     "frames_models": (
         ["perierr/frames.py", "perierr/models/base.py", "perierr/models/straight.py", "perierr/models/focusing.py",
-         "perierr/models/__init__.py"],
+         "perierr/models/diagnostics.py", "perierr/models/__init__.py"],
         ["tests/test_frames.py", "tests/test_straight_line.py", "tests/test_focusing.py",
-         "tests/test_budget_inputs.py", "tests/test_json_contract.py", "tests/test_models_edges.py"],
+         "tests/test_budget_inputs.py", "tests/test_json_contract.py", "tests/test_models_edges.py",
+         "tests/test_typed_results.py"],
         False,
     ),
     "propagate": (
         ["perierr/propagate/*", "perierr/sampling/*"],
         ["tests/test_propagation.py", "tests/test_edge_cases.py", "tests/test_json_contract.py",
-         "tests/test_cautions.py", "tests/test_propagate_edges.py"],
+         "tests/test_cautions.py", "tests/test_propagate_edges.py", "tests/test_typed_results.py"],
         False,
     ),
     "orbit": (

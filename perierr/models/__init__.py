@@ -8,9 +8,13 @@ import importlib
 
 from ..errors import InputError
 from .base import ForwardModel, Perihelion
+from .diagnostics import FocusingDiagnostics, ModelDiagnostics
 from .straight import StraightLine
 
-__all__ = ["ForwardModel", "Perihelion", "StraightLine", "MODEL_NAMES", "make_model"]
+__all__ = [
+    "FocusingDiagnostics", "ForwardModel", "ModelDiagnostics", "Perihelion", "StraightLine", "MODEL_NAMES",
+    "make_model",
+]  # fmt: skip
 
 #: Names accepted by :func:`make_model` (and the CLI's ``--model``).
 MODEL_NAMES = ("straight_line", "orbit")
@@ -26,19 +30,20 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
         (options of :class:`perierr.models.orbit.OrbitModel`, e.g.
         ``potential="MWPotential2014"``, ``sun="bovy2015"``, ``horizon_myr=20``).
     **options
-        Passed to the model's constructor, except ``star_mass_msun``,
-        ``star_mass_error_msun`` and ``rng``: if ``star_mass_msun`` is given the
-        model is wrapped in :class:`perierr.models.focusing.Focused`
-        (gravitational focusing by the star's mass, with either model).
+        Passed to the model's constructor, except ``star_mass_msun`` and
+        ``star_mass_error_msun``: if ``star_mass_msun`` is given the model is
+        wrapped in :class:`perierr.models.focusing.Focused` (gravitational
+        focusing by the star's mass, with either model). Mass draws take the
+        generator given to ``evaluate_draws`` (models hold no random state).
     """
-    focus = {k: options.pop(k) for k in ("star_mass_msun", "star_mass_error_msun", "rng")
+    focus = {k: options.pop(k) for k in ("star_mass_msun", "star_mass_error_msun")
              if k in options}
     if name == "straight_line":
         if options:
             key = sorted(options)[0]
             raise InputError(
                 key, options[key], f"model 'straight_line' has no option {key!r}; accepted: star_mass_msun, "
-                "star_mass_error_msun, rng"
+                "star_mass_error_msun"
             )
         model = StraightLine()
     elif name == "orbit":
@@ -48,7 +53,7 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
         if unknown:
             raise InputError(
                 unknown[0], options[unknown[0]], f"model 'orbit' has no option {unknown[0]!r}; "
-                f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun, rng"
+                f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun"
             )
         model = OrbitModel(**options)
     else:
@@ -60,7 +65,6 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
             model,
             mass_msun=focus["star_mass_msun"],
             mass_error_msun=focus.get("star_mass_error_msun", 0.0),
-            rng=focus.get("rng"),
         )
     elif focus:
         key = sorted(focus)[0]

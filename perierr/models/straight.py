@@ -23,6 +23,7 @@ from ..units import MAS_PC as _A
 from ..units import MYR_PER_PC_PER_KMS as _C
 from ..units import PARALLAX, PMDEC, PMRA, RADIAL_VELOCITY
 from .base import ForwardModel, Perihelion
+from .diagnostics import ModelDiagnostics
 
 __all__ = ["StraightLine", "perihelion_from_cartesian", "perihelion_cartesian_jacobian"]
 
@@ -68,7 +69,7 @@ class StraightLine(ForwardModel):
             d = np.where(at_rest, inv, d)
             speed = np.where(at_rest, 0.0, speed)
             flags = at_rest
-        return Perihelion(t, d, speed, flags=flags, info={"model": self.name})
+        return Perihelion(t, d, speed, flags=flags, diagnostics=ModelDiagnostics(model=self.name))
 
     def jacobian(self, point) -> np.ndarray:
         """Analytic (3, 6) Jacobian: d(t_ph, d_ph, v_ph) / d(observables)."""

@@ -9,6 +9,7 @@ import numpy as np
 from ..errors import InputError
 from ..thresholds import parse_thresholds
 from ..units import AU_PER_PC, OUTPUT_UNITS, OUTPUTS, to_number
+from .metrics import Metric
 
 __all__ = ["Goal", "decide_goal", "output_name", "parse_goal", "spread_goal"]
 
@@ -58,11 +59,16 @@ class Goal:
     alpha: float | None = None
 
     @property
-    def metric_key(self) -> str:
-        """Key of the statistic in :class:`~perierr.plan.whatif.ScenarioMetrics`."""
+    def metric(self) -> Metric:
+        """The statistic the goal is about (a probability for "decide", else the width90 or std of the output)."""
         if self.kind == "decide":
-            return f"p:{self.threshold}"
-        return f"{self.output}.{'std' if self.kind == 'sigma' else 'width90'}"
+            return Metric.probability(self.threshold)
+        return Metric(self.output, "std" if self.kind == "sigma" else "width90")
+
+    @property
+    def metric_key(self) -> str:
+        """Key of the statistic in JSON documents (``metric.key``)."""
+        return self.metric.key
 
     def score(self, metric) -> np.ndarray:
         """The quantity compared with the target (for "decide": min(p, 1 - p))."""

@@ -134,7 +134,7 @@ def required_precision(
     sigma = float(star.sigma[idx])
 
     def metric(covs):
-        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric_key)
+        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric)
 
     def evaluate(precisions):
         return metric(update_covariance(star.cov, idx, np.asarray(precisions, dtype=float)))

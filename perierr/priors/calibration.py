@@ -28,7 +28,7 @@ from ..errors import InputError, PerierrWarning
 from ..star import ObservedStar
 from ..units import INTERNAL_UNITS, OBSERVABLES, PARALLAX, to_number
 
-__all__ = ["ZERO_POINT", "Calibration", "parse_inflation", "parse_offset"]
+__all__ = ["ZERO_POINT", "Calibration", "CalibrationInfo", "parse_inflation", "parse_offset"]
 
 #: Name of the zero-point input in budgets.
 ZERO_POINT = "parallax_zero_point"
@@ -126,6 +126,56 @@ def _factor(field, value) -> float:
     return f
 
 
+#: How the zero-point is applied, as written in the JSON document.
+CONVENTION = "corrected parallax = catalogue parallax - zero point"
+
+
+@dataclass(frozen=True)
+class CalibrationInfo:
+    """The calibration an analysis applied, for reports and the ``calibration`` block of the JSON document.
+
+    Attributes
+    ----------
+    zero_point_mas, zero_point_error_mas : float
+        Parallax zero-point Z and its error [mas] (corrected parallax = catalogue parallax - Z).
+    error_inflation : dict
+        Factor multiplying the standard error of every observable (1 where none was given).
+    catalogue_parallax_mas, catalogue_parallax_error_mas : float or None
+        The catalogue parallax and its error before calibration (None when no star was given).
+    """
+
+    zero_point_mas: float
+    zero_point_error_mas: float
+    error_inflation: dict
+    catalogue_parallax_mas: float | None = None
+    catalogue_parallax_error_mas: float | None = None
+
+    @property
+    def active(self) -> bool:
+        """True when the calibration changed the star (a zero-point, its error, or a factor other than 1)."""
+        return bool(self.zero_point_mas or self.zero_point_error_mas or self.inflated)
+
+    @property
+    def inflated(self) -> dict:
+        """The factors other than 1, by observable."""
+        return {name: f for name, f in self.error_inflation.items() if f != 1}
+
+    def to_dict(self) -> dict:
+        """JSON block: zero-point (value, error, convention), inflation factors, the catalogue parallax."""
+        out = {
+            "parallax_zero_point": {
+                "value_mas": self.zero_point_mas,
+                "error_mas": self.zero_point_error_mas,
+                "convention": CONVENTION,
+            },
+            "error_inflation": dict(self.error_inflation),
+        }
+        if self.catalogue_parallax_mas is not None:
+            out["catalogue_parallax_mas"] = self.catalogue_parallax_mas
+            out["catalogue_parallax_error_mas"] = self.catalogue_parallax_error_mas
+        return out
+
+
 @dataclass(frozen=True)
 class Calibration:
     """Zero-point and inflation settings; :meth:`apply` gives the star to analyse.
@@ -188,20 +238,19 @@ class Calibration:
         return ObservedStar(mean, cov, name=star.name, source_id=star.source_id, ref_epoch=star.ref_epoch,
                             mass=star.mass, mass_error=star.mass_error, cautions=tuple(notes))
 
+    def info(self, star: ObservedStar | None = None) -> CalibrationInfo:
+        """What was applied, as a record; with ``star`` (the catalogue star) also its parallax and error."""
+        return CalibrationInfo(
+            zero_point_mas=self.zero_point,
+            zero_point_error_mas=self.zero_point_error,
+            error_inflation={n: self.inflation.get(n, 1.0) for n in OBSERVABLES},
+            catalogue_parallax_mas=None if star is None else float(star.mean[PARALLAX]),
+            catalogue_parallax_error_mas=None if star is None else float(star.sigma[PARALLAX]),
+        )
+
     def to_dict(self, star: ObservedStar | None = None) -> dict:
-        """JSON block: zero-point (value, error, convention) and inflation factors."""
-        out = {
-            "parallax_zero_point": {
-                "value_mas": self.zero_point,
-                "error_mas": self.zero_point_error,
-                "convention": "corrected parallax = catalogue parallax - zero point",
-            },
-            "error_inflation": {n: self.inflation.get(n, 1.0) for n in OBSERVABLES},
-        }
-        if star is not None:
-            out["catalogue_parallax_mas"] = float(star.mean[PARALLAX])
-            out["catalogue_parallax_error_mas"] = float(star.sigma[PARALLAX])
-        return out
+        """JSON block: zero-point (value, error, convention) and inflation factors (``info(star).to_dict()``)."""
+        return self.info(star).to_dict()
 
     def budget_inputs(self, jacobian, calibrated_star: ObservedStar) -> tuple:
         """Jacobian, covariance and names of the budget inputs: the six observables and the zero-point.

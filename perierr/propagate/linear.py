@@ -108,8 +108,8 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     """
     require_positive_parallax(star.mean[PARALLAX], method="linearized propagation")
     require_motion(star.mean)
-    # the nominal value: no reference, so models evaluate this one row as it is (no Monte Carlo
-    # machinery, e.g. no random focusing masses)
+    # the nominal value: no reference, so models evaluate this one row on its own (no map around it);
+    # evaluate() keeps nuisance parameters (e.g. the focusing mass) at their nominal values
     value = model.evaluate(star.mean[None, :]).as_array()[0]
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     nuisance = tuple(model.nuisance(star.mean))

@@ -28,11 +28,11 @@ def format_value(value: float, err: float, *, signed: bool = False) -> str:
 
 
 def _row(label, nominal, sigma, s, scale=1.0, signed=False):
-    q = s.quantiles
-    err = max(sigma * scale if sigma is not None else 0.0, (q[0.84] - q[0.16]) * 0.5 * scale) / 10
+    q = s.quantile
+    err = max(sigma * scale if sigma is not None else 0.0, (q(0.84) - q(0.16)) * 0.5 * scale) / 10
     f = lambda x: format_value(x * scale, err, signed=signed)  # noqa: E731
     lin = "" if nominal is None else f"{f(nominal):>11} ± {format_value(sigma * scale, err):<9}"
-    return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q[0.16])} … {f(q[0.84])}   {f(q[0.05])} … {f(q[0.95])}"
+    return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q(0.16))} … {f(q(0.84))}   {f(q(0.05))} … {f(q(0.95))}"
 
 
 def format_analysis(analysis, *, hazard: bool = True) -> str:
@@ -80,31 +80,12 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
         lines.append("  other quantiles (MC error in brackets):")
         for q in OUTPUTS:
             s = mc.summaries[q]
-            err = 0.5 * (s.quantiles[0.84] - s.quantiles[0.16]) / 10
+            err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) / 10
             cells = ", ".join(
-                f"{100 * lv:g} %: {format_value(s.quantiles[lv], err)} ({s.quantile_se[lv]:.2g})" for lv in extra
+                f"{100 * lv:g} %: {format_value(s.quantile(lv), err)} ({s.quantile_error(lv):.2g})" for lv in extra
             )
             lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
-    info = mc.perihelion.info
-    if info.get("method") and info.get("model") != "straight_line":
-        parts = [f"method {info['method']}"]
-        for key, label in (
-            ("n_reference_orbits", "reference orbits"),
-            ("fallback_samples", "draws integrated directly"),
-            ("map_error_au_max", "largest map error in the check [au]"),
-        ):
-            if key in info:
-                parts.append(f"{label} {info[key]:.3g}" if isinstance(info[key], float) else f"{label} {info[key]}")
-        if info.get("fallback_reason"):
-            parts.append(f"because {info['fallback_reason']}")
-        lines.append("  model: " + "; ".join(parts))
-    focus = info.get("focusing")
-    if isinstance(focus, dict) and "median_delta_distance_pc" in focus:
-        lines.append(
-            f"  gravitational focusing ({focus['mass_msun']:g} ± {focus['mass_error_msun']:g} M_sun) moved d_ph by "
-            f"{focus['median_delta_distance_pc'] * AU_PER_PC:+.3g} au and v_ph by "
-            f"{focus['median_delta_speed_kms']:+.3g} km/s (medians over the draws)"
-        )
+    lines.extend(_model_lines(mc.perihelion.diagnostics))
     worst = mc.worst_relative_error()
     lines.append(
         f"  Monte Carlo: {mc.n:,} draws ({mc.samples.method}), seed {mc.samples.seed}; every quantile's "
@@ -156,24 +137,12 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
                     f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
                     f"difference {c['difference_of_medians'] * au:+,.0f}"
                 )
-    if a.prior:
+    if a.prior is not None:
         lines.append("")
         lines.extend(_prior_lines(a.prior))
-    cal = getattr(a, "calibration", None)
-    if cal and (
-        cal["parallax_zero_point"]["value_mas"]
-        or cal["parallax_zero_point"]["error_mas"]
-        or any(f != 1 for f in cal["error_inflation"].values())
-    ):
-        z = cal["parallax_zero_point"]
+    if a.calibration is not None and a.calibration.active:
         lines.append("")
-        lines.append(
-            f"Calibration: parallax zero-point {z['value_mas']:+.4g} ± {z['error_mas']:.2g} mas "
-            "(corrected = catalogue − zero-point)"
-        )
-        inflated = {k: f for k, f in cal["error_inflation"].items() if f != 1}
-        if inflated:
-            lines.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in inflated.items()))
+        lines.extend(_calibration_lines(a.calibration))
     shown = messages(a.all_cautions)
     if shown:
         lines.append("")
@@ -190,30 +159,66 @@ def _dominant(budget, output: str) -> str:
     return "undefined" if name is None else input_label(name)
 
 
-def _prior_lines(prior: dict) -> list:
-    """The distance-prior section: what was assumed and how far to trust the sampling."""
+def _model_lines(diag) -> list:
+    """How the model ran (methods other than the straight line) and what focusing changed."""
+    out = []
+    if diag.method and diag.model != "straight_line":
+        parts = [f"method {diag.method}"]
+        for value, label in (
+            (diag.n_reference_orbits, "reference orbits"),
+            (diag.fallback_samples, "draws integrated directly"),
+            (diag.map_error_au_max, "largest map error in the check [au]"),
+        ):
+            if value is not None:
+                parts.append(f"{label} {value:.3g}" if isinstance(value, float) else f"{label} {value}")
+        if diag.fallback_reason:
+            parts.append(f"because {diag.fallback_reason}")
+        out.append("  model: " + "; ".join(parts))
+    focus = diag.focusing
+    if focus is not None:
+        out.append(
+            f"  gravitational focusing ({focus.mass_msun:g} ± {focus.mass_error_msun:g} M_sun) moved d_ph by "
+            f"{focus.median_delta_distance_pc * AU_PER_PC:+.3g} au and v_ph by "
+            f"{focus.median_delta_speed_kms:+.3g} km/s (medians over the draws)"
+        )
+    return out
+
+
+def _calibration_lines(cal) -> list:
+    """The calibration section: the zero-point applied and the inflated errors."""
+    out = [
+        f"Calibration: parallax zero-point {cal.zero_point_mas:+.4g} ± {cal.zero_point_error_mas:.2g} mas "
+        "(corrected = catalogue − zero-point)"
+    ]
+    if cal.inflated:
+        out.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in cal.inflated.items()))
+    return out
+
+
+def _prior_lines(prior) -> list:
+    """The distance-prior section of a ``PriorInfo``: what was assumed and how far to trust the sampling."""
     params = ", ".join(
-        f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in prior.get("parameters", {}).items()
+        f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in (prior.parameters or {}).items()
     )
-    method = prior.get("method")
-    out = [f"Distance prior: {prior['name']}" + (f" ({params})" if params else "") + f"; posterior by {method}"]
-    ess = prior.get("effective_size")
+    method = prior.method
+    out = [f"Distance prior: {prior.name}" + (f" ({params})" if params else "") + f"; posterior by {method}"]
+    ess = prior.effective_size
     if method == "reweight" and ess is not None:
         out.append(
-            f"  importance weights: effective sample size {ess:,.0f} of {prior.get('n_drawn', 0):,} draws "
-            f"(largest weight {prior.get('max_weight', 0):.2g})"
+            f"  importance weights: effective sample size {ess:,.0f} of {prior.n_drawn or 0:,} draws "
+            f"(largest weight {prior.max_weight or 0:.2g})"
         )
     elif method == "mcmc":
-        tau = prior.get("autocorrelation_time", {})
-        acc = prior.get("acceptance_fraction", 0.0)
+        tau = prior.autocorrelation_time or {}
+        acc = prior.acceptance_fraction or 0.0
         out.append(
-            f"  emcee: {prior.get('n_walkers')} walkers × {prior.get('n_steps')} steps, burn-in "
-            f"{prior.get('burn_in')}, thin {prior.get('thin')}, acceptance {acc:.2f}"
+            f"  emcee: {prior.n_walkers} walkers × {prior.n_steps} steps, burn-in "
+            f"{prior.burn_in}, thin {prior.thin}, acceptance {acc:.2f}"
         )
         if tau:
             out.append(f"  autocorrelation time ≤ {max(tau.values()):.1f} steps; effective sample size {ess:,.0f}")
-        if prior.get("switched_to_mcmc"):
-            out.append(f"  switched to MCMC: {prior['switched_to_mcmc']}")
+        if prior.switched_to_mcmc:
+            out.append(f"  switched to MCMC: {prior.switched_to_mcmc}")
     elif ess is not None:
         out.append(f"  effective sample size {ess:,.0f}")
     return out

@@ -1,9 +1,10 @@
 """The orbit model: perihelion of a star integrated with the Sun in a Galactic potential.
 
 Monte Carlo samples of one star go through a second-order state-transition
-map of a few reference orbits (one per distance bin), which is checked
-against direct integration of the samples farthest from their reference;
-bins whose check fails, and all rows evaluated without a reference, are
+map of a few reference orbits (one per distance bin) built around the
+``reference`` point, which is checked against direct integration of the
+samples farthest from their reference; bins whose check fails, and all rows
+evaluated without a reference (no point to build the map around), are
 integrated directly (vectorized over samples). See
 :mod:`perierr.models.orbit.transition` and
 :mod:`perierr.models.orbit.integrate`.
@@ -12,6 +13,7 @@ integrated directly (vectorized over samples). See
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
@@ -20,6 +22,7 @@ from ...frames import cartesian_jacobian, observables_to_cartesian
 from ...units import AU_PER_PC, PARALLAX
 from ...units import MYR_PER_PC_PER_KMS as _C
 from ..base import ForwardModel, Perihelion
+from ..diagnostics import ModelDiagnostics
 from .grid import distance_bins, map_span, rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
 from .potentials import Potential
@@ -372,14 +375,16 @@ class OrbitModel(ForwardModel):
     def evaluate(self, observables, *, reference=None) -> Perihelion:
         """Perihelion of every row; see :meth:`ForwardModel.evaluate`.
 
-        ``info`` holds "method" ("state_transition_map", "direct" or
-        "state_transition_map+direct_fallback"), the window, the number of
-        reference orbits, the map errors found by the check [au, Myr], the
-        number of fallback samples with the reason, the number of perihelia
+        ``diagnostics`` (a :class:`~perierr.models.diagnostics.ModelDiagnostics`;
+        ``info`` is its mapping) holds ``method`` ("state_transition_map",
+        "direct" or "state_transition_map+direct_fallback"), the window, the
+        number of reference orbits, the map errors found by the check [au, Myr],
+        the number of fallback samples with the reason, the number of perihelia
         outside the window (flagged), and the straight-line answer of the same
-        rows ("straight_line": arrays of time_myr, distance_pc, speed_kms) with
+        rows (``straight_line``: arrays of time_myr, distance_pc, speed_kms) with
         the median orbit-minus-straight-line difference
-        ("model_difference_median").
+        (``model_difference_median``). Rows go through the map built around
+        ``reference``; without one they are integrated directly.
         """
         _, rel = self._relative(observables)
         v = rel[:, 3:]
@@ -390,15 +395,15 @@ class OrbitModel(ForwardModel):
         if far.any():
             return self._beyond_potential(observables, rel, t_lin, far, reference)
         window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
-        info = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}
+        found = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}  # ModelDiagnostics fields
         if reference is None or self.method == "direct":
             t, state, outside, conv = self._direct(rel, nodes)
-            info["method"] = "direct"
+            found["method"] = "direct"
         else:
             _, ref_rel = self._relative(reference)
             t, state, outside, conv, diag = self._map(rel, ref_rel[0], nodes, t_lin)
-            info.update(diag)
-            info["method"] = (
+            found.update(diag)
+            found["method"] = (
                 "state_transition_map+direct_fallback"
                 if diag["fallback_samples"] or diag["sparse_bin_samples"]
                 else "state_transition_map"
@@ -409,23 +414,24 @@ class OrbitModel(ForwardModel):
             dt = np.where(outside, -np.sum(x * w, axis=1) / np.sum(w * w, axis=1), 0.0)
             t = t + dt
             x = x + w * dt[:, None]
-        info["n_outside_window"] = int(outside.sum())
-        info["n_not_converged"] = int((~conv).sum())
-        flags = outside | ~conv
-        ph = Perihelion(
-            t * _C, rownorm(x), rownorm(w), flags=flags, info=info
-        )
+        t_ph, d_ph, v_ph = t * _C, rownorm(x), rownorm(w)
         # the straight-line answer of the same rows, so that reports can show the
         # model difference (orbit minus straight line)
         sl_d = rownorm(rel[:, :3] + v * t_lin[:, None])
         sl_v = np.sqrt(vv)
-        info["straight_line"] = {"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v}
-        info["model_difference_median"] = {
-            "time_myr": float(np.median(ph.time_myr - t_lin * _C)),
-            "distance_pc": float(np.median(ph.distance_pc - sl_d)),
-            "speed_kms": float(np.median(ph.speed_kms - sl_v)),
-        }
-        return ph
+        diagnostics = ModelDiagnostics(
+            **found,
+            n_outside_window=int(outside.sum()),
+            n_not_converged=int((~conv).sum()),
+            straight_line={"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v},
+            model_difference_median={
+                "time_myr": float(np.median(t_ph - t_lin * _C)),
+                "distance_pc": float(np.median(d_ph - sl_d)),
+                "speed_kms": float(np.median(v_ph - sl_v)),
+            },
+            order=tuple(found),  # the keys in the order they were found (the JSON's order)
+        )
+        return Perihelion(t_ph, d_ph, v_ph, flags=outside | ~conv, diagnostics=diagnostics)
 
     def _beyond_potential(self, observables, rel, t_lin, far, reference) -> Perihelion:
         """Rows beyond MAX_DISTANCE_PC or MAX_SPEED_KMS get the straight-line answer, flagged; the rest as usual."""
@@ -433,8 +439,8 @@ class OrbitModel(ForwardModel):
         x = rel[:, :3] + rel[:, 3:] * t_lin[:, None]
         t, d, v = t_lin * _C, rownorm(x), rownorm(rel[:, 3:])
         flags = far.copy()
-        info = {"model": self.name, "method": "straight line beyond the potential", "n_outside_window": 0,
-                "n_not_converged": 0}
+        diagnostics = ModelDiagnostics(model=self.name, method="straight line beyond the potential",
+                                       n_outside_window=0, n_not_converged=0)
         if (~far).any():
             near_ref = None if reference is None or far[0] and obs.shape[0] == 1 else reference
             ref_rel = self._relative(near_ref)[1] if near_ref is not None else None
@@ -444,10 +450,13 @@ class OrbitModel(ForwardModel):
             inner = self.evaluate(obs[~far], reference=near_ref)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
             flags[~far] = inner.flags if inner.flags is not None else False
-            info = dict(inner.info)
-        info["n_beyond_potential"] = int(far.sum())
-        info["max_distance_pc"] = MAX_DISTANCE_PC
-        return Perihelion(t, d, v, flags=flags, info=info)
+            # the straight-line block has one entry per row: the far rows' answer is the straight line itself
+            straight = {"time_myr": t_lin * _C, "distance_pc": rownorm(x), "speed_kms": rownorm(rel[:, 3:])}
+            for key, arr in inner.diagnostics.straight_line.items():
+                straight[key][~far] = arr
+            diagnostics = replace(inner.diagnostics, straight_line=straight)
+        diagnostics = replace(diagnostics, n_beyond_potential=int(far.sum()), max_distance_pc=MAX_DISTANCE_PC)
+        return Perihelion(t, d, v, flags=flags, diagnostics=diagnostics)
 
     def jacobian(self, point) -> np.ndarray:
         """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.
