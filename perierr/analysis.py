@@ -17,10 +17,10 @@ import numpy as np
 
 from ._version import __version__
 from .budget import LinearBudget, star_budget
+from .calibration import CalibrationInfo
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine, make_model
-from .priors.calibration import CalibrationInfo
 from .priors.info import PriorInfo
 from .propagate.linear import LinearResult, linearize
 from .propagate.montecarlo import MonteCarloResult, evaluate_aligned, monte_carlo, nuisance_rng, propagate_samples
@@ -156,7 +156,7 @@ def analyze(
     parallax_offset : float, Quantity, (value, error) or str, optional
         Parallax zero-point Z [mas] and its error, applied before anything
         else: corrected parallax = parallax - Z. Its error is a separate input
-        with its own budget share (see :mod:`perierr.priors.calibration`).
+        with its own budget share (see :mod:`perierr.calibration`).
     error_inflation : float, mapping or str, optional
         Factors multiplying standard errors, e.g. ``{"parallax": 1.1}``
         (one number inflates every input).
@@ -193,7 +193,7 @@ def analyze(
     seed = resolve_seed(seed)
     if focusing:
         model = _with_focusing(model, star)
-    from .priors.calibration import Calibration
+    from .calibration import Calibration
 
     calibration = Calibration.from_user(parallax_offset, error_inflation)
     calibration_block = calibration.info(star)

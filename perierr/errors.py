@@ -11,7 +11,7 @@ so a caller can tell perierr's refusals from a bug (a stray ``ValueError`` or
     │   ├── OrbitOptionError         perierr.models.orbit.model
     │   ├── PotentialParameterError  perierr.models.orbit.potential_base
     │   └── SolarParameterError      perierr.models.orbit.sun
-    └── ChainTooShortError (also RuntimeError)   perierr.priors.mcmc
+    └── ChainTooShortError (also RuntimeError)   perierr.sampling.mcmc
 
 Examples
 --------

@@ -120,7 +120,7 @@ def test_a_plain_run_imports_only_what_it_needs(tmp_path):
     assert code == 0
     for name in NOT_FOR_A_RUN:
         assert name not in after_run, f"a plain `perierr run` imported {name}"
-    assert "perierr.priors.mcmc" not in after_import and "perierr.priors.densities" not in after_import
+    assert "perierr.sampling.mcmc" not in after_import and "perierr.priors.densities" not in after_import
 
 
 OPTIONAL = ("matplotlib", "corner", "galpy", "SALib", "hypothesis", "pytest")

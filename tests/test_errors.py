@@ -87,7 +87,7 @@ def test_a_prior_leaving_the_walkers_no_room_is_refused():
     # a density that is non-zero only in the last 1e-12 of its support (0.002 pc): the walkers start at its
     # edge and never move, so emcee's autocorrelation time is NaN (was "cannot convert float NaN to integer")
     from perierr.priors.densities import CustomPrior
-    from perierr.priors.mcmc import ChainTooShortError, sample_posterior_mcmc
+    from perierr.sampling.mcmc import ChainTooShortError, sample_posterior_mcmc
 
     star = perierr.ObservedStar.from_values(
         ra=10.0, dec=5.0, parallax=0.2, parallax_error=0.1, pmra=1.0, pmra_error=0.1, pmdec=1.0,

@@ -15,9 +15,9 @@ import pytest
 from astropy.coordinates import ICRS, SkyCoord
 from scipy.optimize import minimize_scalar
 
+from perierr.errors import InputError
 from perierr.frames import cartesian_to_observables, observables_to_cartesian
 from perierr.models import StraightLine, make_model
-from perierr.errors import InputError
 from perierr.models.base import ForwardModel, Perihelion
 from perierr.models.focusing import Focused, FocusingError, hyperbolic_perihelion
 from perierr.models.straight import perihelion_cartesian_jacobian, perihelion_from_cartesian

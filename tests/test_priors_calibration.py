@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 
 from perierr import ObservedStar, analyze
+from perierr.calibration import Calibration, parse_inflation, parse_offset
 from perierr.errors import InputError, PerierrWarning
 from perierr.models import StraightLine
 from perierr.priors import ExponentialDensity, posterior_samples
-from perierr.priors.calibration import Calibration, parse_inflation, parse_offset
 from tests.test_priors_sampling import LEVELS, quadrature_quantiles
 
 

@@ -18,8 +18,8 @@ from numpy.testing import assert_allclose
 import perierr
 from perierr import InputError, ObservedStar
 from perierr import units as pu
+from perierr.calibration import parse_offset
 from perierr.priors import ExponentialDensity
-from perierr.priors.calibration import parse_offset
 
 # ---------------------------------------------------------------------------------------------- constants
 

@@ -1,10 +1,12 @@
 """Distance priors for weak and negative parallaxes.
 
 A prior on the distance r = 1000 / parallax (:mod:`.densities`), a text syntax
-for it (:mod:`.parse`), and two ways to sample the posterior of the six
-observables: importance reweighting of Gaussian draws (:mod:`.reweight`) and
-MCMC with emcee (:mod:`.mcmc`); :func:`posterior_samples` chooses.
-Parallax zero-point and error inflation live in :mod:`.calibration`.
+for it (:mod:`.parse`) and the record an analysis keeps of it (:mod:`.info`).
+The samplers of the posterior of the six observables live beside the Gaussian
+draws in :mod:`perierr.sampling` (importance reweighting, MCMC with emcee, and
+:func:`~perierr.sampling.posterior.posterior_samples`, which chooses); their
+public names are also reachable here. Parallax zero-point and error inflation
+are an input transform, :mod:`perierr.calibration`.
 
 The names below are loaded on first use (PEP 562), so that a run without a
 prior does not pay for the samplers at start-up.
@@ -12,18 +14,16 @@ prior does not pay for the samplers at start-up.
 
 import importlib
 
-# imported now (it is light): the function ``reweight`` shares its name with its module, and a later first
-# import of the module would otherwise rebind ``perierr.priors.reweight`` to the module
-from .reweight import log_weights, reweight
+from ..sampling.reweight import log_weights, reweight  # light: numpy only
 
 #: Public name -> the submodule that defines it.
 _WHERE = {
-    "ChainTooShortError": "mcmc",
+    "ChainTooShortError": "..sampling.mcmc",
     "CustomPrior": "densities",
     "DistancePrior": "densities",
     "ExponentialDensity": "densities",
     "GeneralizedGamma": "densities",
-    "METHODS": "posterior",
+    "METHODS": "..sampling.posterior",
     "NoPrior": "densities",
     "PRIOR_SYNTAX": "parse",
     "TablePrior": "densities",
@@ -31,9 +31,9 @@ _WHERE = {
     "log_distance_posterior": "densities",
     "parse_prior": "parse",
     "posterior_mode": "densities",
-    "posterior_samples": "posterior",
+    "posterior_samples": "..sampling.posterior",
     "resolve_prior": "parse",
-    "sample_posterior_mcmc": "mcmc",
+    "sample_posterior_mcmc": "..sampling.mcmc",
 }
 
 __all__ = [
@@ -61,7 +61,10 @@ __all__ = [
 def __getattr__(name):
     if name not in _WHERE:
         raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(f"{__name__}.{_WHERE[name]}"), name)
+    where = _WHERE[name]
+    module = importlib.import_module(where, "perierr.priors") if where.startswith(".") else (
+        importlib.import_module(f"{__name__}.{where}"))
+    value = getattr(module, name)
     globals()[name] = value  # found once, then an ordinary attribute
     return value
 

@@ -23,10 +23,10 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from ..cautions import note
-from ..errors import InputError, PerierrWarning
-from ..star import ObservedStar
-from ..units import INTERNAL_UNITS, OBSERVABLES, PARALLAX, to_number
+from .cautions import note
+from .errors import InputError, PerierrWarning
+from .star import ObservedStar
+from .units import INTERNAL_UNITS, OBSERVABLES, PARALLAX, to_number
 
 __all__ = ["ZERO_POINT", "Calibration", "CalibrationInfo", "parse_inflation", "parse_offset"]
 
@@ -270,7 +270,7 @@ class Calibration:
             The catalogue covariance (sigma_Z^2 taken back out of the parallax) and sigma_Z^2.
         inputs : tuple of str
         """
-        from ..budget import extend_inputs
+        from .budget import extend_inputs
 
         j = np.asarray(jacobian, dtype=float)
         cov6 = np.array(calibrated_star.cov, dtype=float)

@@ -13,13 +13,13 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, PerierrWarning
-from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
+from ..priors.densities import DistancePrior, NoPrior
+from ..priors.parse import resolve_prior
 from ..star.checks import require_positive_parallax
 from ..summary import weighted_quantiles
 from ..units import MAS_PC, PARALLAX
-from .densities import DistancePrior, NoPrior
+from .gaussian import Samples, draw_gaussian, resolve_seed
 from .mcmc import sample_posterior_mcmc
-from .parse import resolve_prior
 from .reweight import reweight
 
 __all__ = ["METHODS", "posterior_samples"]
@@ -60,7 +60,7 @@ def posterior_samples(
     mcmc_effective_size : int
         Effective sample size the MCMC run must reach (capped at ``n``).
     n_walkers, max_steps : int
-        Passed to :func:`~perierr.priors.mcmc.sample_posterior_mcmc`.
+        Passed to :func:`~perierr.sampling.mcmc.sample_posterior_mcmc`.
 
     Returns
     -------

@@ -21,8 +21,8 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import InputError
-from ..sampling.gaussian import Samples, draw_gaussian, resolve_seed
 from ..units import MAS_PC, PARALLAX
+from .gaussian import Samples, draw_gaussian, resolve_seed
 
 __all__ = ["importance_weights", "log_weights", "reweight"]
 

@@ -34,9 +34,9 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, PerierrError, PerierrWarning
-from ..sampling.gaussian import Samples, psd_factor, resolve_seed
+from ..priors.densities import log_distance_posterior
 from ..units import MAS_PC, OBSERVABLES, PARALLAX
-from .densities import log_distance_posterior
+from .gaussian import Samples, psd_factor, resolve_seed
 
 __all__ = ["ChainTooShortError", "sample_posterior_mcmc"]
 
