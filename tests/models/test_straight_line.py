@@ -11,8 +11,7 @@ from perierr.frames import cartesian_to_observables, observables_to_cartesian
 from perierr.models.base import ForwardModel
 from perierr.models.straight import perihelion_cartesian_jacobian, perihelion_from_cartesian
 from perierr.units import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MYR_PER_PC_PER_KMS
-
-from .conftest import random_observables
+from tests.conftest import random_observables
 
 
 def test_closed_form_equals_cartesian_minimum():

@@ -12,7 +12,7 @@ from perierr.calibration import Calibration, parse_inflation, parse_offset
 from perierr.errors import InputError, PerierrWarning
 from perierr.models import StraightLine
 from perierr.priors import ExponentialDensity, posterior_samples
-from tests.test_priors_sampling import LEVELS, quadrature_quantiles
+from tests.sampling.test_priors_sampling import LEVELS, quadrature_quantiles
 
 
 def invented(plx=4.0, eplx=0.05, **extra):
