@@ -35,7 +35,7 @@ _LAZY = {
 }
 
 #: Subpackages reachable as attributes of ``perierr`` without importing them first.
-_SUBPACKAGES = ("budget", "models", "plan", "priors", "propagate", "report", "sampling")
+_SUBPACKAGES = ("budget", "calibration", "models", "plan", "priors", "propagate", "report", "sampling", "star")
 
 __all__ = [
     "Analysis",

@@ -217,8 +217,8 @@ def analyze(
             linear, mc, prior_block, with_prior, found = _under_prior(
                 star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds
             )
-    found = from_warnings(caught) + found
-    budget = None if linear is None else star_budget(star, linear, calibration=calibration)
+        budget = None if linear is None else star_budget(star, linear, calibration=calibration)
+    found = found + from_warnings(caught)
     found.extend(reading_cautions(star, linear, mc, with_prior))
     comparison = {}
     if not isinstance(model, StraightLine):
@@ -226,7 +226,6 @@ def analyze(
     found = unique(found)
     emit(found)
     return Analysis(star, model.describe(), linear, mc, budget, found, comparison, prior_block, calibration_block)
-
 
 
 def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds):

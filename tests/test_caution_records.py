@@ -104,3 +104,16 @@ def test_emit_skips_notes():
     assert [str(w.message) for w in caught] == ["a caution"]
     assert caught[0].filename == __file__
     assert np.all([issubclass(w.category, PerierrWarning) for w in caught])
+
+
+def test_a_head_on_analysis_says_each_caution_once_at_the_callers_line():
+    # a head-on nominal path (transverse speed 0: d_ph = 0 exactly): linearization and budget run inside
+    # analyze's capture, so whatever they warn is recorded with the analysis and said once, at the caller's line
+    star = invented(pmra=0.0, pmdec=0.0)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        a = analyze(star, n_samples=2000, seed=5)
+    said = [w for w in caught if issubclass(w.category, PerierrWarning)]
+    assert [str(w.message) for w in said] == a.warnings
+    assert all(w.filename == __file__ for w in said)
+    assert any(c.code == "head-on" for c in a.cautions)

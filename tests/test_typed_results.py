@@ -295,6 +295,10 @@ def test_metric_records_and_their_json_keys():
     assert table["distance_pc.std"] == table[Metric("distance_pc", "std")] == 2.0
     assert "distance_pc.std" in table and "nonsense" not in table
     assert table.by_key() == {"distance_pc.std": 2.0}
+    # the Mapping contract (Python docs, collections.abc.Mapping.get): a key it does not hold gives the default
+    assert table.get("nonsense") is None and table.get("distance_pc.width90", 7.0) == 7.0
+    with pytest.raises(KeyError):
+        table["nonsense"]
 
 
 def test_scenario_metrics_by_record_match_numpy():

@@ -99,7 +99,11 @@ class MetricTable(Mapping):
                 raise TypeError(f"MetricTable keys are Metric records, got {m!r}")
 
     def __getitem__(self, key):
-        return self._data[Metric.coerce(key)]
+        try:
+            metric = Metric.coerce(key)
+        except InputError:  # a key that names no statistic is absent, as in any mapping (and .get gives the default)
+            raise KeyError(key) from None
+        return self._data[metric]
 
     def __contains__(self, key):
         try:

@@ -37,7 +37,7 @@ def format_screen(rows, table_name: str) -> str:
         lines.extend(f"         note: {note}" for note in r.notes)
     if weak:
         lines.append(
-            f"  (σ_ϖ/ϖ > {BIASED_PARALLAX_FRACTION:.0%}: 1/parallax is a biased distance; "
+            f"  (σ_ϖ/ϖ > {100 * BIASED_PARALLAX_FRACTION:g} %: 1/parallax is a biased distance; "
             "see perierr run --distance-prior)"
         )
     return "\n".join(lines)
