@@ -1,7 +1,10 @@
 """Summaries of sampled outputs: quantiles with Monte Carlo errors, thresholds.
 
 All functions accept optional weights, so plain Monte Carlo, importance
-reweighting and MCMC samples flow through the same code.
+reweighting and MCMC samples flow through the same code. The probability of
+passing within a threshold (:class:`ThresholdProbability`,
+:func:`threshold_probability`) lives in :mod:`perierr.thresholds` and is
+re-exported here.
 """
 
 from __future__ import annotations
@@ -12,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import InputError
+from .thresholds import ThresholdProbability, threshold_probability
 
 __all__ = [
     "DEFAULT_LEVELS",
@@ -367,76 +371,3 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
         quantile_se={q: 0.0 if a == b else float(0.5 * (b - a)) for q, a, b in zip(levels, lo, hi)},
         note=note,
     )
-
-
-@dataclass(frozen=True)
-class ThresholdProbability:
-    """Probability that the perihelion distance is below a threshold.
-
-    Attributes
-    ----------
-    label : str
-        The threshold as the user gave it (e.g. ``"20000 au"``).
-    distance_pc : float
-    probability : float
-    se : float
-        Binomial Monte Carlo standard error ``sqrt(p (1 - p) / n_eff)``.
-    upper95 : float
-        95 % upper bound on the probability when no sample passed
-        (``1 - 0.05^(1/n_eff)``), else ``min(1, probability + 2 se)``.
-    count : int
-        Samples below the threshold.
-    lower95 : float
-        95 % lower bound when every sample passed (``0.05^(1/n_eff)``), else
-        ``max(0, probability - 2 se)``.
-    """
-
-    label: str
-    distance_pc: float
-    probability: float
-    se: float
-    upper95: float
-    count: int
-    lower95: float = 0.0
-
-    def to_dict(self) -> dict:
-        """Plain dict for JSON."""
-        return {
-            "threshold": self.label,
-            "distance_pc": self.distance_pc,
-            "probability": self.probability,
-            "mc_error": self.se,
-            "upper95": self.upper95,
-            "lower95": self.lower95,
-            "count": self.count,
-        }
-
-
-def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> ThresholdProbability:
-    """P(d_ph < threshold) over all samples.
-
-    Parameters
-    ----------
-    distance_pc : array_like, shape (n,)
-        Perihelion distance of every sample; samples whose distance is
-        unbounded or undefined (parallax <= 0) carry ``inf`` or NaN and so
-        count as not passing.
-    threshold_pc : float
-    label : str
-    weights : array_like, shape (n,), optional
-    """
-    d = np.asarray(distance_pc)
-    below = d < threshold_pc
-    count = int(np.count_nonzero(below))
-    if weights is None:
-        n_eff = float(d.size)
-        p = count / n_eff
-    else:
-        w = np.asarray(weights, dtype=float)
-        wsum = w.sum()
-        p = min(1.0, float(np.dot(below, w) / wsum))  # dot vs sum rounding can exceed 1 by 1 ulp
-        n_eff = float(wsum**2 / np.dot(w, w))
-    se = math.sqrt(p * (1 - p) / n_eff)
-    upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
-    lower = 0.05 ** (1.0 / n_eff) if count == d.size else max(0.0, p - 2 * se)
-    return ThresholdProbability(label, float(threshold_pc), p, se, upper, count, lower)

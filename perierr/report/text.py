@@ -46,13 +46,37 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
         reports says it once, at the end.
     """
     a = analysis
-    star, mc = a.star, a.monte_carlo
-    lines = []
+    mc = a.monte_carlo
+    lines = _header_lines(a) + [""] + _input_lines(a.star) + [""]
+    lines += _perihelion_lines(a.linear, mc)
+    lines += _model_lines(mc.perihelion.diagnostics)
+    lines += _monte_carlo_lines(mc) + [""]
+    lines += _threshold_lines(mc)
+    if a.budget is not None:
+        lines += [""] + _budget_lines(a.budget)
+    if a.comparison:
+        lines += [""] + _comparison_lines(a.comparison)
+    if a.prior is not None:
+        lines += [""] + _prior_lines(a.prior)
+    if a.calibration is not None and a.calibration.active:
+        lines += [""] + _calibration_lines(a.calibration)
+    lines += _caution_lines(a.all_cautions)
+    if hazard:
+        lines += ["", HAZARD]
+    return "\n".join(lines)
+
+
+def _header_lines(a) -> list:
+    """The title line: star, epoch and model."""
+    star = a.star
     model_name = a.model.get("description", a.model.get("name", "?"))
     epoch = f"J{star.ref_epoch:g}" if star.ref_epoch is not None else "epoch not given"
-    lines.append(f"perierr · closest approach to the Sun of {star.name} ({epoch}; model: {model_name})")
-    lines.append("")
-    lines.append("Input (catalogue units)")
+    return [f"perierr · closest approach to the Sun of {star.name} ({epoch}; model: {model_name})"]
+
+
+def _input_lines(star) -> list:
+    """The input section: each observable with its catalogue error."""
+    lines = ["Input (catalogue units)"]
     cat = star.catalogue_errors()
     for name in OBSERVABLES:
         value, err = star.mean[INDEX[name]], cat[f"{name}_error"]
@@ -61,11 +85,13 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
         lines.append(f"  {name:<16}{shown:>14} ± {err:<10.4g} {unit}")
     if star.fractional_parallax_error < math.inf:
         lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
-    lines.append("")
+    return lines
+
+
+def _perihelion_lines(lin, mc) -> list:
+    """The perihelion table: linear and Monte Carlo values, notes and extra quantiles."""
     head = f"  {'':<15}{'nominal ± linear 1σ':<24}{'MC median':>11}   {'16 % … 84 %':<23}   5 % … 95 %"
-    lines.append("Perihelion (time relative to the epoch; negative = past)")
-    lines.append(head)
-    lin = a.linear
+    lines = ["Perihelion (time relative to the epoch; negative = past)", head]
     for k, q in enumerate(OUTPUTS):
         nominal = None if lin is None else lin.value[k]
         sigma = None if lin is None else lin.sigma[k]
@@ -75,30 +101,44 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
     for q in OUTPUTS:
         if mc.summaries[q].note:
             lines.append(f"  {OUTPUT_TITLES[q]}: {mc.summaries[q].note}")
+    return lines + _extra_quantile_lines(mc)
+
+
+def _extra_quantile_lines(mc) -> list:
+    """Quantiles asked for beyond the five the table shows, with their MC errors."""
     extra = [q for q in mc.levels if q not in (0.05, 0.16, 0.5, 0.84, 0.95)]
-    if extra:
-        lines.append("  other quantiles (MC error in brackets):")
-        for q in OUTPUTS:
-            s = mc.summaries[q]
-            err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) / 10
-            cells = ", ".join(
-                f"{100 * lv:g} %: {format_value(s.quantile(lv), err)} ({s.quantile_error(lv):.2g})" for lv in extra
-            )
-            lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
-    lines.extend(_model_lines(mc.perihelion.diagnostics))
+    if not extra:
+        return []
+    lines = ["  other quantiles (MC error in brackets):"]
+    for q in OUTPUTS:
+        s = mc.summaries[q]
+        err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) / 10
+        cells = ", ".join(
+            f"{100 * lv:g} %: {format_value(s.quantile(lv), err)} ({s.quantile_error(lv):.2g})" for lv in extra
+        )
+        lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
+    return lines
+
+
+def _monte_carlo_lines(mc) -> list:
+    """The Monte Carlo line: draws, seed, worst MC error, weights and non-positive parallaxes."""
     worst = mc.worst_relative_error()
-    lines.append(
+    lines = [
         f"  Monte Carlo: {mc.n:,} draws ({mc.samples.method}), seed {mc.samples.seed}; every quantile's "
         f"MC error ≤ {worst:.2%} of its (q84 − q16)/2"
-    )
+    ]
     if mc.samples.weights is not None:
         lines.append(f"  effective sample size {mc.samples.effective_size:,.0f}")
     if mc.n_nonpositive_parallax:
         lines.append(
             f"  {mc.n_nonpositive_parallax:,} draws with parallax <= 0 (counted as never passing within any threshold)"
         )
-    lines.append("")
-    lines.append("Chance that the star passes within")
+    return lines
+
+
+def _threshold_lines(mc) -> list:
+    """The chance of passing within each threshold, or a 95 % bound when no or every draw passed."""
+    lines = ["Chance that the star passes within"]
     for t in mc.thresholds:
         if t.count == 0:
             text = f"  < {t.upper95:.4%} (95 % bound; no draw passed)"
@@ -107,51 +147,50 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
         else:
             text = f"{t.probability:8.2%} ± {t.se:.2%}"
         lines.append(f"  {t.label:<12} {text}")
-    if a.budget is not None:
-        lines.append("")
-        lines.append("Who sets the error: share of the variance (linearized Shapley; covariance term in brackets)")
-        lines.append(f"  {'input':<17}{'distance':>18}{'time':>18}")
-        b = a.budget
-        sd, st = b.share("distance_pc"), b.share("time_myr")
-        cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
-        for name in b.inputs:
-            cells = (
-                format_share(sd[name], bounded=True), format_share(cd[name]),
-                format_share(st[name], bounded=True), format_share(ct[name]),
-            )  # fmt: skip
-            lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
-        lines.append(
-            f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
-        )
-    if a.comparison:
-        lines.append("")
-        lines.append("Against straight-line motion on the same draws (this model minus straight line)")
-        for q in OUTPUTS:
-            c = a.comparison[q]
+    return lines
+
+
+def _budget_lines(b) -> list:
+    """The error budget: each input's variance share for distance and time."""
+    lines = [
+        "Who sets the error: share of the variance (linearized Shapley; covariance term in brackets)",
+        f"  {'input':<17}{'distance':>18}{'time':>18}",
+    ]
+    sd, st = b.share("distance_pc"), b.share("time_myr")
+    cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
+    for name in b.inputs:
+        cells = (
+            format_share(sd[name], bounded=True), format_share(cd[name]),
+            format_share(st[name], bounded=True), format_share(ct[name]),
+        )  # fmt: skip
+        lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
+    lines.append(
+        f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
+    )
+    return lines
+
+
+def _comparison_lines(comparison) -> list:
+    """The comparison with straight-line motion on the same draws."""
+    lines = ["Against straight-line motion on the same draws (this model minus straight line)"]
+    for q in OUTPUTS:
+        c = comparison[q]
+        lines.append(f"  {OUTPUT_TITLES[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
+        if q == "distance_pc":
+            au = AU_PER_PC
             lines.append(
-                f"  {OUTPUT_TITLES[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}"
+                f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
+                f"difference {c['difference_of_medians'] * au:+,.0f}"
             )
-            if q == "distance_pc":
-                au = AU_PER_PC
-                lines.append(
-                    f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
-                    f"difference {c['difference_of_medians'] * au:+,.0f}"
-                )
-    if a.prior is not None:
-        lines.append("")
-        lines.extend(_prior_lines(a.prior))
-    if a.calibration is not None and a.calibration.active:
-        lines.append("")
-        lines.extend(_calibration_lines(a.calibration))
-    shown = messages(a.all_cautions)
-    if shown:
-        lines.append("")
-        lines.append("Read with care")
-        lines.extend(f"  - {message}" for message in shown)
-    if hazard:
-        lines.append("")
-        lines.append(HAZARD)
-    return "\n".join(lines)
+    return lines
+
+
+def _caution_lines(cautions) -> list:
+    """The cautions section, empty when there is nothing to say."""
+    shown = messages(cautions)
+    if not shown:
+        return []
+    return ["", "Read with care"] + [f"  - {message}" for message in shown]
 
 
 def _dominant(budget, output: str) -> str:

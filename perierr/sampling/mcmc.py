@@ -34,7 +34,7 @@ import warnings
 import numpy as np
 
 from ..errors import InputError, PerierrError, PerierrWarning
-from ..priors.densities import log_distance_posterior
+from ..priors.distance_posterior import log_distance_posterior
 from ..units import MAS_PC, OBSERVABLES, PARALLAX
 from .gaussian import Samples, psd_factor, resolve_seed
 
@@ -147,59 +147,25 @@ def sample_posterior_mcmc(
         The chain reached ``max_steps`` with fewer than 20 autocorrelation
         times after burn-in or fewer than 100 effective samples.
     """
-    import emcee
-
-    sig = float(star.sigma[PARALLAX])
-    if not sig > 0:
-        raise InputError("parallax_error", sig, "posterior sampling needs a parallax error > 0")
-    if int(n_effective) < 100:
-        raise InputError("n_effective", n_effective, "expected at least 100 effective samples")
+    sig = _checked_parallax_error(star, n_effective)
     seed = resolve_seed(seed)
     if rng is None:
         rng = np.random.default_rng(seed)
-    mean_p = np.asarray(star.mean)[list(_PERM)]
-    cov_p = np.asarray(star.cov)[np.ix_(_PERM, _PERM)]
-    low = psd_factor(cov_p)
-    free = [j for j in range(1, 6) if np.any(low[:, j] != 0.0)]
-    basis = low[:, [0] + free]
+    mean_p, basis, free = _whitening(star)
     ndim = 1 + len(free)
     if n_walkers < 2 * ndim or n_walkers % 2:
         raise InputError("n_walkers", n_walkers, f"expected an even number >= {2 * ndim}")
     plx0 = float(mean_p[0])
-
-    def log_prob(x):
-        u = x[:, 0]
-        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            r = np.exp(u)
-            z0 = (MAS_PC / r - plx0) / sig
-            lp = -0.5 * (z0 * z0 + np.sum(x[:, 1:] ** 2, axis=1)) + prior.log_density(r) + u
-        return np.where(np.isfinite(lp), lp, -np.inf)
-
-    p0 = np.empty((n_walkers, ndim))
-    p0[:, 0] = _initial_log_distance(prior, plx0, sig, n_walkers, rng)
-    p0[:, 1:] = rng.standard_normal((n_walkers, ndim - 1))
-    sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, vectorize=True)
-    sampler.random_state = np.random.RandomState(int(rng.integers(2**32))).get_state()
-
-    state, chunk = p0, min(500, int(max_steps))
-    while True:
-        state = sampler.run_mcmc(state, chunk, progress=False)
-        steps = sampler.iteration
-        tau, burn = _tau_and_burn(sampler, steps)
-        tau_max = float(np.max(tau))
-        kept = steps - burn
-        ess = n_walkers * kept / tau_max
-        if (ess >= n_effective and kept >= RELIABLE_TAUS * tau_max) or steps >= max_steps:
-            break
-        need = max(RELIABLE_TAUS * tau_max, n_effective * tau_max / n_walkers) + burn - steps
-        chunk = int(min(max(1.1 * need, 100), max_steps - steps))
-
+    sampler, p0 = _start_sampler(prior, plx0, sig, n_walkers, ndim, rng)
+    steps, tau, burn = _run_until_converged(sampler, p0, n_walkers, n_effective, max_steps)
+    tau_max = float(np.max(tau))
+    kept = steps - burn
     names = ["ln_distance"] + [OBSERVABLES[_PERM[j]] for j in free]
     thin = max(1, math.ceil(tau_max))
     flat = sampler.get_chain(discard=burn, thin=thin, flat=True)
     acc = float(np.mean(sampler.acceptance_fraction))
     info = {
-        "effective_size": float(ess),
+        "effective_size": float(n_walkers * kept / tau_max),
         "autocorrelation_time": dict(zip(names, (float(t) for t in tau))),
         "burn_in": int(burn),
         "thin": int(thin),
@@ -214,6 +180,67 @@ def sample_posterior_mcmc(
                       "check the prior's support", PerierrWarning, stacklevel=2)
     values = _to_observables(flat, mean_p, basis, plx0, sig)
     return Samples(values, weights=None, method="mcmc", seed=seed, info=info)
+
+
+def _checked_parallax_error(star, n_effective) -> float:
+    """The parallax error, after checking it is > 0 and that ``n_effective`` is at least 100."""
+    sig = float(star.sigma[PARALLAX])
+    if not sig > 0:
+        raise InputError("parallax_error", sig, "posterior sampling needs a parallax error > 0")
+    if int(n_effective) < 100:
+        raise InputError("n_effective", n_effective, "expected at least 100 effective samples")
+    return sig
+
+
+def _whitening(star):
+    """Mean and covariance factor with the parallax first, and the indices of the free (sampled) columns."""
+    mean_p = np.asarray(star.mean)[list(_PERM)]
+    cov_p = np.asarray(star.cov)[np.ix_(_PERM, _PERM)]
+    low = psd_factor(cov_p)
+    free = [j for j in range(1, 6) if np.any(low[:, j] != 0.0)]
+    return mean_p, low[:, [0] + free], free
+
+
+def _log_target(prior, plx0, sig):
+    """The vectorized log target ln p(x) over the walkers, x = (ln r, z_1, ..., z_k)."""
+
+    def log_prob(x):
+        u = x[:, 0]
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            r = np.exp(u)
+            z0 = (MAS_PC / r - plx0) / sig
+            lp = -0.5 * (z0 * z0 + np.sum(x[:, 1:] ** 2, axis=1)) + prior.log_density(r) + u
+        return np.where(np.isfinite(lp), lp, -np.inf)
+
+    return log_prob
+
+
+def _start_sampler(prior, plx0, sig, n_walkers, ndim, rng):
+    """The emcee ensemble sampler, seeded from ``rng``, and the walkers' starting points."""
+    import emcee
+
+    p0 = np.empty((n_walkers, ndim))
+    p0[:, 0] = _initial_log_distance(prior, plx0, sig, n_walkers, rng)
+    p0[:, 1:] = rng.standard_normal((n_walkers, ndim - 1))
+    sampler = emcee.EnsembleSampler(n_walkers, ndim, _log_target(prior, plx0, sig), vectorize=True)
+    sampler.random_state = np.random.RandomState(int(rng.integers(2**32))).get_state()
+    return sampler, p0
+
+
+def _run_until_converged(sampler, p0, n_walkers, n_effective, max_steps):
+    """Extend the chain until it is long enough (or ``max_steps``); steps, tau per parameter and burn-in."""
+    state, chunk = p0, min(500, int(max_steps))
+    while True:
+        state = sampler.run_mcmc(state, chunk, progress=False)
+        steps = sampler.iteration
+        tau, burn = _tau_and_burn(sampler, steps)
+        tau_max = float(np.max(tau))
+        kept = steps - burn
+        ess = n_walkers * kept / tau_max
+        if (ess >= n_effective and kept >= RELIABLE_TAUS * tau_max) or steps >= max_steps:
+            return steps, tau, burn
+        need = max(RELIABLE_TAUS * tau_max, n_effective * tau_max / n_walkers) + burn - steps
+        chunk = int(min(max(1.1 * need, 100), max_steps - steps))
 
 
 def _tau_and_burn(sampler, steps):

@@ -75,62 +75,20 @@ def posterior_samples(
     rng = np.random.default_rng(seed)
     plx, sig = float(star.mean[PARALLAX]), float(star.sigma[PARALLAX])
     if isinstance(prior, NoPrior):
-        require_positive_parallax(plx, method="The 'none' distance prior (parallax inversion)")
-        values = draw_gaussian(star.mean, star.cov, int(n), rng)
-        return Samples(
-            values,
-            method="gaussian",
-            seed=seed,
-            info={"effective_size": float(n), "note": "no prior: parallaxes inverted"},
-        )
+        return _inverted_parallax_samples(star, plx, n, seed, rng)
     if sig == 0:
-        if not plx > 0 or not np.isfinite(prior.log_density(np.array([MAS_PC / plx])))[0]:
-            raise InputError(
-                "parallax",
-                plx,
-                "with parallax_error = 0 the distance is fixed at "
-                "1000 / parallax, which must be > 0 and inside the prior's support",
-            )
-        values = draw_gaussian(star.mean, star.cov, int(n), rng)
-        return Samples(
-            values,
-            method="reweight",
-            weights=np.full(int(n), 1.0 / int(n)),
-            seed=seed,
-            info={
-                "effective_size": float(n),
-                "note": "parallax_error = 0: the distance is fixed and the prior has no effect",
-            },
-        )
-    if not plx > 0 or plx < sig:
-        what = "<= 0" if not plx > 0 else f"below its error ({plx:.3g} < {sig:.3g} mas)"
-        warnings.warn(
-            f"the parallax is {what}: the distance, and with it the perihelion, is dominated by "
-            f"the {prior.name} prior {prior.parameters}; the result states the prior's "
-            "assumption more than the measurement",
-            PerierrWarning,
-            stacklevel=2,
-        )
+        return _fixed_distance_samples(star, prior, plx, n, seed, rng)
+    _warn_prior_dominated(plx, sig, prior)
     threshold = float(min(1000.0, n / 10)) if min_effective_size is None else float(min_effective_size)
     switched = None
     tried = None
     if method == "reweight" or (method == "auto" and plx > 0):
-        try:
-            samples = reweight(star, prior, n=n, seed=seed, rng=rng)
-        except InputError:
-            if method == "reweight":
-                raise
-            samples = None  # no draw inside the prior's support
+        samples = _reweight_or_none(star, prior, n, seed, rng, method)
         ess = 0.0 if samples is None else samples.info["effective_size"]
         if ess >= threshold:
             return _check_tension(samples, plx, sig, prior)
         if method == "reweight":
-            warnings.warn(
-                f"reweighting kept an effective sample size of {ess:.0f} (< {threshold:.0f}) out of "
-                f"{n} draws: its quantiles are noisy; use prior_method='mcmc' or 'auto'",
-                PerierrWarning,
-                stacklevel=2,
-            )
+            _warn_small_effective_size(ess, threshold, n)
             return _check_tension(samples, plx, sig, prior)
         tried = ess
         switched = f"reweighting effective sample size {ess:.0f} < {threshold:.0f}"
@@ -145,6 +103,78 @@ def posterior_samples(
         n_walkers=n_walkers,
         max_steps=max_steps,
     )
+    return _check_tension(_mcmc_samples(out, n, seed, switched, tried), plx, sig, prior)
+
+
+def _inverted_parallax_samples(star, plx, n, seed, rng) -> Samples:
+    """Plain Gaussian draws (no prior: the parallaxes are inverted), after checking the parallax is > 0."""
+    require_positive_parallax(plx, method="The 'none' distance prior (parallax inversion)")
+    values = draw_gaussian(star.mean, star.cov, int(n), rng)
+    return Samples(
+        values,
+        method="gaussian",
+        seed=seed,
+        info={"effective_size": float(n), "note": "no prior: parallaxes inverted"},
+    )
+
+
+def _fixed_distance_samples(star, prior, plx, n, seed, rng) -> Samples:
+    """Equal-weight draws when the parallax error is 0: the distance is fixed and the prior has no effect."""
+    if not plx > 0 or not np.isfinite(prior.log_density(np.array([MAS_PC / plx])))[0]:
+        raise InputError(
+            "parallax",
+            plx,
+            "with parallax_error = 0 the distance is fixed at "
+            "1000 / parallax, which must be > 0 and inside the prior's support",
+        )
+    values = draw_gaussian(star.mean, star.cov, int(n), rng)
+    return Samples(
+        values,
+        method="reweight",
+        weights=np.full(int(n), 1.0 / int(n)),
+        seed=seed,
+        info={
+            "effective_size": float(n),
+            "note": "parallax_error = 0: the distance is fixed and the prior has no effect",
+        },
+    )
+
+
+def _warn_prior_dominated(plx, sig, prior) -> None:
+    """Warn (at the caller of ``posterior_samples``) when the parallax is <= 0 or below its error."""
+    if not plx > 0 or plx < sig:
+        what = "<= 0" if not plx > 0 else f"below its error ({plx:.3g} < {sig:.3g} mas)"
+        warnings.warn(
+            f"the parallax is {what}: the distance, and with it the perihelion, is dominated by "
+            f"the {prior.name} prior {prior.parameters}; the result states the prior's "
+            "assumption more than the measurement",
+            PerierrWarning,
+            stacklevel=3,
+        )
+
+
+def _reweight_or_none(star, prior, n, seed, rng, method):
+    """Reweighted draws; None under ``method="auto"`` when no draw falls inside the prior's support."""
+    try:
+        return reweight(star, prior, n=n, seed=seed, rng=rng)
+    except InputError:
+        if method == "reweight":
+            raise
+        return None  # no draw inside the prior's support
+
+
+def _warn_small_effective_size(ess, threshold, n) -> None:
+    """Warn (at the caller of ``posterior_samples``) that forced reweighting kept few effective draws."""
+    warnings.warn(
+        f"reweighting kept an effective sample size of {ess:.0f} (< {threshold:.0f}) out of "
+        f"{n} draws: its quantiles are noisy; use prior_method='mcmc' or 'auto'",
+        PerierrWarning,
+        stacklevel=3,
+    )
+
+
+def _mcmc_samples(out, n, seed, switched, tried) -> Samples:
+    """The MCMC draws with the switch reason, the sizes asked and delivered, and a capped effective size."""
     info = dict(out.info)
     if switched is not None:
         info["switched_to_mcmc"] = switched
@@ -155,7 +185,7 @@ def posterior_samples(
     # the thinned chain keeps about one draw per autocorrelation time: never claim more
     # effective draws than were delivered
     info["effective_size"] = float(min(info.get("effective_size", np.inf), out.values.shape[0]))
-    return _check_tension(Samples(out.values, method="mcmc", seed=seed, info=info), plx, sig, prior)
+    return Samples(out.values, method="mcmc", seed=seed, info=info)
 
 
 #: Distance (in parallax sigmas) between the posterior median parallax and the measured one above

@@ -6,6 +6,7 @@ map of a few reference orbits (one per distance bin) built around the
 samples farthest from their reference; bins whose check fails, and all rows
 evaluated without a reference (no point to build the map around), are
 integrated directly (vectorized over samples). See
+:mod:`perierr.models.orbit.mapping` (the map's steps),
 :mod:`perierr.models.orbit.transition` and
 :mod:`perierr.models.orbit.integrate`.
 """
@@ -19,12 +20,13 @@ import numpy as np
 
 from ...errors import InputError
 from ...frames import cartesian_jacobian, observables_to_cartesian
-from ...units import AU_PER_PC, PARALLAX
 from ...units import MYR_PER_PC_PER_KMS as _C
+from ...units import PARALLAX
 from ..base import ForwardModel, Perihelion
 from ..diagnostics import ModelDiagnostics
-from .grid import distance_bins, map_span, rownorm, window_and_nodes
+from .grid import map_span, rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
+from .mapping import map_perihelia
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
 from .sun import SolarParameters, get_solar_parameters
@@ -39,9 +41,6 @@ ORBIT_OPTIONS = (
     "bin_width_pc", "min_bin_samples", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
-#: The reference orbits and checks use fixed-step RK4 with steps halved while its
-#: estimated position error exceeds this fraction of ``map_tolerance_au``.
-_RK4_ERROR_FRACTION = 0.3
 _map_span = map_span  # module attribute, so that tests can narrow the span
 
 
@@ -251,125 +250,9 @@ class OrbitModel(ForwardModel):
         return t, state, outside, conv
 
     def _map(self, rel_all, ref_rel, nodes, t_lin_all):
-        bidx, refs, sparse = distance_bins(
-            rel_all, ref_rel, bin_width_pc=self.bin_width_pc, min_bin_samples=self.min_bin_samples
-        )
-        mapped = np.flatnonzero(~sparse)
-        if mapped.size == 0:  # every distance bin too sparse for a reference orbit (few, widely spread draws)
-            t, state, outside, conv = self._direct(rel_all, nodes)
-            n = rel_all.shape[0]
-            diag = {"n_reference_orbits": 0, "n_checked": 0, "fallback_samples": 0, "sparse_bin_samples": n,
-                    "beyond_span_samples": 0,
-                    "fallback_reason": f"all {n} samples integrated directly: no distance bin held enough "
-                                       "samples for a reference orbit"}
-            return t, state, outside, conv, diag
-        rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
-        kref = refs.shape[0]
-        delta = rel - refs[bidx]
-        # the samples that check the map: farthest from their reference orbit,
-        # by position offset plus velocity offset times the time to perihelion
-        score = rownorm(delta[:, :3]) + rownorm(delta[:, 3:]) * (
-            np.abs(t_lin) + 1.0
-        )
-        picks = []
-        for b in range(kref):  # loop over the few reference orbits
-            rows_b = np.flatnonzero(bidx == b) if kref > 1 else np.arange(bidx.size)
-            if rows_b.size > self.n_check:
-                top = np.argpartition(-score[rows_b], self.n_check - 1)[: self.n_check]
-                rows_b = rows_b[top]
-            picks.append(rows_b)
-        check = np.concatenate(picks)
-        # the map is tabulated only over the grid span the perihelia need
-        full_nodes = nodes
-        nodes, cut_lo, cut_hi = _map_span(t_lin, full_nodes)
-        # reference orbits with variational equations and the check samples, one call
-        tables = variational_tables(
-            self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol,
-            extra=rel[check], scheme="rk4",
-            max_error_pc=_RK4_ERROR_FRACTION * self.map_tolerance_au / AU_PER_PC,
-        )  # fmt: skip
-        int_err_au = tables.integration_error_pc * AU_PER_PC
-        # each reference's own perihelion from its grid global minimum, to
-        # shift the samples' straight-line starting times
-        ref_feats = features(np.zeros((kref, 6)))
-        ref_vals = tables.node_cubic(np.arange(kref), ref_feats)
-        grid_states = np.moveaxis(tables.table[:, :, 0, :6], 1, 0)  # (m, K, 6)
-        t_ref, _, _, _ = newton_perihelion(
-            nodes, ref_vals, grid_minimum_start(nodes, grid_states), coefficients=True
-        )
-        v_ref = refs[:, 3:]
-        t_lin_ref = -np.sum(refs[:, :3] * v_ref, axis=1) / np.sum(v_ref * v_ref, axis=1)
-        start = t_lin + (t_ref - t_lin_ref)[bidx]
-        feats = features(delta)
-        t, state, outside, conv = newton_perihelion(
-            nodes, tables.node_cubic(bidx, feats), start, coefficients=True
-        )
-        est, eder = tables.extra
-
-        def check_values(k, rows):
-            return est[k, rows], eder[k, rows], est[k + 1, rows], eder[k + 1, rows]
-
-        tc, sc, oc, cc = newton_perihelion(nodes, check_values, grid_minimum_start(nodes, est))
-        # perihelia at a cut edge of the span lie beyond it: integrated directly below
-        beyond = outside & (((t == nodes[0]) & cut_lo) | ((t == nodes[-1]) & cut_hi))
-        beyond_c = oc & (((tc == nodes[0]) & cut_lo) | ((tc == nodes[-1]) & cut_hi))
-        err_au = np.abs(rownorm(sc[:, :3]) - rownorm(state[check, :3])) * AU_PER_PC
-        err_t = np.abs(tc - t[check]) * _C
-        err_au[beyond_c | beyond[check]] = 0.0
-        err_t[beyond_c | beyond[check]] = 0.0
-        # the second-order map's error grows as the cube of the offset: bound it
-        # per reference orbit by c * score^3 with c the largest ratio on the checks
-        coef = np.zeros(kref)
-        sc3 = score[check] ** 3
-        ratio = np.divide(err_au, sc3, out=np.zeros_like(err_au), where=sc3 > 1e-9)
-        np.maximum.at(coef, bidx[check], ratio)
-        predicted = coef[bidx] * score**3 + int_err_au
-        diag = {
-            "n_reference_orbits": int(kref),
-            "n_checked": int(check.size),
-            "map_error_au_max": float(err_au.max()),
-            "map_error_time_myr_max": float(err_t.max()),
-            "map_error_model": "error_au <= c * score_pc^3, c per reference orbit from the checks",
-            "map_error_coefficient_max": float(coef.max()),
-            "integration_scheme": "fixed-step RK4 on the grid (reference orbits and checks)",
-            "integration_error_au": int_err_au,
-        }
-        # checked samples keep their direct result
-        t[check], state[check], outside[check], conv[check] = tc, sc, oc, cc
-        beyond[check] = beyond_c
-        redo = ~conv
-        if self.method == "auto":
-            redo |= predicted > self.map_tolerance_au
-            redo[check] = False
-        redo |= beyond
-        nodes = full_nodes
-        diag["map_span_myr"] = [float(tables.nodes[0] * _C), float(tables.nodes[-1] * _C)]
-        diag["beyond_span_samples"] = int(beyond.sum())
-        n_redo = int(redo.sum())
-        diag["fallback_samples"] = n_redo
-        if n_redo:
-            rows = np.flatnonzero(redo)
-            t[rows], state[rows], outside[rows], conv[rows] = self._direct(rel[rows], nodes)
-            diag["fallback_reason"] = (
-                f"{n_redo} of {rel_all.shape[0]} samples integrated directly: predicted map "
-                f"error above {self.map_tolerance_au} au, perihelion beyond the map's grid "
-                "span, or Newton not converged"
-            )
-        n_sparse = int(sparse.sum())
-        diag["sparse_bin_samples"] = n_sparse
-        n = rel_all.shape[0]
-        t_all, state_all = np.empty(n), np.empty((n, 6))
-        out_all, conv_all = np.empty(n, dtype=bool), np.empty(n, dtype=bool)
-        t_all[mapped], state_all[mapped], out_all[mapped], conv_all[mapped] = (
-            t, state, outside, conv
-        )
-        if n_sparse:
-            rows = np.flatnonzero(sparse)
-            t_all[rows], state_all[rows], out_all[rows], conv_all[rows] = self._direct(
-                rel_all[rows], nodes
-            )
-        t, state, outside, conv = t_all, state_all, out_all, conv_all
-        return t, state, outside, conv, diag
+        """Rows through the state-transition map (:func:`.mapping.map_perihelia`); t, state, outside, conv, diag."""
+        # _map_span and features are this module's names, looked up at each call, so that tests can replace them
+        return map_perihelia(self, rel_all, ref_rel, nodes, t_lin_all, span=_map_span, features=features)
 
     # --------------------------------------------------------------- interface
     def evaluate(self, observables, *, reference=None) -> Perihelion:
