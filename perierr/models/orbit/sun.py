@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import numbers
 from dataclasses import dataclass, field
 
 import astropy.coordinates as _coord
@@ -65,8 +66,9 @@ class SolarParameters:
     def __post_init__(self):
         for key in ("r0_pc", "z_pc", "v_circ_kms", "u_kms", "v_kms", "w_kms"):
             value = getattr(self, key)
-            if not isinstance(value, int | float) or not math.isfinite(value):
+            if isinstance(value, bool | np.bool_) or not isinstance(value, numbers.Real) or not math.isfinite(value):
                 raise SolarParameterError(key, value, "expected a finite number (a solar parameter)")
+            object.__setattr__(self, key, float(value))
         if self.r0_pc <= 0:
             raise SolarParameterError("r0_pc", self.r0_pc, "expected a positive distance in pc (a solar parameter)")
 

@@ -318,3 +318,13 @@ def test_negligible_potential_gives_the_straight_line(ra, dec, plx, pmra, pmdec,
     assert ph.distance_pc[0] == pytest.approx(sl.distance_pc[0], rel=1e-7, abs=1e-7)
     assert ph.time_myr[0] == pytest.approx(sl.time_myr[0], rel=1e-7, abs=1e-9)
     assert ph.speed_kms[0] == pytest.approx(sl.speed_kms[0], rel=1e-9)
+
+
+def test_solar_parameters_take_numpy_numbers_and_refuse_booleans():
+    # a numpy integer is a number (numbers.Real, PEP 3141); a boolean is not a velocity
+    from perierr.models.orbit.sun import SolarParameterError, get_solar_parameters
+
+    sun = get_solar_parameters().replace(r0_pc=np.int64(8100))
+    assert sun.r0_pc == 8100.0 and isinstance(sun.r0_pc, float)
+    with pytest.raises(SolarParameterError, match="u_kms = True: expected a finite number"):
+        get_solar_parameters().replace(u_kms=True)
