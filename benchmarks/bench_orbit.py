@@ -32,10 +32,10 @@ from galpy.orbit import Orbit
 from galpy.potential import MWPotential2014
 
 import perierr
-from perierr._constants import AU_PER_PC
 from perierr.models import StraightLine
 from perierr.models.orbit import OrbitModel
 from perierr.star import ObservedStar
+from perierr.units import AU_PER_PC
 
 GALPY_KW = dict(ro=8.0, vo=220.0, zo=0.0208, solarmotion="schoenrich")
 

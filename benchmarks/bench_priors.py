@@ -28,9 +28,10 @@ from perierr import ObservedStar  # noqa: E402
 from perierr.errors import PerierrWarning  # noqa: E402
 from perierr.models import StraightLine  # noqa: E402
 from perierr.priors import ExponentialDensity, posterior_samples, sample_posterior_mcmc  # noqa: E402
-from perierr.priors.reweight import importance_weights  # noqa: E402
 from perierr.propagate.montecarlo import monte_carlo, propagate_samples  # noqa: E402
 from perierr.sampling.gaussian import draw_gaussian  # noqa: E402
+from perierr.sampling.reweight import importance_weights  # noqa: E402
+from perierr.units import PARALLAX  # noqa: E402
 
 COMMAND = "/work/venv/bin/python benchmarks/bench_priors.py"
 
@@ -61,7 +62,7 @@ def bench_reweight(n, repeats):
         s = posterior_samples(star, prior, n=n, seed=1, method="reweight")
         propagate_samples(s, model, reference=star.mean)
 
-    plx = np.ascontiguousarray(draw_gaussian(star.mean, star.cov, n, np.random.default_rng(1))[:, 2])
+    plx = np.ascontiguousarray(draw_gaussian(star.mean, star.cov, n, np.random.default_rng(1))[:, PARALLAX])
 
     def weights_only():
         importance_weights(plx, prior)

@@ -5,34 +5,77 @@ their correlations) and radial velocity into the time, distance and speed of
 its closest approach to the Sun, with linearized and Monte Carlo intervals and
 each measurement's share of the error. It predicts statistical encounters, not
 impact hazards.
+
+The names a user needs are here. Those that pull in heavier machinery (the
+orbit model, the planner, the global budget) are loaded on first use, as are
+the subpackages :mod:`perierr.plan`, :mod:`perierr.priors`,
+:mod:`perierr.budget` and :mod:`perierr.models`, so ``import perierr`` stays
+quick and ``perierr.plan.rank_measurements`` works after it.
 """
 
-__version__ = "0.1.0"
+import importlib
 
-from .analysis import Analysis, analyze  # noqa: E402
-from .budget import LinearBudget, linear_budget  # noqa: E402
-from .errors import InputError, PerierrWarning  # noqa: E402
-from .models import ForwardModel, Perihelion, StraightLine, make_model  # noqa: E402
-from .propagate import LinearResult, MonteCarloResult, linearize, monte_carlo  # noqa: E402
-from .star import ObservedStar, read_catalogue, read_star_file  # noqa: E402
+from ._version import __version__
+from .analysis import Analysis, analyze
+from .budget import LinearBudget, linear_budget
+from .errors import InputError, PerierrError, PerierrWarning
+from .models import ForwardModel, Perihelion, StraightLine, make_model
+from .propagate import LinearResult, MonteCarloResult, linearize, monte_carlo
+from .star import ObservedStar, read_catalogue, read_star_file
+
+#: Names loaded on first use (PEP 562): name -> the module that defines it.
+_LAZY = {
+    "GlobalBudget": "perierr.budget",
+    "OrbitModel": "perierr.models.orbit",
+    "PhotonLimitedCost": "perierr.plan",
+    "Potential": "perierr.models.orbit",
+    "get_solar_parameters": "perierr.models.orbit",
+    "global_budget": "perierr.budget",
+    "rank_measurements": "perierr.plan",
+}
+
+#: Subpackages reachable as attributes of ``perierr`` without importing them first.
+_SUBPACKAGES = ("budget", "calibration", "models", "plan", "priors", "propagate", "report", "sampling", "star")
 
 __all__ = [
     "Analysis",
     "ForwardModel",
+    "GlobalBudget",
     "InputError",
     "LinearBudget",
     "LinearResult",
     "MonteCarloResult",
     "ObservedStar",
+    "OrbitModel",
     "Perihelion",
+    "PerierrError",
     "PerierrWarning",
+    "PhotonLimitedCost",
+    "Potential",
     "StraightLine",
     "__version__",
     "analyze",
+    "get_solar_parameters",
+    "global_budget",
     "linear_budget",
     "linearize",
     "make_model",
     "monte_carlo",
+    "rank_measurements",
     "read_catalogue",
     "read_star_file",
 ]
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value  # found once, then an ordinary attribute
+        return value
+    if name in _SUBPACKAGES:
+        return importlib.import_module(f"{__name__}.{name}")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY) | set(_SUBPACKAGES))

@@ -11,12 +11,11 @@ import sys
 import warnings
 from pathlib import Path
 
-from . import __version__
+from ._version import __version__
 from .analysis import analyze
 from .demo import demo_path
-from .errors import InputError, PerierrWarning
+from .errors import InputError, PerierrError, PerierrWarning
 from .models import MODEL_NAMES, make_model
-from .priors.mcmc import ChainTooShortError
 from .report import format_analysis, write_json
 from .star import read_star_file
 from .thresholds import DEFAULT_THRESHOLDS
@@ -195,27 +194,9 @@ def _screen(path, out) -> None:
 
 
 def _print_screen(rows, path, out) -> None:
-    from .screen import nearest_first
+    from .report.screen_text import format_screen
 
-    print(f"Screening {len(rows)} rows of {Path(path).name} (straight-line model, nominal ± linear 1σ)", file=out)
-    print(f"  {'row':>3}  {'star':<24}{'t_ph [Myr]':>18}{'d_ph [pc]':>20}{'d_ph [au]':>12}  σ_ϖ/ϖ", file=out)
-    weak = False
-    for r in nearest_first(rows):
-        if r.status != "ok":
-            print(f"  {r.row:>3}  {r.name:<24}{r.status}", file=out)
-            continue
-        flag = "  (weak: use a distance prior)" if r.parallax_fraction > 0.2 else ""
-        weak = weak or bool(flag)
-        print(
-            f"  {r.row:>3}  {r.name:<24}{r.time_myr:>+10.4f} ± {r.time_sigma:<6.2g}"
-            f"{r.distance_pc:>11.4g} ± {r.distance_sigma:<6.2g}{r.distance_au:>12,.0f}"
-            f"  {r.parallax_fraction:.1%}{flag}",
-            file=out,
-        )
-        for note in r.notes:
-            print(f"         note: {note}", file=out)
-    if weak:
-        print("  (σ_ϖ/ϖ > 20 %: 1/parallax is a biased distance; see perierr run --distance-prior)", file=out)
+    print(format_screen(rows, Path(path).name), file=out)
 
 
 def _add_plan_parser(sub) -> None:
@@ -370,7 +351,7 @@ def main(argv=None, out=None) -> int:
         _prepare_outputs(args)
         _check_distances(args)
         _dispatch(args, out)
-    except (InputError, ValueError, ChainTooShortError) as exc:
+    except PerierrError as exc:  # perierr's own refusals; a stray ValueError is a bug (the last resort below)
         return _fail(f"error: {exc}", EXIT_INPUT)
     except KeyboardInterrupt:
         return _fail("interrupted (Ctrl-C); no result was written", EXIT_INTERRUPTED)

@@ -1,9 +1,36 @@
-"""Exception and warning types raised by perierr."""
+"""Exception and warning types raised by perierr.
 
-__all__ = ["InputError", "PerierrWarning"]
+Every exception perierr raises on purpose derives from :class:`PerierrError`,
+so a caller can tell perierr's refusals from a bug (a stray ``ValueError`` or
+``TypeError``). Problems with what the user gave derive from
+:class:`InputError`, which is also a ``ValueError``::
+
+    PerierrError
+    ├── InputError (also ValueError): field, value, expected, row
+    │   ├── FocusingError            perierr.models.focusing
+    │   ├── OrbitOptionError         perierr.models.orbit.model
+    │   ├── PotentialParameterError  perierr.models.orbit.potential_base
+    │   └── SolarParameterError      perierr.models.orbit.sun
+    └── ChainTooShortError (also RuntimeError)   perierr.sampling.mcmc
+
+Examples
+--------
+>>> from perierr.errors import InputError, PerierrError
+>>> err = InputError("parallax_error", -0.1, "expected an error >= 0 mas")
+>>> print(err)
+parallax_error = -0.1: expected an error >= 0 mas
+>>> isinstance(err, PerierrError) and isinstance(err, ValueError)
+True
+"""
+
+__all__ = ["InputError", "PerierrError", "PerierrWarning"]
 
 
-class InputError(ValueError):
+class PerierrError(Exception):
+    """Base class of every exception perierr raises on purpose (not a bug)."""
+
+
+class InputError(PerierrError, ValueError):
     """Bad user input: names the field (and row), the value and what was expected.
 
     Parameters

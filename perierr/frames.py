@@ -3,7 +3,7 @@
 The Cartesian axes are those of the ICRS (x towards ra = dec = 0, z towards
 the north celestial pole), centred on the Sun. Positions are in pc and
 velocities in km/s. Observables follow the fixed order of
-:data:`perierr._constants.OBSERVABLES` in internal units.
+:data:`perierr.units.OBSERVABLES` in internal units.
 
 References
 ----------
@@ -16,8 +16,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._constants import KMS_PER_MASYR_AT_1MAS as _K
-from ._constants import PC_PER_MAS_INVERSE as _A
+from .units import KMS_PER_MASYR_AT_1MAS as _K
+from .units import MAS_PC as _A
 
 __all__ = ["observables_to_cartesian", "cartesian_jacobian", "cartesian_to_observables"]
 

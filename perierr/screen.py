@@ -11,12 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._constants import AU_PER_PC
+from .cautions import is_head_on
 from .errors import InputError, PerierrWarning
 from .models import ForwardModel, StraightLine
-from .models.straight import HEAD_ON_RELATIVE
 from .propagate.linear import linearize
 from .star import ObservedStar
+from .units import AU_PER_PC, PARALLAX
 
 __all__ = ["ScreenRow", "iter_screen", "screen_catalogue"]
 
@@ -115,8 +115,8 @@ def _screen_row(i, row, colnames, model) -> ScreenRow:
         return ScreenRow(i, star.name, "not computed: the linearized perihelion is not a finite number")
     t, d, v = (float(x) for x in lin.value)
     st, sd = float(lin.sigma[0]), float(lin.sigma[1])
-    notes = tuple(n.removeprefix(f"row {i}: ") for n in star.notes if not n.endswith("held exact"))
-    if d <= HEAD_ON_RELATIVE * 1000.0 / star.mean[2]:
+    notes = tuple(c.message for c in star.cautions if c.severity == "caution")
+    if is_head_on(d, star.mean[PARALLAX]):
         notes += ("the nominal path passes through the Sun: the linear sigma of d_ph is undefined (shown as 0)",)
     return ScreenRow(i, star.name, "ok", t, st, d, sd, v, star.fractional_parallax_error, notes)
 

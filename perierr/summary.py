@@ -1,7 +1,10 @@
 """Summaries of sampled outputs: quantiles with Monte Carlo errors, thresholds.
 
 All functions accept optional weights, so plain Monte Carlo, importance
-reweighting and MCMC samples flow through the same code.
+reweighting and MCMC samples flow through the same code. The probability of
+passing within a threshold (:class:`ThresholdProbability`,
+:func:`threshold_probability`) lives in :mod:`perierr.thresholds` and is
+re-exported here.
 """
 
 from __future__ import annotations
@@ -11,10 +14,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .errors import InputError
+from .thresholds import ThresholdProbability, threshold_probability
+
 __all__ = [
     "DEFAULT_LEVELS",
+    "LEVEL_TOLERANCE",
     "OutputSummary",
     "ThresholdProbability",
+    "canonical_level",
     "summarize",
     "threshold_probability",
     "weighted_quantiles",
@@ -22,6 +30,19 @@ __all__ = [
 
 #: Quantile levels always reported.
 DEFAULT_LEVELS = (0.05, 0.16, 0.5, 0.84, 0.95)
+
+#: Decimals a quantile level is rounded to when a summary stores it (the key of ``quantiles``).
+LEVEL_DECIMALS = 12
+
+#: Two levels closer than this are the same level when a quantile is looked up: it absorbs the float noise of a
+#: level computed from others (``0.5 - 0.9 / 2`` differs from 0.05 by about 1e-17) and the rounding to
+#: ``LEVEL_DECIMALS``, and is far below any spacing of levels worth reporting.
+LEVEL_TOLERANCE = 1e-9
+
+
+def canonical_level(q) -> float:
+    """A quantile level as summaries store it: a float rounded to :data:`LEVEL_DECIMALS` decimals."""
+    return round(float(q), LEVEL_DECIMALS)
 
 
 def level_key(q: float) -> str:
@@ -171,9 +192,10 @@ class OutputSummary:
     mean_se, std_se : float
         Monte Carlo standard errors of the mean and the standard deviation.
     quantiles : dict
-        Level -> value.
+        Level (rounded by :func:`canonical_level`) -> value. Look a level up
+        with :meth:`quantile`, which tolerates float noise in the level.
     quantile_se : dict
-        Level -> Monte Carlo standard error of that quantile.
+        Level -> Monte Carlo standard error of that quantile (:meth:`quantile_error`).
     skewness : float
         0 where the spread is below rounding (all draws equal to within 1e-12).
     note : str
@@ -195,13 +217,33 @@ class OutputSummary:
     quantile_se: dict = field(default_factory=dict)
     note: str = ""
 
+    def _stored_level(self, level) -> float:
+        """The stored level within :data:`LEVEL_TOLERANCE` of ``level`` (the nearest one), or a KeyError."""
+        q = float(level)
+        if self.quantiles:
+            near = min(self.quantiles, key=lambda k: abs(k - q))
+            if abs(near - q) <= LEVEL_TOLERANCE:
+                return near
+        have = ", ".join(f"{k:g}" for k in sorted(self.quantiles))
+        raise KeyError(f"quantile {q:.10g} was not computed (have {have}); pass it in levels=")
+
+    def quantile(self, level: float) -> float:
+        """The quantile at ``level``: the stored level within :data:`LEVEL_TOLERANCE` (1e-9) of it.
+
+        Raises
+        ------
+        KeyError
+            Naming the level and the levels that were computed, when none lies that close.
+        """
+        return self.quantiles[self._stored_level(level)]
+
+    def quantile_error(self, level: float) -> float:
+        """Monte Carlo standard error of the quantile at ``level`` (looked up as in :meth:`quantile`)."""
+        return self.quantile_se[self._stored_level(level)]
+
     def interval(self, level: float = 0.9) -> tuple:
-        """Central interval holding ``level`` of the samples, from stored quantiles."""
-        lo, hi = round(0.5 - level / 2, 10), round(0.5 + level / 2, 10)
-        for q in (lo, hi):
-            if q not in self.quantiles:
-                have = ", ".join(f"{k:g}" for k in sorted(self.quantiles))
-                raise KeyError(f"quantile {q:g} was not computed (have {have}); pass it in levels=")
+        """Central interval holding ``level`` of the samples, from stored quantiles (see :meth:`quantile`)."""
+        lo, hi = self._stored_level(0.5 - level / 2), self._stored_level(0.5 + level / 2)
         return self.quantiles[lo], self.quantiles[hi]
 
     def to_dict(self) -> dict:
@@ -270,6 +312,20 @@ def _shape(x, w, n_eff, mean, m2, m3, m4) -> tuple:
     return std, float(m3 / root3), float(m4 / m2sq), ""
 
 
+def _checked_levels(levels) -> tuple:
+    """Quantile levels as stored (:func:`canonical_level`), sorted, with 0.5; InputError for one outside (0, 1)."""
+    rounded = []
+    for q in levels:
+        try:
+            rounded.append((q, canonical_level(q)))
+        except (TypeError, ValueError):
+            raise InputError("levels", q, "expected quantile levels: numbers strictly between 0 and 1") from None
+    for q, r in rounded:
+        if not 0.0 < r < 1.0:
+            raise InputError("levels", q, "expected a quantile level strictly between 0 and 1")
+    return tuple(sorted({r for _, r in rounded} | {0.5}))
+
+
 def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:
     """Summarize samples of one output.
 
@@ -288,10 +344,7 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
     x = np.asarray(x, dtype=float)
     if x.size == 0:
         raise ValueError(f"{name}: no samples to summarize")
-    levels = tuple(sorted({round(float(q), 12) for q in levels} | {0.5}))
-    for q in levels:
-        if not 0.0 < q < 1.0:
-            raise ValueError(f"quantile level {q!r}: expected a number strictly between 0 and 1")
+    levels = _checked_levels(levels)
     w = None if weights is None else np.asarray(weights, dtype=float)
     n_eff, mean, m2, m3, m4 = _moments(x, w)
     std, skew, kurt, note = _shape(x, w, n_eff, mean, m2, m3, m4)
@@ -318,75 +371,3 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
         quantile_se={q: 0.0 if a == b else float(0.5 * (b - a)) for q, a, b in zip(levels, lo, hi)},
         note=note,
     )
-
-
-@dataclass(frozen=True)
-class ThresholdProbability:
-    """Probability that the perihelion distance is below a threshold.
-
-    Attributes
-    ----------
-    label : str
-        The threshold as the user gave it (e.g. ``"20000 au"``).
-    distance_pc : float
-    probability : float
-    se : float
-        Binomial Monte Carlo standard error ``sqrt(p (1 - p) / n_eff)``.
-    upper95 : float
-        95 % upper bound on the probability when no sample passed
-        (``1 - 0.05^(1/n_eff)``), else ``min(1, probability + 2 se)``.
-    count : int
-        Samples below the threshold.
-    lower95 : float
-        95 % lower bound when every sample passed (``0.05^(1/n_eff)``), else
-        ``max(0, probability - 2 se)``.
-    """
-
-    label: str
-    distance_pc: float
-    probability: float
-    se: float
-    upper95: float
-    count: int
-    lower95: float = 0.0
-
-    def to_dict(self) -> dict:
-        """Plain dict for JSON."""
-        return {
-            "threshold": self.label,
-            "distance_pc": self.distance_pc,
-            "probability": self.probability,
-            "mc_error": self.se,
-            "upper95": self.upper95,
-            "lower95": self.lower95,
-            "count": self.count,
-        }
-
-
-def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> ThresholdProbability:
-    """P(d_ph < threshold) over all samples.
-
-    Parameters
-    ----------
-    distance_pc : array_like, shape (n,)
-        Perihelion distance of every sample; samples whose distance is
-        unbounded (parallax <= 0) carry ``inf`` and so count as not passing.
-    threshold_pc : float
-    label : str
-    weights : array_like, shape (n,), optional
-    """
-    d = np.asarray(distance_pc)
-    below = d < threshold_pc
-    count = int(np.count_nonzero(below))
-    if weights is None:
-        n_eff = float(d.size)
-        p = count / n_eff
-    else:
-        w = np.asarray(weights, dtype=float)
-        wsum = w.sum()
-        p = min(1.0, float(np.dot(below, w) / wsum))  # dot vs sum rounding can exceed 1 by 1 ulp
-        n_eff = float(wsum**2 / np.dot(w, w))
-    se = math.sqrt(p * (1 - p) / n_eff)
-    upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
-    lower = 0.05 ** (1.0 / n_eff) if count == d.size else max(0.0, p - 2 * se)
-    return ThresholdProbability(label, float(threshold_pc), p, se, upper, count, lower)

@@ -616,7 +616,7 @@ def test_nonpositive_parallax_under_a_prior_and_mcmc_delivery():
     assert msg.startswith("the parallax is <= 0: the distance, and with it the perihelion, is dominated")
     assert one(a.warnings, "no linearized columns or linear budget").endswith("the posterior under the distance prior")
     got = a.monte_carlo.n
-    assert got < 12_000 and a.prior["n_delivered"] == got
+    assert got < 12_000 and a.prior.n_delivered == got
     msg = one(a.warnings, "MCMC delivered")
     assert msg.startswith(f"MCMC delivered {got:,} of the 12,000 draws asked for")
     assert f"effective size {a.monte_carlo.samples.effective_size:,.0f}" in msg

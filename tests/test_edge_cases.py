@@ -156,10 +156,10 @@ def test_orbit_model_under_a_prior_with_a_negative_parallax():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         r = analyze(s, model="orbit", distance_prior="edsd:L=1350pc", n_samples=1000, seed=1)
-    assert r.linear is None and r.prior["method"] == "mcmc"
+    assert r.linear is None and r.prior.method == "mcmc"
     d = r.monte_carlo.summaries["distance_pc"]
     assert np.isfinite(d.median) and d.quantiles[0.16] < d.median < d.quantiles[0.84]
-    assert r.monte_carlo.n == r.prior["n_delivered"]
+    assert r.monte_carlo.n == r.prior.n_delivered
 
 
 def test_focused_nominal_value_does_not_depend_on_the_seed():

@@ -7,10 +7,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from perierr import _constants as c
+from perierr import units as c
 from perierr.frames import cartesian_jacobian, cartesian_to_observables, observables_to_cartesian
-
-from .conftest import random_observables
+from tests.conftest import random_observables
 
 
 def test_cartesian_matches_astropy_skycoord():

@@ -299,6 +299,8 @@ CASES = [
          extra=("--parallax-offset", "nan")),
     Case("distance-prior-garbage", star_fields(), {"*": refused("prior", "nonsense")}, modes=("run",),
          extra=("--distance-prior", "nonsense:L=-3")),
+    Case("distance-prior-below-any-star", star_fields(), {"*": refused("distance prior", "0.0005", "below 0.001 pc")},
+         modes=("run",), extra=("--distance-prior", "uniform:r_max=0.0005pc")),  # was a NaN-to-integer crash
     Case("measure-garbage", star_fields(), {"*": refused("measure", "garbage")}, modes=("plan",),
          extra=("--measure", "garbage")),
     Case("measure-negative", star_fields(), {"*": refused("radial_velocity", "-0.1")}, modes=("plan",),

@@ -19,7 +19,7 @@ def test_readme_python_blocks_run_in_order():
             exec(compile(block, str(README), "exec"), namespace)  # noqa: S102
     # the first example's star is the demo star: the MC median of d_ph (10^6 draws, MC error ~1 au)
     # matches the straight-line value at the nominal inputs, 18,956 au, within 10 au
-    from perierr._constants import AU_PER_PC  # from astropy (IAU pc in au)
+    from perierr.units import AU_PER_PC  # from astropy (IAU pc in au)
 
     d = namespace["d"]
     assert abs(d.median * AU_PER_PC - 18_956) < 10

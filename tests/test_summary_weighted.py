@@ -9,8 +9,8 @@ from scipy import stats
 
 from perierr import ObservedStar
 from perierr.priors import ExponentialDensity, UniformDensity
-from perierr.priors.reweight import importance_weights, reweight
 from perierr.sampling.gaussian import draw_gaussian
+from perierr.sampling.reweight import importance_weights, reweight
 from perierr.summary import _binned_weighted_quantiles, _stable_sorted, summarize, weighted_quantiles
 
 PROBS = np.array([0.001, 0.05, 0.16, 0.4999, 0.5, 0.5001, 0.84, 0.95, 0.999])

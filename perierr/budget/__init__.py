@@ -2,8 +2,9 @@
 
 One engine for every budget: :mod:`.game` (subsets, exact weights, groups,
 conditional Gaussians in correlation coordinates), :mod:`.linear` (closed form
-of the linearized model, batched over stars) and :mod:`.global_mc` (Monte Carlo
-estimate from the model itself, with bootstrap intervals).
+of the linearized model, batched over stars), :mod:`.estimator` (the Monte Carlo
+Shapley estimator with bootstrap intervals) and :mod:`.global_mc` (that estimate
+from the perihelion model itself).
 """
 
 from .game import group_masks, shapley_values

@@ -17,7 +17,9 @@ All subsets share one set of standard-normal draws (common random numbers), so
 differences of costs are not Monte Carlo noise; intervals come from a
 bootstrap over the outer draws, for all subsets jointly. The conditional
 draws are made in correlation coordinates (:func:`.game.conditional_map`), so
-the estimate does not depend on the units of the inputs.
+the estimate does not depend on the units of the inputs. The estimator itself,
+for any vectorized function of Gaussian inputs, is :mod:`.estimator`; this
+module applies it to a star's perihelion.
 
 **The 90 % interval width** is budgeted with the same game but the cost
 ``c_W(u) = E[W90(Y | X_-u)]``: the expected width of the central 90 % interval
@@ -45,11 +47,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError
 from ..models.base import ForwardModel
-from ..sampling.gaussian import psd_factor, resolve_seed
-from .game import conditional_map, group_masks, members, shapley_values, standardize
+from ..sampling.gaussian import resolve_seed
+from ..units import OBSERVABLES, OUTPUTS, PARALLAX
+from .estimator import ShapleyEstimate, _estimate, conditional_costs, shapley_gaussian
+from .game import group_masks, members, shapley_values
 from .linear import clip_rounding, extend_inputs, linear_costs
 
 __all__ = [
@@ -80,158 +83,6 @@ DEFAULT_GROUPS = {
 }
 
 _BUDGET_OUTPUTS = ("time_myr", "distance_pc")
-
-
-@dataclass(frozen=True)
-class ShapleyEstimate:
-    """Shapley shares of one game (inputs or groups) for several outputs.
-
-    Attributes
-    ----------
-    players : tuple of str
-    outputs : tuple of str
-    shares : ndarray, shape (m, k)
-        Shares of each output's total (rows sum to 1).
-    low, high : ndarray, shape (m, k)
-        Bootstrap percentile interval of each share (``confidence`` level).
-    se : ndarray, shape (m, k)
-        Bootstrap standard error.
-    total : ndarray, shape (m,)
-        The quantity shared out (Var(Y) or the 90 % width), in output units
-        (squared for the variance).
-    confidence : float
-    """
-
-    players: tuple
-    outputs: tuple
-    shares: np.ndarray
-    low: np.ndarray
-    high: np.ndarray
-    se: np.ndarray
-    total: np.ndarray
-    confidence: float = 0.95
-
-    def share(self, output: str) -> dict:
-        """``{player: share}`` for one output."""
-        return dict(zip(self.players, self.shares[self.outputs.index(output)].tolist()))
-
-    def to_dict(self) -> dict:
-        """``{output: {player: {"share", "low", "high", "se"}, "total": ...}}``, ``players`` and ``confidence``."""
-        out = {}
-        for j, q in enumerate(self.outputs):
-            row = {
-                p: {
-                    "share": float(self.shares[j, i]),
-                    "low": float(self.low[j, i]),
-                    "high": float(self.high[j, i]),
-                    "se": float(self.se[j, i]),
-                }
-                for i, p in enumerate(self.players)
-            }
-            row["total"] = float(self.total[j])
-            out[q] = row
-        out["players"] = list(self.players)
-        out["confidence"] = self.confidence
-        return out
-
-
-def conditional_costs(func, mean, cov, *, n_outer, n_inner, rng, statistic="variance", level=0.9):
-    """Per-outer-draw conditional statistics for every subset of inputs.
-
-    Parameters
-    ----------
-    func : callable
-        ``func(x)`` with ``x`` of shape (n, k) returns shape (n, m).
-    mean : array_like, shape (k,)
-    cov : array_like, shape (k, k)
-    n_outer, n_inner : int
-        Outer draws of ``X_-u`` and inner draws of ``X_u | X_-u`` per outer draw.
-    rng : numpy.random.Generator
-    statistic : {"variance", "width"}
-        Inner sample variance, or the width of the central ``level`` interval.
-    level : float
-
-    Returns
-    -------
-    ndarray, shape (2**k, m, n_outer)
-        Conditional statistic of each output for each subset and outer draw
-        (row 0, the empty subset, is 0).
-    """
-    mu = np.asarray(mean, dtype=float)
-    sigma, corr = standardize(cov)
-    k = mu.size
-    z_outer = rng.standard_normal((n_outer, k)) @ psd_factor(corr).T
-    z_inner = rng.standard_normal((n_outer, n_inner, k))
-    stats = None
-    for mask in range(1, 2**k):
-        u, rest, gain, low = conditional_map(corr, mask)
-        z = np.broadcast_to(z_outer[:, None, :], (n_outer, n_inner, k)).copy()
-        z[:, :, u] = (z_outer[:, rest] @ gain.T)[:, None, :] + z_inner[:, :, u] @ low.T
-        x = mu + sigma * z
-        y = np.asarray(func(x.reshape(-1, k)), dtype=float).reshape(n_outer, n_inner, -1)
-        if stats is None:
-            stats = np.zeros((2**k, y.shape[-1], n_outer))
-        if statistic == "variance":
-            stats[mask] = y.var(axis=1, ddof=1).T
-        else:
-            # median-unbiased sample quantiles (Hyndman & Fan 1996, type 8): numpy's default (type 7) sits
-            # inside the true quantiles for small inner samples (1.2 % narrow at 256 draws of a Gaussian)
-            lo, hi = np.quantile(y, [0.5 - level / 2, 0.5 + level / 2], axis=1, method="median_unbiased")
-            stats[mask] = (hi - lo).T
-    return stats
-
-
-def _estimate(stats, players, outputs, rng, n_boot, confidence, masks=None) -> ShapleyEstimate:
-    """Shares and bootstrap intervals from per-outer statistics (2**k, m, n_outer)."""
-    n_outer = stats.shape[-1]
-    costs = stats.mean(axis=-1)  # (2**k, m)
-    counts = rng.multinomial(n_outer, np.full(n_outer, 1.0 / n_outer), size=n_boot)  # (B, n)
-    boot = stats @ counts.T / n_outer  # (2**k, m, B)
-    if masks is not None:
-        costs, boot = costs[masks], boot[masks]
-    eff, eff_b = shapley_values(costs), shapley_values(boot)  # (k, m), (k, m, B)
-    total, total_b = costs[-1], boot[-1]
-    shares = (eff / np.where(total > 0, total, 1.0)).T
-    shares_b = eff_b / np.where(total_b > 0, total_b, 1.0)
-    a = 100 * (1 - confidence) / 2
-    low, high = np.percentile(shares_b, [a, 100 - a], axis=-1)
-    se = shares_b.std(axis=-1, ddof=1).T
-    return ShapleyEstimate(tuple(players), tuple(outputs), shares, low.T, high.T, se, total, confidence)
-
-
-def shapley_gaussian(
-    func,
-    mean,
-    cov,
-    *,
-    players,
-    outputs,
-    n_outer=2000,
-    n_inner=3,
-    n_boot=200,
-    seed=None,
-    statistic="variance",
-    confidence=0.95,
-) -> ShapleyEstimate:
-    """Shapley shares of any vectorized function of Gaussian inputs.
-
-    Parameters
-    ----------
-    func : callable
-        ``(n, k) -> (n, m)``.
-    mean : array_like, shape (k,)
-    cov : array_like, shape (k, k)
-    players : sequence of str, length k
-    outputs : sequence of str, length m
-    n_outer, n_inner, n_boot : int
-    seed : int, numpy.random.Generator or None
-    statistic : {"variance", "width"}
-    confidence : float
-        Level of the bootstrap percentile intervals.
-    """
-    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(resolve_seed(seed))
-    stats = conditional_costs(func, mean, cov, n_outer=n_outer, n_inner=n_inner, rng=rng, statistic=statistic)
-    return _estimate(stats, players, outputs, rng, n_boot, confidence)
 
 
 @dataclass(frozen=True)
@@ -345,7 +196,7 @@ def global_budget(
     width_inner: int = 256,
     n_boot: int = 200,
     groups=None,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     confidence: float = 0.95,
 ) -> GlobalBudget:
     """Global (Monte Carlo) Shapley budget of a star's perihelion.
@@ -367,7 +218,8 @@ def global_budget(
         Bootstrap resamples of the outer draws.
     groups : dict, optional
         Partition name -> {group name: input names}; default :data:`DEFAULT_GROUPS`.
-    seed : int or None
+    seed : int, numpy.random.Generator or None
+        One seed for every draw; the integer is recorded (see :func:`perierr.sampling.gaussian.resolve_seed`).
     confidence : float
 
     Returns
@@ -380,41 +232,21 @@ def global_budget(
         If the nominal parallax is <= 0, or so uncertain that draws reach
         parallax <= 0 (the outputs are then undefined for those draws).
     """
-    for q in outputs:
-        if q not in OUTPUTS:
-            raise InputError("outputs", q, f"expected names from {OUTPUTS}")
-    if not star.mean[2] > 0:
-        raise InputError("parallax", float(star.mean[2]), "the global budget inverts the parallax; expected > 0")
-    z = star.mean[2] / star.sigma[2] if star.sigma[2] > 0 else math.inf
-    if z < 5.5:
-        raise InputError(
-            "parallax_error",
-            float(star.sigma[2]),
-            f"parallax / error = {z:.2g} < 5.5: conditional draws would reach parallax <= 0 where "
-            "the perihelion is undefined; use the linear budget or a distance prior",
-        )
+    _check_budget_inputs(star, outputs)
     seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
     cols = [OUTPUTS.index(q) for q in outputs]
     players, mean, cov, func, grad = _game_inputs(star, model, cols)
     stats_v = conditional_costs(func, mean, cov, n_outer=n_outer, n_inner=n_inner, rng=rng)
     variance = _estimate(stats_v, players, outputs, rng, n_boot, confidence)
-    group_est = {}
-    for name, partition in (DEFAULT_GROUPS if groups is None else groups).items():
-        partition = dict(partition)
-        for extra in players[len(OBSERVABLES) :]:
-            partition.setdefault(extra, (extra,))
-        names, masks = group_masks(players, partition)
-        group_est[name] = _estimate(stats_v, names, outputs, rng, n_boot, confidence, masks)
+    group_est = _group_estimates(stats_v, players, outputs, groups, rng, n_boot, confidence)
     width_est = None
     if width:
         stats_w = conditional_costs(
             func, mean, cov, n_outer=width_outer, n_inner=width_inner, rng=rng, statistic="width"
         )
         width_est = _estimate(stats_w, players, outputs, rng, n_boot, confidence)
-    lin = linear_costs(grad, cov)
-    wcost = 2 * Z90 * np.sqrt(lin)
-    lin_var, lin_w = (clip_rounding((shapley_values(c) / np.where(c[-1] > 0, c[-1], 1.0)).T) for c in (lin, wcost))
+    lin_var, lin_w = _linear_shares(grad, cov)
     n_subsets = members(len(players)).shape[0] - 1
     settings = {
         "seed": seed,
@@ -426,3 +258,39 @@ def global_budget(
         "model_calls": n_subsets * (n_outer * n_inner + (width_outer * width_inner if width else 0)),
     }
     return GlobalBudget(variance, width_est, group_est, lin_var, lin_w, settings)
+
+
+def _check_budget_inputs(star, outputs) -> None:
+    """Raise InputError for an unknown output or a parallax too uncertain for conditional draws."""
+    for q in outputs:
+        if q not in OUTPUTS:
+            raise InputError("outputs", q, f"expected names from {OUTPUTS}")
+    if not star.mean[PARALLAX] > 0:
+        raise InputError("parallax", float(star.mean[PARALLAX]), "the global budget inverts the parallax; expected > 0")
+    z = star.mean[PARALLAX] / star.sigma[PARALLAX] if star.sigma[PARALLAX] > 0 else math.inf
+    if z < 5.5:
+        raise InputError(
+            "parallax_error",
+            float(star.sigma[PARALLAX]),
+            f"parallax / error = {z:.2g} < 5.5: conditional draws would reach parallax <= 0 where "
+            "the perihelion is undefined; use the linear budget or a distance prior",
+        )
+
+
+def _group_estimates(stats_v, players, outputs, groups, rng, n_boot, confidence) -> dict:
+    """Variance shares of each partition's groups (an extra input such as the mass is a group of its own)."""
+    group_est = {}
+    for name, partition in (DEFAULT_GROUPS if groups is None else groups).items():
+        partition = dict(partition)
+        for extra in players[len(OBSERVABLES) :]:
+            partition.setdefault(extra, (extra,))
+        names, masks = group_masks(players, partition)
+        group_est[name] = _estimate(stats_v, names, outputs, rng, n_boot, confidence, masks)
+    return group_est
+
+
+def _linear_shares(grad, cov):
+    """Closed-form variance and 90 % width shares of the linearized model, shape (m, k) each."""
+    lin = linear_costs(grad, cov)
+    wcost = 2 * Z90 * np.sqrt(lin)
+    return tuple(clip_rounding((shapley_values(c) / np.where(c[-1] > 0, c[-1], 1.0)).T) for c in (lin, wcost))

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import OBSERVABLES
+from ..units import OBSERVABLES
 from .linear import LinearBudget, extend_inputs, linear_budget
 
 __all__ = ["budget_inputs", "star_budget"]

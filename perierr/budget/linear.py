@@ -29,8 +29,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError, PerierrWarning
+from ..units import OBSERVABLES, OUTPUTS
 from .game import explained_variance, shapley_values, standardize
 
 __all__ = ["LinearBudget", "extend_inputs", "linear_budget", "linear_costs", "linear_shapley"]
@@ -61,13 +61,18 @@ class LinearBudget:
         Linear variance of each output.
     inputs : tuple of str
         Names of the k inputs: the six observables, then any extra inputs
-        (``parallax_zero_point``, ``mass``).
+        (``parallax_zero_point``, ``mass``). Every budget names its columns.
     """
 
     shapley: np.ndarray
     covariance: np.ndarray
     variance: np.ndarray
-    inputs: tuple = OBSERVABLES
+    inputs: tuple
+
+    def __post_init__(self):
+        object.__setattr__(self, "inputs", tuple(self.inputs))
+        if np.shape(self.shapley)[-1] != len(self.inputs):
+            raise ValueError(f"a budget of {np.shape(self.shapley)[-1]} columns names {len(self.inputs)} inputs")
 
     def share(self, output: str, kind: str = "shapley") -> dict:
         """Shares of one output as ``{input: share}``; ``kind`` is "shapley" or "covariance"."""

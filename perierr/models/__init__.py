@@ -1,9 +1,20 @@
-"""Forward models from the six observables to perihelion time, distance and speed."""
+"""Forward models from the six observables to perihelion time, distance and speed.
 
+:mod:`.orbit` (Galactic orbits) and :mod:`.focusing` are loaded on first use
+(``perierr.models.orbit`` works without importing it first).
+"""
+
+import importlib
+
+from ..errors import InputError
 from .base import ForwardModel, Perihelion
+from .diagnostics import FocusingDiagnostics, ModelDiagnostics
 from .straight import StraightLine
 
-__all__ = ["ForwardModel", "Perihelion", "StraightLine", "MODEL_NAMES", "make_model"]
+__all__ = [
+    "FocusingDiagnostics", "ForwardModel", "ModelDiagnostics", "Perihelion", "StraightLine", "MODEL_NAMES",
+    "make_model",
+]  # fmt: skip
 
 #: Names accepted by :func:`make_model` (and the CLI's ``--model``).
 MODEL_NAMES = ("straight_line", "orbit")
@@ -19,19 +30,20 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
         (options of :class:`perierr.models.orbit.OrbitModel`, e.g.
         ``potential="MWPotential2014"``, ``sun="bovy2015"``, ``horizon_myr=20``).
     **options
-        Passed to the model's constructor, except ``star_mass_msun``,
-        ``star_mass_error_msun`` and ``rng``: if ``star_mass_msun`` is given the
-        model is wrapped in :class:`perierr.models.focusing.Focused`
-        (gravitational focusing by the star's mass, with either model).
+        Passed to the model's constructor, except ``star_mass_msun`` and
+        ``star_mass_error_msun``: if ``star_mass_msun`` is given the model is
+        wrapped in :class:`perierr.models.focusing.Focused` (gravitational
+        focusing by the star's mass, with either model). Mass draws take the
+        generator given to ``evaluate_draws`` (models hold no random state).
     """
-    focus = {k: options.pop(k) for k in ("star_mass_msun", "star_mass_error_msun", "rng")
+    focus = {k: options.pop(k) for k in ("star_mass_msun", "star_mass_error_msun")
              if k in options}
     if name == "straight_line":
         if options:
-            raise ValueError(
-                f"model 'straight_line' takes no option {sorted(options)[0]!r} "
-                f"(value {options[sorted(options)[0]]!r}); accepted: star_mass_msun, "
-                "star_mass_error_msun, rng"
+            key = sorted(options)[0]
+            raise InputError(
+                key, options[key], f"model 'straight_line' has no option {key!r}; accepted: star_mass_msun, "
+                "star_mass_error_msun"
             )
         model = StraightLine()
     elif name == "orbit":
@@ -39,13 +51,13 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
 
         unknown = sorted(set(options) - set(ORBIT_OPTIONS))
         if unknown:
-            raise ValueError(
-                f"model 'orbit' has no option {unknown[0]!r} (value {options[unknown[0]]!r}); "
-                f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun, rng"
+            raise InputError(
+                unknown[0], options[unknown[0]], f"model 'orbit' has no option {unknown[0]!r}; "
+                f"accepted: {', '.join(ORBIT_OPTIONS)}, star_mass_msun, star_mass_error_msun"
             )
         model = OrbitModel(**options)
     else:
-        raise ValueError(f"unknown model {name!r}; expected one of {', '.join(MODEL_NAMES)}")
+        raise InputError("model", name, f"unknown model; expected one of {', '.join(MODEL_NAMES)}")
     if "star_mass_msun" in focus:
         from .focusing import Focused
 
@@ -53,10 +65,14 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
             model,
             mass_msun=focus["star_mass_msun"],
             mass_error_msun=focus.get("star_mass_error_msun", 0.0),
-            rng=focus.get("rng"),
         )
     elif focus:
-        raise ValueError(
-            f"option {sorted(focus)[0]!r} needs star_mass_msun; got star_mass_msun=None"
-        )
+        key = sorted(focus)[0]
+        raise InputError(key, focus[key], "needs star_mass_msun (the star's mass in M_sun), which was not given")
     return model
+
+
+def __getattr__(name):
+    if name in ("orbit", "focusing"):  # submodules with heavier imports (scipy), loaded when asked for
+        return importlib.import_module(f"{__name__}.{name}")
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

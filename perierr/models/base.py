@@ -10,13 +10,14 @@ interface only, so a new model is a new small file.
 from __future__ import annotations
 
 import abc
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
-from .._constants import OUTPUTS
+from ..units import OUTPUTS
+from .diagnostics import ModelDiagnostics
 
-__all__ = ["ForwardModel", "Nuisance", "Perihelion"]
+__all__ = ["ForwardModel", "ModelDiagnostics", "Nuisance", "Perihelion"]
 
 
 @dataclass(frozen=True)
@@ -38,7 +39,7 @@ class Nuisance:
     variance: float
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class Perihelion:
     """Perihelion time, distance and speed for a batch of stars or samples.
 
@@ -55,15 +56,39 @@ class Perihelion:
         True where the model could not locate the perihelion properly (for
         example it lies outside an orbit model's search window). Flagged
         values are kept, never clipped or dropped.
-    info : dict
-        Model diagnostics (which method ran, fallbacks, map errors).
+    diagnostics : ModelDiagnostics
+        Model diagnostics (which method ran, fallbacks, map errors, focusing).
+
+    Parameters
+    ----------
+    time_myr, distance_pc, speed_kms, flags
+        As above.
+    info : dict, optional
+        Diagnostics as a plain mapping, for models that do not build a
+        :class:`ModelDiagnostics` (read with :meth:`ModelDiagnostics.from_info`).
+    diagnostics : ModelDiagnostics, optional
+        The typed record; give it or ``info``, not both.
     """
 
     time_myr: np.ndarray
     distance_pc: np.ndarray
     speed_kms: np.ndarray
-    flags: np.ndarray | None = None
-    info: dict = field(default_factory=dict)
+    flags: np.ndarray | None
+    diagnostics: ModelDiagnostics
+
+    def __init__(self, time_myr, distance_pc, speed_kms, flags=None, info=None, *, diagnostics=None):
+        if info is not None and diagnostics is not None:
+            raise ValueError("Perihelion takes the diagnostics once: give info (a mapping) or diagnostics, not both")
+        if diagnostics is None:
+            diagnostics = ModelDiagnostics.from_info(info)
+        for name, value in (("time_myr", time_myr), ("distance_pc", distance_pc), ("speed_kms", speed_kms),
+                            ("flags", flags), ("diagnostics", diagnostics)):  # fmt: skip
+            object.__setattr__(self, name, value)
+
+    @property
+    def info(self) -> dict:
+        """The diagnostics as a mapping (``diagnostics.to_dict()``, a fresh dict): the JSON-facing form."""
+        return self.diagnostics.to_dict()
 
     def as_array(self) -> np.ndarray:
         """Stack the outputs into shape ``(n, 3)`` in the order of ``OUTPUTS``."""
@@ -75,6 +100,31 @@ class Perihelion:
             raise KeyError(f"unknown output {name!r}; expected one of {OUTPUTS}")
         return getattr(self, name)
 
+    def aligned(self, valid) -> Perihelion:
+        """These rows (one per True of ``valid``) spread to one row per element of ``valid``.
+
+        Rows where ``valid`` is False get NaN outputs and a False flag (they
+        were not evaluated, so nothing is flagged); per-row diagnostics are
+        spread the same way.
+
+        Parameters
+        ----------
+        valid : ndarray of bool, shape (n,)
+        """
+        valid = np.asarray(valid, dtype=bool)
+
+        def spread(x):
+            out = np.full(valid.shape, np.nan)
+            out[valid] = x
+            return out
+
+        flags = None
+        if self.flags is not None:
+            flags = np.zeros(valid.shape, dtype=bool)
+            flags[valid] = self.flags
+        return Perihelion(spread(self.time_myr), spread(self.distance_pc), spread(self.speed_kms), flags,
+                          diagnostics=self.diagnostics.aligned(valid))
+
 
 class ForwardModel(abc.ABC):
     """Base class of forward models from observables to perihelion.
@@ -82,6 +132,17 @@ class ForwardModel(abc.ABC):
     Subclasses implement :meth:`evaluate`; they may override :meth:`jacobian`
     with an analytic form (the default is central finite differences) and
     :meth:`describe` to record their parameters in every output.
+
+    Two arguments, each with one meaning:
+
+    * ``reference`` is only the point to build a linearization around (the
+      orbit model's state-transition map); without one every row is
+      evaluated on its own. It never changes what is computed, only how.
+    * randomness enters only through :meth:`evaluate_draws`, whose explicit
+      ``rng`` draws the model's nuisance parameters (the star's mass under
+      focusing) for a Monte Carlo batch; :meth:`evaluate` keeps them at their
+      nominal values and :meth:`evaluate_nuisance` takes them as given
+      standard-normal deviates.
     """
 
     #: Short identifier written to the JSON ``model`` field.
@@ -89,7 +150,7 @@ class ForwardModel(abc.ABC):
 
     @abc.abstractmethod
     def evaluate(self, observables, *, reference=None) -> Perihelion:
-        """Perihelion of every row of ``observables``.
+        """Perihelion of every row of ``observables``, nuisance parameters at their nominal values.
 
         Parameters
         ----------
@@ -97,9 +158,32 @@ class ForwardModel(abc.ABC):
             Rows of (ra, dec, parallax, pmra, pmdec, radial_velocity) in
             internal units. Parallaxes must be positive.
         reference : array_like, shape (6,), optional
-            The nominal observables the rows scatter around. Models that
-            linearize around a nominal orbit use it; others ignore it.
+            The point to linearize around: the nominal observables the rows
+            scatter around. Models that build a map around a nominal orbit
+            use it (without it they evaluate every row on its own); others
+            ignore it.
         """
+
+    def evaluate_draws(self, observables, rng=None, *, reference=None) -> Perihelion:
+        """Perihelion of a Monte Carlo batch: each row with its own draw of the nuisance parameters.
+
+        Parameters
+        ----------
+        observables : array_like, shape (n, 6)
+            As in :meth:`evaluate`.
+        rng : numpy.random.Generator or None
+            Draws the model's nuisance parameters, one per row (the only
+            randomness a model uses). None keeps them at their nominal values,
+            as :meth:`evaluate` does.
+        reference : array_like, shape (6,), optional
+            As in :meth:`evaluate`.
+
+        Notes
+        -----
+        The default (a model without nuisance parameters) is :meth:`evaluate`;
+        a model with nuisance parameters overrides it.
+        """
+        return self.evaluate(observables, reference=reference)
 
     def jacobian(self, point) -> np.ndarray:
         """Derivatives of (t_ph, d_ph, v_ph) with respect to the observables.

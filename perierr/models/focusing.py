@@ -20,18 +20,21 @@ Murray, C. D. & Dermott, S. F. 1999, Solar System Dynamics, Sect. 2.5
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 from scipy.stats import norm, truncnorm
 
+from ..errors import InputError
 from .base import ForwardModel, Nuisance, Perihelion
+from .diagnostics import FocusingDiagnostics
 from .orbit.potentials import G_PC_KMS2_PER_MSUN
 
 __all__ = ["Focused", "hyperbolic_perihelion", "FocusingError"]
 
 
-class FocusingError(ValueError):
-    """An invalid focusing parameter."""
+class FocusingError(InputError):
+    """An invalid focusing parameter (an :class:`~perierr.errors.InputError`)."""
 
 
 def hyperbolic_perihelion(impact_pc, speed_kms, mass_msun):
@@ -74,36 +77,36 @@ class Focused(ForwardModel):
     mass_msun : float
         Nominal mass of the star [Msun], >= 0.
     mass_error_msun : float, default 0
-        Standard deviation of the mass [Msun]. When positive, Monte Carlo
-        evaluations (rows with a ``reference``) draw one mass per row from a
-        normal distribution truncated at zero mass; evaluations without a
-        reference and :meth:`jacobian` use the nominal mass; the budgets give
-        the mass a share of its own through :meth:`mass_jacobian`.
-    rng : None, int or numpy.random.Generator
-        Seed or generator for the mass draws (through ``numpy.random.default_rng``).
+        Standard deviation of the mass [Msun]. When positive,
+        :meth:`evaluate_draws` draws one mass per row from a normal
+        distribution truncated at zero mass, with the generator it is given;
+        :meth:`evaluate` and :meth:`jacobian` use the nominal mass; the budgets
+        give the mass a share of its own through :meth:`mass_jacobian`.
 
     Notes
     -----
-    ``info["focusing"]`` reports the mass used and how much focusing changed
-    the answer: median and largest change of d_ph [pc] and v_ph [km/s], and
-    the median relative change of d_ph; ``info["focusing_delta_distance_pc"]``
-    and ``info["focusing_delta_speed_kms"]`` hold the per-row changes.
+    ``diagnostics.focusing`` (a :class:`~perierr.models.diagnostics.FocusingDiagnostics`;
+    ``info["focusing"]`` in the JSON-facing mapping) reports the mass used and
+    how much focusing changed the answer: median and largest change of d_ph
+    [pc] and v_ph [km/s], and the median relative change of d_ph;
+    ``diagnostics.focusing_delta_distance_pc`` and
+    ``diagnostics.focusing_delta_speed_kms`` hold the per-row changes.
+    The wrapper holds no random state: the same generator gives the same masses.
     """
 
-    def __init__(self, base, *, mass_msun, mass_error_msun=0.0, rng=None):
+    def __init__(self, base, *, mass_msun, mass_error_msun=0.0):
         if not isinstance(base, ForwardModel):
-            raise FocusingError(f"base={base!r} must be a ForwardModel")
+            raise FocusingError("base", base, "expected a ForwardModel (e.g. perierr.make_model('straight_line'))")
         for key, val in (("mass_msun", mass_msun), ("mass_error_msun", mass_error_msun)):
             try:
                 ok = math.isfinite(float(val)) and float(val) >= 0
             except (TypeError, ValueError):
                 ok = False
             if not ok:
-                raise FocusingError(f"focusing option {key}={val!r} must be a finite number >= 0")
+                raise FocusingError(key, val, "expected a finite mass >= 0 in M_sun (a focusing option)")
         self.base = base
         self.mass_msun = float(mass_msun)
         self.mass_error_msun = float(mass_error_msun)
-        self._rng = np.random.default_rng(rng)
         self.name = f"{base.name}+focusing"
 
     def describe(self) -> dict:
@@ -119,19 +122,28 @@ class Focused(ForwardModel):
             },
         }
 
-    def _masses(self, n, reference):
-        if self.mass_error_msun > 0 and reference is not None:
+    def _masses(self, n, rng):
+        """One mass per row: drawn from the truncated normal with ``rng``, or nominal without one (or no error)."""
+        if self.mass_error_msun > 0 and rng is not None:
             lower = -self.mass_msun / self.mass_error_msun
             return truncnorm.rvs(
-                lower, np.inf, loc=self.mass_msun, scale=self.mass_error_msun, size=n,
-                random_state=self._rng,
+                lower, np.inf, loc=self.mass_msun, scale=self.mass_error_msun, size=n, random_state=rng,
             )  # fmt: skip
         return np.full(n, self.mass_msun)
 
     def evaluate(self, observables, *, reference=None) -> Perihelion:
-        """Focused perihelion of every row; see :meth:`ForwardModel.evaluate`."""
+        """Focused perihelion of every row at the nominal mass; see :meth:`ForwardModel.evaluate`."""
         raw = self.base.evaluate(observables, reference=reference)
-        return self.focus(raw, self._masses(raw.distance_pc.size, reference))
+        return self.focus(raw, self._masses(raw.distance_pc.size, None))
+
+    def evaluate_draws(self, observables, rng=None, *, reference=None) -> Perihelion:
+        """Focused perihelia with one mass per row drawn with ``rng`` (nominal masses when ``rng`` is None).
+
+        The wrapped model's own draws (if it has nuisance parameters) come
+        first from the same generator.
+        """
+        raw = self.base.evaluate_draws(observables, rng, reference=reference)
+        return self.focus(raw, self._masses(raw.distance_pc.size, rng))
 
     def focus(self, raw: Perihelion, masses) -> Perihelion:
         """Apply the two-body focusing of given masses to the wrapped model's answer.
@@ -150,23 +162,23 @@ class Focused(ForwardModel):
             flags = head_on if flags is None else (flags | head_on)
         dd, dv = q - raw.distance_pc, vq - raw.speed_kms
         finite = np.isfinite(dv)
-        info = dict(raw.info)
-        info["focusing"] = {
-            "mass_msun": self.mass_msun,
-            "mass_error_msun": self.mass_error_msun,
-            "median_delta_distance_pc": float(np.median(dd)),
-            "max_abs_delta_distance_pc": float(np.max(np.abs(dd))),
-            "median_relative_delta_distance": float(
+        summary = FocusingDiagnostics(
+            mass_msun=self.mass_msun,
+            mass_error_msun=self.mass_error_msun,
+            median_delta_distance_pc=float(np.median(dd)),
+            max_abs_delta_distance_pc=float(np.max(np.abs(dd))),
+            median_relative_delta_distance=float(
                 np.median(np.divide(dd, raw.distance_pc, out=np.zeros_like(dd),
                                     where=raw.distance_pc > 0))
             ),
-            "median_delta_speed_kms": float(np.median(dv[finite])) if finite.any() else None,
-            "max_delta_speed_kms": float(np.max(dv[finite])) if finite.any() else None,
-            "n_head_on": int(head_on.sum()),
-        }  # fmt: skip
-        info["focusing_delta_distance_pc"] = dd
-        info["focusing_delta_speed_kms"] = dv
-        return Perihelion(raw.time_myr, q, vq, flags=flags, info=info)
+            median_delta_speed_kms=float(np.median(dv[finite])) if finite.any() else None,
+            max_delta_speed_kms=float(np.max(dv[finite])) if finite.any() else None,
+            n_head_on=int(head_on.sum()),
+        )  # fmt: skip
+        diagnostics = replace(
+            raw.diagnostics, focusing=summary, focusing_delta_distance_pc=dd, focusing_delta_speed_kms=dv
+        )
+        return Perihelion(raw.time_myr, q, vq, flags=flags, diagnostics=diagnostics)
 
     def nuisance(self, point) -> tuple:
         """The star's mass, when its error is positive."""

@@ -17,11 +17,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import KMS_PER_MASYR_AT_1MAS as _K
-from .._constants import MYR_PER_PC_PER_KMS as _C
-from .._constants import PC_PER_MAS_INVERSE as _A
 from ..frames import cartesian_jacobian, observables_to_cartesian
+from ..units import KMS_PER_MASYR_AT_1MAS as _K
+from ..units import MAS_PC as _A
+from ..units import MYR_PER_PC_PER_KMS as _C
+from ..units import PARALLAX, PMDEC, PMRA, RADIAL_VELOCITY
 from .base import ForwardModel, Perihelion
+from .diagnostics import ModelDiagnostics
 
 __all__ = ["StraightLine", "perihelion_from_cartesian", "perihelion_cartesian_jacobian"]
 
@@ -49,7 +51,7 @@ class StraightLine(ForwardModel):
         obs = np.asarray(observables, dtype=float)
         if obs.ndim == 1:
             obs = obs[None, :]
-        plx, pmra, pmdec, vr = obs[:, 2], obs[:, 3], obs[:, 4], obs[:, 5]
+        plx, pmra, pmdec, vr = obs[:, PARALLAX], obs[:, PMRA], obs[:, PMDEC], obs[:, RADIAL_VELOCITY]
         inv = _A / plx  # distance [pc]
         # sqrt of the sum of squares: np.hypot is ~8x slower and proper motions cannot overflow
         vt = (_K * 1e-3) * np.sqrt(pmra * pmra + pmdec * pmdec) * inv  # km/s
@@ -67,7 +69,7 @@ class StraightLine(ForwardModel):
             d = np.where(at_rest, inv, d)
             speed = np.where(at_rest, 0.0, speed)
             flags = at_rest
-        return Perihelion(t, d, speed, flags=flags, info={"model": self.name})
+        return Perihelion(t, d, speed, flags=flags, diagnostics=ModelDiagnostics(model=self.name))
 
     def jacobian(self, point) -> np.ndarray:
         """Analytic (3, 6) Jacobian: d(t_ph, d_ph, v_ph) / d(observables)."""

@@ -6,13 +6,17 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..errors import InputError
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
+from ..units import DEC, INDEX, OBSERVABLES, OUTPUTS, PARALLAX
+from .metrics import Metric, MetricTable
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
 from .whatif import STATISTICS, CommonDraws, common_draws, scenario_metrics
+
+#: The statistic :meth:`GainCurves.gain` shrinks by default: the 90 % width of d_ph.
+WIDTH90_DISTANCE = Metric("distance_pc", "width90")
 
 __all__ = ["GainCurves", "gain_curves"]
 
@@ -33,13 +37,15 @@ class GainCurves:
     units : dict
         Input -> catalogue unit.
     curves : dict
-        Input -> {statistic key -> ndarray (p,)}: ``"distance_pc.width90"``,
-        ``"distance_pc.std"``, ... (output units), ``"p:<threshold>"``, and
-        ``"<output>.linear_sigma"`` (closed form, no Monte Carlo noise).
+        Input -> :class:`~perierr.plan.metrics.MetricTable` {Metric -> ndarray (p,)}:
+        width90, std and median of each output (output units), the probability
+        of ``threshold``, and each output's linear_sigma (closed form, no Monte
+        Carlo noise). Keys may also be given as strings (``"distance_pc.width90"``,
+        ``"p:<threshold>"``).
     sigma : dict
         Input -> today's standard error, catalogue units.
-    current : dict
-        Statistic key -> today's value.
+    current : MetricTable
+        Metric -> today's value.
     threshold : str
     settings : dict
     """
@@ -49,26 +55,31 @@ class GainCurves:
     units: dict
     sigma: dict
     curves: dict
-    current: dict
+    current: MetricTable
     threshold: str
     settings: dict = field(default_factory=dict)
 
-    def gain(self, input: str, key: str = "distance_pc.width90") -> np.ndarray:
-        """Relative shrink ``1 - value / today`` of a statistic along one curve."""
-        now = self.current[key]
-        return 1.0 - self.curves[input][key] / now if now > 0 else np.zeros_like(self.precision[input])
+    @property
+    def probability(self) -> Metric:
+        """The metric of the probability curve, P(d_ph < threshold)."""
+        return Metric.probability(self.threshold)
+
+    def gain(self, input: str, metric=WIDTH90_DISTANCE) -> np.ndarray:
+        """Relative shrink ``1 - value / today`` of a statistic (a Metric or its key) along one curve."""
+        now = self.current[metric]
+        return 1.0 - self.curves[input][metric] / now if now > 0 else np.zeros_like(self.precision[input])
 
     def to_dict(self) -> dict:
         """Plain dict for JSON (lists)."""
         return {
             "threshold": self.threshold,
-            "current": dict(self.current),
+            "current": self.current.by_key(),
             "inputs": {
                 name: {
                     "precision": self.precision[name].tolist(),
                     "unit": self.units[name],
                     "today_sigma": self.sigma[name],
-                    **{k: v.tolist() for k, v in self.curves[name].items()},
+                    **self.curves[name].by_key(lambda v: v.tolist()),
                 }
                 for name in self.inputs
             },
@@ -86,7 +97,7 @@ def gain_curves(
     precisions=None,
     threshold: str = "20000 au",
     n: int = 20_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
 ) -> GainCurves:
     """Gain curves for each input.
@@ -105,22 +116,24 @@ def gain_curves(
         Input -> explicit precisions in catalogue units (overrides ``span``).
     threshold : str
         Distance for the P(d_ph < D) curve.
-    n, seed : int
+    n : int
         Common draws (ignored when ``draws`` is given).
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     if int(n_points) < 2:
         raise InputError("n_points", n_points, "expected at least 2 precisions per curve")
     if not (span[0] > 0 and span[1] > 0):
         raise InputError("span", span, "expected two positive multiples of today's error, e.g. (3, 0.01)")
     names = [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0] if inputs is None else [input_name(i) for i in inputs]
     draws = common_draws(n, seed) if draws is None else draws
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     covs, grids = [star.cov[None]], {}
     for name in names:
-        idx = OBSERVABLES.index(name)
+        idx = INDEX[name]
         if star.sigma[idx] == 0:
             raise InputError("inputs", name, "this input is held exact (zero error); leave it out")
         if precisions is not None and name in precisions:
@@ -135,24 +148,21 @@ def gain_curves(
     allcov = np.concatenate(covs)
     metrics = scenario_metrics(star, model, allcov, draws, thresholds=[threshold])
     label = next(iter(metrics.probabilities))
-    keys = [f"{q}.{s}" for q in OUTPUTS for s in STATISTICS]
     lin = np.sqrt(np.maximum(np.einsum("mi,kij,mj->km", jac, allcov, jac), 0.0))  # (K, 3)
-    current = {k: float(metrics.values[k][0]) for k in keys}
-    current[f"p:{label}"] = float(metrics.probabilities[label][0])
-    current.update({f"{q}.linear_sigma": float(lin[0, j]) for j, q in enumerate(OUTPUTS)})
+    columns = {Metric(q, s): metrics.values[Metric(q, s)] for q in OUTPUTS for s in STATISTICS}
+    columns[Metric.probability(label)] = metrics.probabilities[label]
+    columns.update({Metric(q, "linear_sigma"): lin[:, j] for j, q in enumerate(OUTPUTS)})
+    current = MetricTable((m, float(v[0])) for m, v in columns.items())
     curves, start = {}, 1
     for name in names:
         sl = slice(start, start + grids[name].size)
-        c = {k: metrics.values[k][sl] for k in keys}
-        c[f"p:{label}"] = metrics.probabilities[label][sl]
-        c.update({f"{q}.linear_sigma": lin[sl, j] for j, q in enumerate(OUTPUTS)})
-        curves[name] = c
+        curves[name] = MetricTable((m, v[sl]) for m, v in columns.items())
         start = sl.stop
     return GainCurves(
         tuple(names),
         {nm: np.asarray(to_catalogue(nm, g, dec=dec)) for nm, g in grids.items()},
         {nm: UNIT_LABELS[nm] for nm in names},
-        {nm: float(to_catalogue(nm, star.sigma[OBSERVABLES.index(nm)], dec=dec)) for nm in names},
+        {nm: float(to_catalogue(nm, star.sigma[INDEX[nm]], dec=dec)) for nm in names},
         curves, current, label,
         {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)},
     )

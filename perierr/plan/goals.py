@@ -4,13 +4,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import astropy.units as u
 import numpy as np
 
-from .._constants import AU_PER_PC, OUTPUTS
-from .._quantity import to_number
 from ..errors import InputError
 from ..thresholds import parse_thresholds
+from ..units import AU_PER_PC, OUTPUT_UNITS, OUTPUTS, to_number
+from .metrics import Metric
 
 __all__ = ["Goal", "decide_goal", "output_name", "parse_goal", "spread_goal"]
 
@@ -22,7 +21,6 @@ _OUTPUT_ALIASES = {
     "distance": "distance_pc",
     "speed": "speed_kms",
 }
-_OUTPUT_UNITS = {"time_myr": u.Myr, "distance_pc": u.pc, "speed_kms": u.km / u.s}
 KINDS = ("width90", "sigma", "decide")
 
 
@@ -61,11 +59,16 @@ class Goal:
     alpha: float | None = None
 
     @property
-    def metric_key(self) -> str:
-        """Key of the statistic in :class:`~perierr.plan.whatif.ScenarioMetrics`."""
+    def metric(self) -> Metric:
+        """The statistic the goal is about (a probability for "decide", else the width90 or std of the output)."""
         if self.kind == "decide":
-            return f"p:{self.threshold}"
-        return f"{self.output}.{'std' if self.kind == 'sigma' else 'width90'}"
+            return Metric.probability(self.threshold)
+        return Metric(self.output, "std" if self.kind == "sigma" else "width90")
+
+    @property
+    def metric_key(self) -> str:
+        """Key of the statistic in JSON documents (``metric.key``)."""
+        return self.metric.key
 
     def score(self, metric) -> np.ndarray:
         """The quantity compared with the target (for "decide": min(p, 1 - p))."""
@@ -87,14 +90,14 @@ class Goal:
         if self.kind == "decide":
             return f"P = {m:.4g}"
         extra = f" ({m * AU_PER_PC:,.0f} au)" if self.output == "distance_pc" else ""
-        return f"{m:.4g} {_OUTPUT_UNITS[self.output].to_string()}{extra}"
+        return f"{m:.4g} {OUTPUT_UNITS[self.output].to_string()}{extra}"
 
     def describe(self) -> str:
         """Plain words, e.g. ``"90 % width of distance_pc <= 0.005 pc (1031 au)"``."""
         if self.kind == "decide":
             return f"P(d_ph < {self.threshold}) below {self.alpha:g} or above {1 - self.alpha:g}"
         what = "90 % width" if self.kind == "width90" else "sigma"
-        unit = _OUTPUT_UNITS[self.output].to_string()
+        unit = OUTPUT_UNITS[self.output].to_string()
         extra = f" ({self.target * AU_PER_PC:,.0f} au)" if self.output == "distance_pc" else ""
         return f"{what} of {self.output} <= {self.target:.4g} {unit}{extra}"
 
@@ -104,12 +107,12 @@ class Goal:
         if self.kind == "decide":
             out.update(threshold=self.threshold, distance_pc=self.threshold_pc, alpha=self.alpha)
         else:
-            out.update(output=self.output, target=self.target, unit=_OUTPUT_UNITS[self.output].to_string())
+            out.update(output=self.output, target=self.target, unit=OUTPUT_UNITS[self.output].to_string())
         return out
 
 
 def _to_output_units(output: str, value) -> float:
-    unit = _OUTPUT_UNITS[output]
+    unit = OUTPUT_UNITS[output]
     out = to_number(f"{output} target", value, unit, example="2000 au" if output == "distance_pc" else None)
     if not out > 0:
         raise InputError(f"{output} target", value, "expected a positive target")

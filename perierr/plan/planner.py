@@ -4,14 +4,16 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from .. import __version__
-from .._constants import OBSERVABLES
+import numpy as np
+
+from .._version import __version__
 from ..budget import GlobalBudget, global_budget
-from ..cautions import linear_cautions
+from ..cautions import HAZARD, linear_cautions, messages
 from ..models import ForwardModel, make_model
 from ..propagate.linear import linearize
 from ..star import ObservedStar
 from ..thresholds import DEFAULT_THRESHOLDS
+from ..units import DEC, OBSERVABLES, PARALLAX
 from .curves import GainCurves, gain_curves
 from .required import required_precision
 from .update import make_measurement
@@ -38,7 +40,7 @@ class Plan:
     budget_improved : GlobalBudget or None
         The same after the what-if measurements (what to measure next after those).
     settings : dict
-    cautions : tuple of str
+    cautions : tuple of Caution
         The same cautions ``analyze`` gives for the star's linearization (biased parallax, head-on path,
         d_ph within its sigma).
     """
@@ -66,9 +68,9 @@ class Plan:
             "global_budget": None if self.budget is None else self.budget.to_dict(),
             "global_budget_improved": None if self.budget_improved is None else self.budget_improved.to_dict(),
             "settings": dict(self.settings),
-            "warnings": list(self.cautions),
+            "warnings": messages(self.cautions),
             "notes": list(self.star.notes),
-            "caution": "perierr predicts statistical encounters, not impact hazards",
+            "caution": HAZARD,
         }
 
 
@@ -83,7 +85,7 @@ def plan(
     budget: bool = True,
     n: int = 20_000,
     n_whatif: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     thresholds=DEFAULT_THRESHOLDS,
     curve_threshold: str = "20000 au",
     n_points: int = 20,
@@ -107,8 +109,9 @@ def plan(
         Common draws for curves and goals.
     n_whatif : int
         Draws for the side-by-side what-if summaries.
-    seed : int or None
-        One seed for everything (recorded in the settings).
+    seed : int, numpy.random.Generator or None
+        One seed for everything; the integer is recorded in the settings
+        (see :func:`perierr.sampling.gaussian.resolve_seed`).
     thresholds : sequence
         Thresholds of the what-if summaries.
     curve_threshold : str
@@ -117,17 +120,17 @@ def plan(
     budget_options : dict, optional
         Passed to :func:`perierr.budget.global_budget`.
     """
-    from ..propagate.checks import require_motion, require_positive_parallax, require_uncertainty
     from ..sampling.gaussian import resolve_seed
+    from ..star.checks import require_motion, require_positive_parallax, require_uncertainty
 
     if isinstance(model, str):
         model = make_model(model)
     # the same checks as analyze(): a perihelion must exist, and there must be an error to plan against
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     require_motion(star.mean)
     require_uncertainty(star.sigma)
     seed = resolve_seed(seed)
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     wi = None
     if measure:
         items = measure.items() if isinstance(measure, dict) else None

@@ -16,10 +16,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import OBSERVABLES
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
+from ..units import DEC, INDEX, PARALLAX, errors_to_internal
 from .goals import Goal
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
 from .whatif import CommonDraws, common_draws, scenario_metrics
@@ -102,7 +102,7 @@ def required_precision(
     goal: Goal,
     *,
     n: int = 20_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
     iterations: int = 40,
 ) -> RequiredPrecision:
@@ -116,23 +116,25 @@ def required_precision(
         The input to re-observe.
     goal : Goal
         From :func:`~perierr.plan.goals.spread_goal` or ``decide_goal``.
-    n, seed : int
+    n : int
         Common draws (ignored when ``draws`` is given).
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
     iterations : int
         Bisection steps in log precision (40 give a relative precision ~1e-6
         of one grid step).
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     name = input_name(input)
-    idx = OBSERVABLES.index(name)
+    idx = INDEX[name]
     draws = common_draws(n, seed) if draws is None else draws
     thresholds = [goal.threshold] if goal.kind == "decide" else ["1 pc"]
-    dec = float(star.mean[1])
+    dec = float(star.mean[DEC])
     sigma = float(star.sigma[idx])
 
     def metric(covs):
-        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric_key)
+        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric)
 
     def evaluate(precisions):
         return metric(update_covariance(star.cov, idx, np.asarray(precisions, dtype=float)))
@@ -145,24 +147,44 @@ def required_precision(
     def result(status, precision, achieved, message):
         return RequiredPrecision(name, goal, status, precision, unit, sig_cat, now, floor, achieved, message, settings)
 
-    close = ""
-    if goal.kind == "decide":
-        err = float(np.sqrt(now * (1.0 - now) / draws.n))
-        if min(abs(now - goal.alpha), abs(now - (1.0 - goal.alpha))) < 2.0 * err:
-            close = f" — within 2 Monte Carlo errors ({err:.2g}) of the goal's boundary: rerun with more samples"
+    close = _boundary_note(goal, now, draws.n)
     if goal.met(now):
         return result("already_met", None, now, f"already met today ({goal.format(now)}){close}")
     if not goal.met(floor):
-        why = "it is held exact already" if sigma == 0 else "the other inputs set a floor"
-        return result(
-            "unreachable",
-            None,
-            None,
-            f"cannot be reached by measuring {name} alone: even an exact {name} leaves "
-            f"{goal.format(floor)} against the goal {goal.describe()} ({why}); "
-            "improve another input as well",
-        )
-    grid = sigma * _GRID
+        return result("unreachable", None, None, _unreachable_message(name, sigma, goal, floor))
+    lo = _largest_precision(evaluate, goal, sigma * _GRID, iterations)
+    precision, back = _checked_precision(evaluate, goal, name, lo, dec)
+    return result(
+        "reachable",
+        precision,
+        back,
+        f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}); "
+        f"there {goal.format(back)} (floor with an exact {name}: {goal.format(floor)})",
+    )
+
+
+def _boundary_note(goal, now, n) -> str:
+    """A warning clause when a probability goal is met or missed by less than 2 Monte Carlo errors."""
+    close = ""
+    if goal.kind == "decide":
+        err = float(np.sqrt(now * (1.0 - now) / n))
+        if min(abs(now - goal.alpha), abs(now - (1.0 - goal.alpha))) < 2.0 * err:
+            close = f" — within 2 Monte Carlo errors ({err:.2g}) of the goal's boundary: rerun with more samples"
+    return close
+
+
+def _unreachable_message(name, sigma, goal, floor) -> str:
+    """Why an exact ``name`` still misses the goal."""
+    why = "it is held exact already" if sigma == 0 else "the other inputs set a floor"
+    return (
+        f"cannot be reached by measuring {name} alone: even an exact {name} leaves "
+        f"{goal.format(floor)} against the goal {goal.describe()} ({why}); "
+        "improve another input as well"
+    )
+
+
+def _largest_precision(evaluate, goal, grid, iterations) -> float:
+    """Largest precision (internal units) meeting the goal: the log grid, then bisection in log precision."""
     values = evaluate(grid)
     ok = goal.met(values)
     if ok.all():
@@ -174,33 +196,33 @@ def required_precision(
         lo = grid[j] if j < len(grid) else 0.0
         hi = grid[j - 1] if j > 0 else None
     if hi is not None:
-        log_lo = np.log(lo) if lo > 0 else np.log(grid[-1]) - 10.0
-        if lo == 0.0:
-            lo = float(np.exp(log_lo))
-        log_hi = np.log(hi)
-        for _ in range(iterations):
-            mid = 0.5 * (log_lo + log_hi)
-            if goal.met(evaluate([np.exp(mid)]))[0]:
-                log_lo = mid
-            else:
-                log_hi = mid
-        lo = float(np.exp(log_lo))
+        lo = _bisect(evaluate, goal, lo, hi, grid, iterations)
+    return lo
+
+
+def _bisect(evaluate, goal, lo, hi, grid, iterations) -> float:
+    """Refine the bracket [lo, hi] in log precision; lo meets the goal (0 stands for 10 e-folds below the grid)."""
+    log_lo = np.log(lo) if lo > 0 else np.log(grid[-1]) - 10.0
+    log_hi = np.log(hi)
+    for _ in range(iterations):
+        mid = 0.5 * (log_lo + log_hi)
+        if goal.met(evaluate([np.exp(mid)]))[0]:
+            log_lo = mid
+        else:
+            log_hi = mid
+    return float(np.exp(log_lo))
+
+
+def _checked_precision(evaluate, goal, name, lo, dec):
+    """The precision in catalogue units and the statistic there, fed back through the same draws."""
     precision = float(to_catalogue(name, lo, dec=dec))
     # feed back the reported (catalogue-unit) value through the same draws
     back = float(evaluate([_to_internal(name, precision, dec)])[0])
     if not goal.met(back):
         precision *= 1.0 - 1e-9
         back = float(evaluate([_to_internal(name, precision, dec)])[0])
-    return result(
-        "reachable",
-        precision,
-        back,
-        f"measure {name} to {precision:.3g} {unit} or better (today {sig_cat:.3g} {unit}); "
-        f"there {goal.format(back)} (floor with an exact {name}: {goal.format(floor)})",
-    )
+    return precision, back
 
 
 def _to_internal(name, value, dec):
-    from .update import make_measurement
-
-    return make_measurement(name, value, dec=dec).precision
+    return float(errors_to_internal([value], dec, names=(name,))[0])

@@ -25,13 +25,12 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import astropy.units as u
 import numpy as np
 
-from .._constants import MAS_PER_DEG, OBSERVABLES
-from .._quantity import to_number
+from ..cautions import note
 from ..errors import InputError
 from ..star import ObservedStar
+from ..units import ERROR_LABELS, ERROR_UNITS, INDEX, OBSERVABLES, errors_to_catalogue, errors_to_internal, to_number
 
 __all__ = [
     "Measurement",
@@ -43,25 +42,11 @@ __all__ = [
     "updated_star",
 ]
 
-#: Catalogue unit of a new measurement's precision, per input.
-PRECISION_UNITS = {
-    "ra": u.mas,  # of alpha* = alpha cos(dec), as the catalogue's ra_error
-    "dec": u.mas,
-    "parallax": u.mas,
-    "pmra": u.mas / u.yr,
-    "pmdec": u.mas / u.yr,
-    "radial_velocity": u.km / u.s,
-}
+#: Catalogue unit of a new measurement's precision, per input (ra: of alpha* = alpha cos dec).
+PRECISION_UNITS = ERROR_UNITS
 
 #: Plain-text unit labels for reports.
-UNIT_LABELS = {
-    "ra": "mas",
-    "dec": "mas",
-    "parallax": "mas",
-    "pmra": "mas/yr",
-    "pmdec": "mas/yr",
-    "radial_velocity": "km/s",
-}
+UNIT_LABELS = ERROR_LABELS
 
 _ALIASES = {"rv": "radial_velocity", "plx": "parallax", "vr": "radial_velocity"}
 
@@ -128,26 +113,14 @@ def make_measurement(name: str, precision, *, dec: float = 0.0) -> Measurement:
     value = to_number(f"{key} precision", precision, unit, text_needs_unit=False, example=f"0.1 {unit}")
     if not (math.isfinite(value) and value >= 0):
         raise InputError(f"{key} precision", value, f"expected a standard error >= 0 in {unit} (0 = exact)")
-    internal = value
-    if key in ("ra", "dec"):
-        internal = value / MAS_PER_DEG
-        if key == "ra":
-            cosd = math.cos(math.radians(dec))
-            if cosd < 1e-12:
-                raise InputError("dec", dec, "ra precision is undefined at a celestial pole")
-            internal /= cosd
-    return Measurement(key, OBSERVABLES.index(key), internal, value, UNIT_LABELS[key])
+    internal = float(errors_to_internal([value], dec, names=(key,), ra_field="the ra precision")[0])
+    return Measurement(key, INDEX[key], internal, value, UNIT_LABELS[key])
 
 
 def to_catalogue(name: str, internal, *, dec: float = 0.0):
     """Precision in internal units -> catalogue units (inverse of :func:`make_measurement`)."""
     key = input_name(name)
-    x = np.asarray(internal, dtype=float)
-    if key == "dec":
-        x = x * MAS_PER_DEG
-    elif key == "ra":
-        x = x * MAS_PER_DEG * math.cos(math.radians(dec))
-    return x
+    return errors_to_catalogue(np.asarray(internal, dtype=float)[..., None], dec, names=(key,))[..., 0]
 
 
 def parse_measure(text: str, *, dec: float = 0.0) -> Measurement:
@@ -192,7 +165,7 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
     cov = np.array(star.cov)
     for m in measurements:
         cov = update_covariance(cov, m.index, m.precision)
-    note = "what-if: " + ", ".join(m.label for m in measurements)
+    what_if = note("what-if", "what-if: " + ", ".join(m.label for m in measurements))
     return ObservedStar(
         np.array(star.mean),
         cov,
@@ -201,5 +174,5 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
         ref_epoch=star.ref_epoch,
         mass=star.mass,
         mass_error=star.mass_error,
-        notes=tuple(star.notes) + (note,),
+        cautions=tuple(star.cautions) + (what_if,),
     )

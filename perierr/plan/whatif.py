@@ -13,16 +13,18 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._constants import AU_PER_PC, OUTPUTS
 from ..budget import LinearBudget, star_budget
+from ..errors import InputError
 from ..models.base import ForwardModel
-from ..propagate.checks import require_positive_parallax
 from ..propagate.linear import LinearResult, linearize
-from ..propagate.montecarlo import MonteCarloResult, propagate_samples
+from ..propagate.montecarlo import MonteCarloResult, nuisance_rng, propagate_samples
 from ..sampling.gaussian import Samples, psd_factor, resolve_seed
 from ..star import ObservedStar
+from ..star.checks import require_positive_parallax
 from ..summary import DEFAULT_LEVELS
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
+from ..units import AU_PER_PC, OUTPUTS, PARALLAX
+from .metrics import PROBABILITY, Metric, MetricTable
 from .update import Measurement, updated_star
 
 __all__ = ["CommonDraws", "ScenarioMetrics", "WhatIf", "common_draws", "scenario_metrics", "what_if"]
@@ -56,10 +58,17 @@ class CommonDraws:
         return self.z @ psd_factor(cov).T + np.asarray(mean, dtype=float)
 
 
-def common_draws(n: int = 20_000, seed=None) -> CommonDraws:
-    """Draw the shared standard normals with ``numpy.random.default_rng(seed)``."""
-    if int(n) < 100:
-        raise ValueError(f"n = {n!r}: expected at least 100 samples")
+def common_draws(n: int = 20_000, seed: int | np.random.Generator | None = None) -> CommonDraws:
+    """Draw the shared standard normals with ``numpy.random.default_rng(seed)``.
+
+    ``seed`` follows :func:`perierr.sampling.gaussian.resolve_seed`; the integer it resolves to is recorded.
+    """
+    try:
+        enough = int(n) >= 100
+    except (TypeError, ValueError):
+        enough = False
+    if not enough:
+        raise InputError("n", n, "expected at least 100 samples")
     seed = resolve_seed(seed)
     return CommonDraws(np.random.default_rng(seed).standard_normal((int(n), 6)), seed)
 
@@ -70,8 +79,10 @@ class ScenarioMetrics:
 
     Attributes
     ----------
-    values : dict
-        ``"distance_pc.width90"`` etc. -> ndarray (K,), output units.
+    values : MetricTable
+        :class:`~perierr.plan.metrics.Metric` (width90, std, median of each
+        output) -> ndarray (K,), output units; keys may be given as strings
+        (``"distance_pc.width90"``).
     probabilities : dict
         Threshold label -> P(d_ph < D), ndarray (K,).
     thresholds_pc : dict
@@ -82,17 +93,24 @@ class ScenarioMetrics:
         Draws with parallax <= 0 (left out of the statistics, not passing any threshold).
     """
 
-    values: dict
+    values: MetricTable
     probabilities: dict
     thresholds_pc: dict
     n: int
     n_nonpositive: np.ndarray
 
-    def metric(self, key: str) -> np.ndarray:
-        """A statistic (``"distance_pc.width90"``) or a probability (``"p:1 pc"``)."""
-        if key.startswith("p:"):
-            return self.probabilities[key[2:]]
-        return self.values[key]
+    def metric(self, metric) -> np.ndarray:
+        """A statistic or a probability, shape (K,).
+
+        Parameters
+        ----------
+        metric : Metric or str
+            A record, or its key (``"distance_pc.width90"``, ``"p:1 pc"``).
+        """
+        metric = Metric.coerce(metric)
+        if metric.kind == PROBABILITY:
+            return self.probabilities[metric.threshold]
+        return self.values[metric]
 
 
 def scenario_metrics(
@@ -113,6 +131,11 @@ def scenario_metrics(
     Returns
     -------
     ScenarioMetrics
+
+    Notes
+    -----
+    The model's nuisance draws (focusing masses) take one stream for the call,
+    :func:`~perierr.propagate.montecarlo.nuisance_rng` of the draws' seed.
     """
     covs = np.asarray(covs, dtype=float).reshape(-1, 6, 6)
     k, n = covs.shape[0], draws.n
@@ -121,15 +144,16 @@ def scenario_metrics(
     out = np.empty((k, n, 3))
     valid = np.empty((k, n), dtype=bool)
     per_chunk = max(1, _CHUNK_ROWS // n)
+    rng = nuisance_rng(draws.seed)
     for start in range(0, k, per_chunk):
         stop = min(k, start + per_chunk)
         x = np.matmul(draws.z, np.swapaxes(factors[start:stop], 1, 2)) + mean
-        ok = x[..., 2] > 0
+        ok = x[..., PARALLAX] > 0
         valid[start:stop] = ok
         flat = x.reshape(-1, 6)
         res = np.full((flat.shape[0], 3), np.nan)
         keep = ok.reshape(-1)
-        res[keep] = model.evaluate(flat[keep], reference=mean).as_array()
+        res[keep] = model.evaluate_draws(flat[keep], rng, reference=mean).as_array()
         out[start:stop] = res.reshape(stop - start, n, 3)
     any_bad = not valid.all()
     values = {}
@@ -137,15 +161,15 @@ def scenario_metrics(
         y = out[..., j]
         quant = np.nanquantile if any_bad else np.quantile
         lo, med, hi = quant(y, [0.05, 0.5, 0.95], axis=1, method="hazen")  # as perierr.summary
-        values[f"{q}.width90"] = hi - lo
-        values[f"{q}.median"] = med
-        values[f"{q}.std"] = (np.nanstd if any_bad else np.std)(y, axis=1, ddof=1)
+        values[Metric(q, "width90")] = hi - lo
+        values[Metric(q, "median")] = med
+        values[Metric(q, "std")] = (np.nanstd if any_bad else np.std)(y, axis=1, ddof=1)
     d = np.where(valid, out[..., 1], np.inf)
     probs, pcs = {}, {}
     for label, pc in parse_thresholds(thresholds):
         probs[label] = np.mean(d < pc, axis=1)
         pcs[label] = pc
-    return ScenarioMetrics(values, probs, pcs, n, (~valid).sum(axis=1))
+    return ScenarioMetrics(MetricTable(values), probs, pcs, n, (~valid).sum(axis=1))
 
 
 @dataclass(frozen=True)
@@ -177,7 +201,7 @@ class WhatIf:
         """(current, improved) widths of the central 90 % interval, output units."""
         a = self.mc_current.summaries[output]
         b = self.mc_improved.summaries[output]
-        return a.quantiles[0.95] - a.quantiles[0.05], b.quantiles[0.95] - b.quantiles[0.05]
+        return a.quantile(0.95) - a.quantile(0.05), b.quantile(0.95) - b.quantile(0.05)
 
     def headline(self) -> str:
         """One sentence: what the measurement buys for the d_ph interval."""
@@ -226,7 +250,7 @@ def what_if(
     measurements,
     *,
     n: int = 100_000,
-    seed=None,
+    seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
@@ -241,23 +265,32 @@ def what_if(
         From :func:`~perierr.plan.update.make_measurement` or ``parse_measure``.
     n : int
         Monte Carlo draws (ignored when ``draws`` is given).
-    seed : int or None
+    seed : int, numpy.random.Generator or None
+        Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
         Shared draws, to compare with other scenarios.
     levels, thresholds
         As in :func:`perierr.propagate.monte_carlo`.
+
+    Notes
+    -----
+    Both scenarios draw the model's nuisance parameters (focusing masses) from
+    the same stream, :func:`~perierr.propagate.montecarlo.nuisance_rng` of the
+    draws' seed, so they share those draws too.
     """
-    require_positive_parallax(star.mean[2], method="the re-observation planner")
+    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
     measurements = tuple(measurements)
     for m in measurements:
         if not isinstance(m, Measurement):
-            raise TypeError(f"expected Measurement objects, got {type(m).__name__}")
+            raise InputError("measurements", m, "expected Measurement objects (see perierr.plan.parse_measure)")
     draws = common_draws(n, seed) if draws is None else draws
     improved = updated_star(star, measurements)
 
     def run(s):
         samples = Samples(draws.samples(s.mean, s.cov), seed=draws.seed, method="gaussian (common draws)")
-        return propagate_samples(samples, model, reference=s.mean, levels=levels, thresholds=thresholds)
+        return propagate_samples(
+            samples, model, reference=s.mean, rng=nuisance_rng(draws.seed), levels=levels, thresholds=thresholds
+        )
 
     lin0, lin1 = linearize(star, model), linearize(improved, model)
     return WhatIf(

@@ -1,27 +1,40 @@
 """Distance priors for weak and negative parallaxes.
 
 A prior on the distance r = 1000 / parallax (:mod:`.densities`), a text syntax
-for it (:mod:`.parse`), and two ways to sample the posterior of the six
-observables: importance reweighting of Gaussian draws (:mod:`.reweight`) and
-MCMC with emcee (:mod:`.mcmc`); :func:`posterior_samples` chooses.
-Parallax zero-point and error inflation live in :mod:`.calibration`.
+for it (:mod:`.parse`) and the record an analysis keeps of it (:mod:`.info`).
+The samplers of the posterior of the six observables live beside the Gaussian
+draws in :mod:`perierr.sampling` (importance reweighting, MCMC with emcee, and
+:func:`~perierr.sampling.posterior.posterior_samples`, which chooses); their
+public names are also reachable here. Parallax zero-point and error inflation
+are an input transform, :mod:`perierr.calibration`.
+
+The names below are loaded on first use (PEP 562), so that a run without a
+prior does not pay for the samplers at start-up.
 """
 
-from .densities import (
-    CustomPrior,
-    DistancePrior,
-    ExponentialDensity,
-    GeneralizedGamma,
-    NoPrior,
-    TablePrior,
-    UniformDensity,
-    log_distance_posterior,
-    posterior_mode,
-)
-from .mcmc import ChainTooShortError, sample_posterior_mcmc
-from .parse import PRIOR_SYNTAX, parse_prior, resolve_prior
-from .posterior import METHODS, posterior_samples
-from .reweight import log_weights, reweight
+import importlib
+
+from ..sampling.reweight import log_weights, reweight  # light: numpy only
+
+#: Public name -> the submodule that defines it.
+_WHERE = {
+    "ChainTooShortError": "..sampling.mcmc",
+    "CustomPrior": "densities",
+    "DistancePrior": "densities",
+    "ExponentialDensity": "densities",
+    "GeneralizedGamma": "densities",
+    "METHODS": "..sampling.posterior",
+    "NoPrior": "densities",
+    "PRIOR_SYNTAX": "parse",
+    "TablePrior": "densities",
+    "UniformDensity": "densities",
+    "log_distance_posterior": "densities",
+    "parse_prior": "parse",
+    "posterior_mode": "densities",
+    "posterior_samples": "..sampling.posterior",
+    "resolve_prior": "parse",
+    "sample_posterior_mcmc": "..sampling.mcmc",
+}
 
 __all__ = [
     "ChainTooShortError",
@@ -43,3 +56,18 @@ __all__ = [
     "reweight",
     "sample_posterior_mcmc",
 ]
+
+
+def __getattr__(name):
+    if name not in _WHERE:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    where = _WHERE[name]
+    module = importlib.import_module(where, "perierr.priors") if where.startswith(".") else (
+        importlib.import_module(f"{__name__}.{where}"))
+    value = getattr(module, name)
+    globals()[name] = value  # found once, then an ordinary attribute
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_WHERE))

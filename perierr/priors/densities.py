@@ -2,6 +2,8 @@
 
 Each prior is a small object with a vectorized, normalized (where possible)
 ``log_density(r)`` and the ``name`` and ``parameters`` written to every output.
+The distance posterior of one parallax under a prior (:func:`log_distance_posterior`,
+:func:`posterior_mode`) lives in :mod:`.distance_posterior` and is re-exported here.
 
 Inverting a Gaussian parallax is itself a prior: the draws of 1/parallax have
 the density the Gaussian implies, which is biased and improper for weak or
@@ -22,10 +24,10 @@ import math
 
 import astropy.units as u
 import numpy as np
-from scipy.special import gammaln
 
-from .._constants import PC_PER_MAS_INVERSE
 from ..errors import InputError
+from ..units import to_number
+from .distance_posterior import log_distance_posterior, posterior_mode
 
 __all__ = [
     "DistancePrior",
@@ -40,31 +42,17 @@ __all__ = [
 ]
 
 
-def _length_pc(field, value, *, allow_inf=False) -> float:
-    """A positive length in pc from a number (pc), Quantity or string."""
-    try:
-        if isinstance(value, str):
-            q = u.Quantity(value.strip())
-            if q.unit == u.dimensionless_unscaled:
-                q = q.value * u.pc
-            value = q
-        if isinstance(value, u.Quantity):
-            value = value.to_value(u.pc)
-        out = float(value)
-    except (u.UnitsError, TypeError, ValueError):
-        raise InputError(field, value, "expected a length in pc (a number, or e.g. '1.35 kpc')") from None
-    if not out > 0 or (math.isinf(out) and not allow_inf) or math.isnan(out):
+def _length_pc(field, value) -> float:
+    """A positive length in pc from a number (pc), Quantity or string (``"1.35 kpc"``)."""
+    out = to_number(field, value, u.pc, text_needs_unit=False, example="1.35 kpc", noun="a length")
+    if not out > 0:
         raise InputError(field, value, "expected a positive, finite length in pc")
     return out
 
 
 def _number(field, value, *, low=None, low_open=True) -> float:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        raise InputError(field, value, "expected a number") from None
-    if not math.isfinite(out):
-        raise InputError(field, value, "expected a finite number")
+    """A finite plain number, above ``low`` if given."""
+    out = to_number(field, value, None)
     if low is not None and (out <= low if low_open else out < low):
         raise InputError(field, value, f"expected a number {'>' if low_open else '>='} {low}")
     return out
@@ -197,6 +185,8 @@ class GeneralizedGamma(DistancePrior):
     name = "generalized_gamma"
 
     def __init__(self, alpha, beta, length_scale):
+        from scipy.special import gammaln  # here, not at import: scipy.special costs start-up time
+
         self.alpha = _number("alpha", alpha, low=0.0)
         self.beta = _number("beta", beta, low=-1.0)
         self.length_scale = _length_pc("L", length_scale)
@@ -389,46 +379,3 @@ class TablePrior(DistancePrior):
         p = np.interp(r, self.distance, self.table_density, left=0.0, right=0.0)
         with np.errstate(divide="ignore"):
             return np.log(p)
-
-
-def log_distance_posterior(r, parallax, parallax_error, prior) -> np.ndarray:
-    """Unnormalized log posterior of distance given one Gaussian parallax.
-
-    ``ln P(r | w) = -(w - 1000 / r)^2 / (2 s^2) + ln P(r)`` (Bailer-Jones 2015,
-    PASP 127, 994, eq. 2 times the prior).
-
-    Parameters
-    ----------
-    r : array_like
-        Distances [pc].
-    parallax, parallax_error : float
-        w and s [mas].
-    prior : DistancePrior
-    """
-    r = np.asarray(r, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        chi = (parallax - PC_PER_MAS_INVERSE / r) / parallax_error
-    return np.where(r > 0, -0.5 * chi * chi + prior.log_density(r), -np.inf)
-
-
-def posterior_mode(prior, parallax, parallax_error, *, r_min=1e-3, r_max=1e8) -> float:
-    """Mode of the 1-D distance posterior [pc], found numerically.
-
-    A log-spaced grid locates the highest point, then a bounded scalar
-    minimization refines it (scipy.optimize.minimize_scalar).
-    """
-    from scipy.optimize import minimize_scalar
-
-    lo, hi = prior.support
-    lo, hi = max(lo, r_min), min(hi, r_max)
-    grid = np.geomspace(lo, hi, 20001)
-    lp = log_distance_posterior(grid, parallax, parallax_error, prior)
-    k = int(np.argmax(lp))
-    a, b = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
-    if b <= a:
-        return float(grid[k])
-    res = minimize_scalar(
-        lambda x: -float(log_distance_posterior(np.exp(x), parallax, parallax_error, prior)),
-        bounds=(math.log(a), math.log(b)), method="bounded", options={"xatol": 1e-12},
-    )
-    return float(math.exp(res.x))

@@ -6,14 +6,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._constants import OBSERVABLES, OUTPUTS
 from ..models.base import ForwardModel
 from ..star import ObservedStar
-from .checks import require_motion, require_positive_parallax
+from ..star.checks import require_motion, require_positive_parallax
+from ..units import OBSERVABLES, OUTPUT_LABELS, OUTPUTS, PARALLAX
 
 __all__ = ["LinearResult", "linearize"]
-
-_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
 
 
 @dataclass(frozen=True)
@@ -51,10 +49,43 @@ class LinearResult:
         np.fill_diagonal(out, 1.0)
         return out
 
+    def as_correlated(self) -> tuple:
+        """The three outputs as correlated numbers of the ``uncertainties`` package.
+
+        Built with ``uncertainties.correlated_values(value, cov)``, so their
+        covariance is this result's ``cov`` and any formula of them carries the
+        linear error through, correlations included (first order, like the rest
+        of this result).
+
+        Returns
+        -------
+        tuple of uncertainties.UFloat
+            ``(time_myr, distance_pc, speed_kms)`` in Myr, pc and km/s. They
+            depend on three new independent variables (the eigen-directions of
+            ``cov``), not on the six inputs.
+
+        Examples
+        --------
+        >>> import perierr
+        >>> star = perierr.ObservedStar.from_values(
+        ...     ra=201.3705, dec=-27.6214, parallax=48.012, parallax_error=0.031,
+        ...     pmra=0.710, pmra_error=0.035, pmdec=-1.200, pmdec_error=0.029,
+        ...     radial_velocity=-31.2, radial_velocity_error=0.6, pmra_pmdec_corr=-0.34,
+        ... )
+        >>> t, d, v = perierr.linearize(star, perierr.StraightLine()).as_correlated()
+        >>> print(f"{d * 206264.806:.0f} au")
+        18956+/-603 au
+        >>> print(f"{d / v:.3e}")  # pc / (km/s), with the d-v correlation
+        (2.946+/-0.136)e-03
+        """
+        from uncertainties import correlated_values  # only when asked for: it is not needed to compute anything
+
+        return tuple(correlated_values(self.value.tolist(), self.cov))
+
     def to_dict(self) -> dict:
         """``{Q: {"value", "sigma", "unit"}}`` plus the output correlations."""
         out = {
-            q: {"value": float(v), "sigma": float(s), "unit": _UNITS[q]}
+            q: {"value": float(v), "sigma": float(s), "unit": OUTPUT_LABELS[q]}
             for q, v, s in zip(OUTPUTS, self.value, self.sigma)
         }
         c = self.corr
@@ -75,10 +106,10 @@ def linearize(star: ObservedStar, model: ForwardModel) -> LinearResult:
     -------
     LinearResult
     """
-    require_positive_parallax(star.mean[2], method="linearized propagation")
+    require_positive_parallax(star.mean[PARALLAX], method="linearized propagation")
     require_motion(star.mean)
-    # the nominal value: no reference, so models evaluate this one row as it is (no Monte Carlo
-    # machinery, e.g. no random focusing masses)
+    # the nominal value: no reference, so models evaluate this one row on its own (no map around it);
+    # evaluate() keeps nuisance parameters (e.g. the focusing mass) at their nominal values
     value = model.evaluate(star.mean[None, :]).as_array()[0]
     jac = np.asarray(model.jacobian(star.mean), dtype=float)
     nuisance = tuple(model.nuisance(star.mean))

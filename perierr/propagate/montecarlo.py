@@ -4,28 +4,45 @@ Samples whose parallax is <= 0 cannot be inverted; they are counted and
 reported, carry an unbounded (infinite) perihelion distance in the threshold
 probabilities, and are left out of the quantiles, which therefore describe the
 samples at a finite distance.
+
+The outputs stay aligned with the samples: ``MonteCarloResult.perihelion`` has
+one row per draw, NaN (flag False) where the parallax is <= 0, and
+``MonteCarloResult.valid`` marks the draws that were evaluated. Plain arrays
+with a mask rather than numpy masked arrays: the arrays go straight into numpy
+and the model code, and :meth:`MonteCarloResult.valid_values` is the one place
+that selects the draws a summary describes.
+
+Randomness: the draws come from ``numpy.random.default_rng(seed)``; the
+model's nuisance parameters (the star's mass under focusing) from a stream of
+their own, :func:`nuisance_rng` of the same seed, handed to
+:meth:`~perierr.models.base.ForwardModel.evaluate_draws`.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .._constants import OUTPUTS
 from ..errors import InputError, PerierrWarning
 from ..models.base import ForwardModel, Perihelion
 from ..sampling.gaussian import Samples, draw_gaussian, require_draws, resolve_seed
 from ..star import ObservedStar
-from ..summary import DEFAULT_LEVELS, summarize, threshold_probability
+from ..star.checks import require_motion, require_positive_parallax
+from ..summary import DEFAULT_LEVELS, canonical_level, summarize, threshold_probability
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
-from .checks import require_motion, require_positive_parallax
+from ..units import OUTPUT_LABELS, OUTPUTS, PARALLAX
 
-__all__ = ["DEFAULT_THRESHOLDS", "MonteCarloResult", "monte_carlo", "propagate_samples"]
+if TYPE_CHECKING:
+    from astropy.units import Quantity
 
-_UNITS = {"time_myr": "Myr", "distance_pc": "pc", "speed_kms": "km/s"}
+__all__ = [
+    "DEFAULT_THRESHOLDS", "MonteCarloResult", "evaluate_aligned", "monte_carlo", "nuisance_rng", "propagate_samples",
+]  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -37,8 +54,10 @@ class MonteCarloResult:
     samples : Samples
         The input draws (with weights, for reweighted samples).
     perihelion : Perihelion
-        Outputs of the samples with parallax > 0 (``valid``).
+        Outputs aligned with the samples, one row per draw: NaN (and flag
+        False) for the draws with parallax <= 0, which were not evaluated.
     valid : ndarray of bool, shape (n,)
+        True for the draws with parallax > 0 (the rows the summaries describe).
     summaries : dict
         Output name -> :class:`~perierr.summary.OutputSummary`.
     thresholds : list of ThresholdProbability
@@ -61,16 +80,36 @@ class MonteCarloResult:
         return self.samples.n
 
     @property
+    def n_valid(self) -> int:
+        """Samples with parallax > 0 (the ones the summaries describe)."""
+        return int(np.count_nonzero(self.valid))
+
+    @property
     def n_nonpositive_parallax(self) -> int:
         """Samples with parallax <= 0 (counted, not silently dropped)."""
-        return int(self.n - np.count_nonzero(self.valid))
+        return self.n - self.n_valid
+
+    def valid_values(self, x) -> tuple:
+        """The draws a summary describes: ``x`` and the weights over the samples with parallax > 0.
+
+        Parameters
+        ----------
+        x : array_like, shape (n,)
+            Aligned with the samples (e.g. ``perihelion.distance_pc``, or
+            another model evaluated on the same draws).
+
+        Returns
+        -------
+        values : ndarray, shape (n_valid,)
+        weights : ndarray, shape (n_valid,), or None
+        """
+        return _kept(np.asarray(x), self.valid, self.samples.weights)
 
     def interval(self, output: str = "distance_pc", level: float = 0.9) -> tuple:
         """Central ``level`` interval of an output, from the kept samples."""
-        x = self.perihelion.output(output)
-        w = None if self.samples.weights is None else self.samples.weights[self.valid]
+        x, w = self.valid_values(self.perihelion.output(output))
         s = summarize(x, levels=(0.5 - level / 2, 0.5 + level / 2), weights=w)
-        return s.quantiles[round(0.5 - level / 2, 12)], s.quantiles[round(0.5 + level / 2, 12)]
+        return s.quantile(0.5 - level / 2), s.quantile(0.5 + level / 2)
 
     def worst_relative_error(self) -> float:
         """Largest quantile MC error relative to the output's (q84 - q16) / 2."""
@@ -101,11 +140,70 @@ class MonteCarloResult:
         return out
 
 
+def nuisance_rng(seed) -> np.random.Generator:
+    """The generator of a run's nuisance draws (focusing masses): a stream of its own, fixed by the run's seed.
+
+    ``numpy.random.default_rng([seed, 1])``; the draws of the observables use
+    ``default_rng(seed)``. None (no seed) gives a fresh, unrecorded stream.
+    """
+    return np.random.default_rng(None if seed is None else [seed, 1])
+
+
+def evaluate_aligned(model: ForwardModel, values, *, reference=None, rng=None) -> tuple:
+    """The model on every draw with parallax > 0, aligned with the draws.
+
+    Parameters
+    ----------
+    model : ForwardModel
+    values : ndarray, shape (n, 6)
+        The draws.
+    reference : array_like, shape (6,), optional
+        The point to linearize around (see :meth:`ForwardModel.evaluate`).
+    rng : numpy.random.Generator, optional
+        Draws of the model's nuisance parameters (see :meth:`ForwardModel.evaluate_draws`).
+
+    Returns
+    -------
+    perihelion : Perihelion
+        One row per draw; NaN outputs (flag False) where the parallax is <= 0.
+    valid : ndarray of bool, shape (n,)
+        True where the parallax is > 0.
+    """
+    compact, valid = _evaluate_valid(model, values, reference, rng)
+    return (compact if valid.all() else compact.aligned(valid)), valid
+
+
+def _evaluate_valid(model, values, reference, rng) -> tuple:
+    """The model on the draws with parallax > 0 only (one row each, in order), and the mask of those draws."""
+    valid = values[:, PARALLAX] > 0
+    if valid.all():
+        return model.evaluate_draws(values, rng, reference=reference), valid
+    # compress the (6, n) layout when the draws have it: about twice as fast as boolean indexing,
+    # and it keeps each observable contiguous for the model
+    rows = np.compress(valid, values.T, axis=1).T
+    if rows.shape[0] == 0:
+        raise InputError(
+            "parallax",
+            float(np.max(values[:, PARALLAX])) if values.shape[0] else None,
+            "every sample has parallax <= 0 (this is the largest), so no perihelion can be computed by "
+            "inverting parallaxes; use a distance prior",
+        )
+    return model.evaluate_draws(rows, rng, reference=reference), valid
+
+
+def _kept(x, valid, weights) -> tuple:
+    """``x`` and ``weights`` over the True rows of ``valid`` (no copy when every row is valid)."""
+    if valid.all():
+        return x, weights
+    return x[valid], None if weights is None else weights[valid]
+
+
 def propagate_samples(
     samples: Samples,
     model: ForwardModel,
     *,
     reference=None,
+    rng=None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
 ) -> MonteCarloResult:
@@ -116,34 +214,32 @@ def propagate_samples(
     samples : Samples
     model : ForwardModel
     reference : array_like, shape (6,), optional
-        Nominal observables (for models that linearize around them).
+        Nominal observables: the point models linearize around.
+    rng : numpy.random.Generator, optional
+        Draws of the model's nuisance parameters, one per sample (e.g. the
+        star's mass under focusing); None keeps them at their nominal values.
+        :func:`monte_carlo` passes :func:`nuisance_rng` of its seed.
     levels : sequence of float
         Quantile levels to report (the defaults are always included).
     thresholds : sequence
         Distances for P(d_ph < D); see :func:`perierr.thresholds.parse_thresholds`.
     """
-    values = samples.values
-    valid = values[:, 2] > 0
+    compact, valid = _evaluate_valid(model, samples.values, reference, rng)
     all_valid = bool(valid.all())
-    # compress the (6, n) layout when the draws have it: about twice as fast as boolean indexing,
-    # and it keeps each observable contiguous for the model
-    rows = values if all_valid else np.compress(valid, values.T, axis=1).T
-    if rows.shape[0] == 0:
-        raise ValueError(
-            "every sample has parallax <= 0, so no perihelion can be computed by "
-            "inverting parallaxes; use a distance prior"
-        )
-    ph = model.evaluate(rows, reference=reference)
     w_all = samples.weights
-    w = None if w_all is None else (w_all if all_valid else w_all[valid])
-    levels = tuple(sorted(set(DEFAULT_LEVELS) | {round(float(q), 12) for q in levels}))
-    summaries = {q: summarize(ph.output(q), name=q, unit=_UNITS[q], levels=levels, weights=w) for q in OUTPUTS}
-    if all_valid:
-        d_all = ph.distance_pc
-    else:
-        d_all = np.full(values.shape[0], np.inf)
-        d_all[valid] = ph.distance_pc
-    probs = [threshold_probability(d_all, pc, label=label, weights=w_all) for label, pc in parse_thresholds(thresholds)]
+    w = None if w_all is None or all_valid else w_all[valid]
+    levels = tuple(sorted(set(DEFAULT_LEVELS) | {canonical_level(q) for q in levels}))
+    # the summaries describe the valid draws: the model's own rows, before they are spread out
+    summaries = {
+        q: summarize(compact.output(q), name=q, unit=OUTPUT_LABELS[q], levels=levels, weights=w_all if all_valid else w)
+        for q in OUTPUTS
+    }
+    ph = compact if all_valid else compact.aligned(valid)
+    # the aligned distances serve the thresholds as they are: NaN (parallax <= 0) is never below a threshold
+    probs = [
+        threshold_probability(ph.distance_pc, pc, label=label, weights=w_all)
+        for label, pc in parse_thresholds(thresholds)
+    ]
     return MonteCarloResult(samples, ph, valid, summaries, probs, levels)
 
 
@@ -152,9 +248,9 @@ def monte_carlo(
     model: ForwardModel,
     *,
     n: int = 100_000,
-    seed=None,
-    levels=DEFAULT_LEVELS,
-    thresholds=DEFAULT_THRESHOLDS,
+    seed: int | np.random.Generator | None = None,
+    levels: Sequence[float] = DEFAULT_LEVELS,
+    thresholds: Sequence[str | float | Quantity] = DEFAULT_THRESHOLDS,
     target_error: float | None = None,
     max_samples: int = 10_000_000,
 ) -> MonteCarloResult:
@@ -166,8 +262,10 @@ def monte_carlo(
     model : ForwardModel
     n : int
         Number of draws (the first round, in the adaptive mode).
-    seed : int or None
-        Seed of the ``numpy.random.Generator``; None picks one and records it.
+    seed : int, numpy.random.Generator or None
+        Seed of the ``numpy.random.Generator``; None picks one, a Generator gives one, and the
+        integer is recorded (see :func:`perierr.sampling.gaussian.resolve_seed`).
+        The model's nuisance draws use :func:`nuisance_rng` of the same seed.
     levels, thresholds
         See :func:`propagate_samples`.
     target_error : float, optional
@@ -180,7 +278,7 @@ def monte_carlo(
     -------
     MonteCarloResult
     """
-    require_positive_parallax(star.mean[2], method="Monte Carlo by parallax inversion")
+    require_positive_parallax(star.mean[PARALLAX], method="Monte Carlo by parallax inversion")
     require_motion(star.mean)
     n = require_draws(n)
     if target_error is not None:
@@ -190,17 +288,18 @@ def monte_carlo(
     seed = resolve_seed(seed)
     rng = np.random.default_rng(seed)
     values = draw_gaussian(star.mean, star.cov, n, rng)
+    nuisance = nuisance_rng(seed)  # one stream for every round of the adaptive mode
 
     def run(vals):
         return propagate_samples(
-            Samples(vals, seed=seed), model, reference=star.mean, levels=levels, thresholds=thresholds
+            Samples(vals, seed=seed), model, reference=star.mean, rng=nuisance, levels=levels, thresholds=thresholds
         )
 
     result = run(values)
     if target_error is None:
         return result
     if not target_error > 0:
-        raise ValueError(f"target_error = {target_error!r}: expected a positive fraction, e.g. 0.01")
+        raise InputError("target_error", target_error, "expected a positive fraction, e.g. 0.01")
     rounds = 1
     worst = result.worst_relative_error()
     while worst > target_error and values.shape[0] < max_samples:

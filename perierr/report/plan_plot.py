@@ -4,13 +4,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .._constants import AU_PER_PC
+from ..plan.metrics import Metric
+from ..units import AU_PER_PC
 
 __all__ = ["plot_gain_curves"]
 
+#: (metric, axis label, scale); None is the curves' own probability metric.
 _PANELS = (
-    ("distance_pc.width90", "90 % width of d_ph [au]", AU_PER_PC),
-    ("time_myr.width90", "90 % width of t_ph [Myr]", 1.0),
+    (Metric("distance_pc", "width90"), "90 % width of d_ph [au]", AU_PER_PC),
+    (Metric("time_myr", "width90"), "90 % width of t_ph [Myr]", 1.0),
     (None, "P(d_ph < D)", 1.0),
 )
 
@@ -37,9 +39,8 @@ def plot_gain_curves(curves, path=None):
     except ImportError:
         raise ImportError("plotting needs matplotlib: pip install 'perierr[plot]'") from None
     fig, axes = plt.subplots(1, 3, figsize=(13, 4), constrained_layout=True)
-    pkey = f"p:{curves.threshold}"
     for ax, (key, label, scale) in zip(axes, _PANELS):
-        key = key or pkey
+        key = key or curves.probability
         for name in curves.inputs:
             prec = curves.precision[name]
             rel = prec / curves.sigma[name]

@@ -4,14 +4,16 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._constants import AU_PER_PC
+from ..cautions import HAZARD, messages
+from ..plan.curves import WIDTH90_DISTANCE
+from ..units import AU_PER_PC
 from .shares import format_share, input_label
 
 __all__ = ["format_plan"]
 
 
 def _interval(summary, scale=1.0, fmt=".4g"):
-    lo, hi = summary.quantiles[0.05] * scale, summary.quantiles[0.95] * scale
+    lo, hi = summary.quantile(0.05) * scale, summary.quantile(0.95) * scale
     return f"{lo:{fmt}} .. {hi:{fmt}} (width {hi - lo:{fmt}})"
 
 
@@ -36,7 +38,7 @@ def _what_if_lines(w) -> list:
 
 
 def _curve_lines(c) -> list:
-    key = "distance_pc.width90"
+    key = WIDTH90_DISTANCE
     out = [f"Gain curves: 90 % width of d_ph [au] vs new precision (today {c.current[key] * AU_PER_PC:,.0f} au)", ""]
     out.append(f"  {'input':<17}{'today sigma':>16}{'s = 1x':>11}{'s = 1/3x':>11}{'s = 1/10x':>11}{'smallest s':>11}")
     for name in c.inputs:
@@ -117,9 +119,10 @@ def format_plan(plan) -> str:
             )
             lines.append(f"  after the what-if measurement, shares of Var(d_ph): {parts}")
         lines.append("")
-    if plan.cautions or plan.star.notes:
+    shown = messages(tuple(plan.cautions) + tuple(plan.star.cautions))
+    if shown:
         lines.append("Read with care")
-        lines += [f"  - {message}" for message in list(plan.cautions) + list(plan.star.notes)]
+        lines += [f"  - {message}" for message in shown]
         lines.append("")
-    lines.append("perierr predicts statistical encounters, not impact hazards.")
+    lines.append(HAZARD)
     return "\n".join(lines)

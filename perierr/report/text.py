@@ -8,20 +8,11 @@ from __future__ import annotations
 
 import math
 
-from .._constants import AU_PER_PC, OBSERVABLES, OUTPUTS
+from ..cautions import HAZARD, messages
+from ..units import AU_PER_PC, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_TITLES, OUTPUTS
 from .shares import format_share, input_label
 
 __all__ = ["format_analysis", "format_value"]
-
-_LABEL = {"time_myr": "time [Myr]", "distance_pc": "distance [pc]", "speed_kms": "speed [km/s]"}
-_UNIT_OBS = {
-    "ra": "deg",
-    "dec": "deg",
-    "parallax": "mas",
-    "pmra": "mas/yr",
-    "pmdec": "mas/yr",
-    "radial_velocity": "km/s",
-}
 
 
 def _decimals(err: float) -> int:
@@ -37,88 +28,117 @@ def format_value(value: float, err: float, *, signed: bool = False) -> str:
 
 
 def _row(label, nominal, sigma, s, scale=1.0, signed=False):
-    q = s.quantiles
-    err = max(sigma * scale if sigma is not None else 0.0, (q[0.84] - q[0.16]) * 0.5 * scale) / 10
+    q = s.quantile
+    err = max(sigma * scale if sigma is not None else 0.0, (q(0.84) - q(0.16)) * 0.5 * scale) / 10
     f = lambda x: format_value(x * scale, err, signed=signed)  # noqa: E731
     lin = "" if nominal is None else f"{f(nominal):>11} ± {format_value(sigma * scale, err):<9}"
-    return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q[0.16])} … {f(q[0.84])}   {f(q[0.05])} … {f(q[0.95])}"
+    return f"  {label:<15}{lin:<24}{f(s.median):>11}   {f(q(0.16))} … {f(q(0.84))}   {f(q(0.05))} … {f(q(0.95))}"
 
 
-def format_analysis(analysis) -> str:
-    """Render an analysis as a readable multi-line report."""
+def format_analysis(analysis, *, hazard: bool = True) -> str:
+    """Render an analysis as a readable multi-line report.
+
+    Parameters
+    ----------
+    analysis : Analysis
+    hazard : bool
+        End with :data:`perierr.cautions.HAZARD`; a face that prints several
+        reports says it once, at the end.
+    """
     a = analysis
-    star, mc = a.star, a.monte_carlo
-    lines = []
+    mc = a.monte_carlo
+    lines = _header_lines(a) + [""] + _input_lines(a.star) + [""]
+    lines += _perihelion_lines(a.linear, mc)
+    lines += _model_lines(mc.perihelion.diagnostics)
+    lines += _monte_carlo_lines(mc) + [""]
+    lines += _threshold_lines(mc)
+    if a.budget is not None:
+        lines += [""] + _budget_lines(a.budget)
+    if a.comparison:
+        lines += [""] + _comparison_lines(a.comparison)
+    if a.prior is not None:
+        lines += [""] + _prior_lines(a.prior)
+    if a.calibration is not None and a.calibration.active:
+        lines += [""] + _calibration_lines(a.calibration)
+    lines += _caution_lines(a.all_cautions)
+    if hazard:
+        lines += ["", HAZARD]
+    return "\n".join(lines)
+
+
+def _header_lines(a) -> list:
+    """The title line: star, epoch and model."""
+    star = a.star
     model_name = a.model.get("description", a.model.get("name", "?"))
     epoch = f"J{star.ref_epoch:g}" if star.ref_epoch is not None else "epoch not given"
-    lines.append(f"perierr · closest approach to the Sun of {star.name} ({epoch}; model: {model_name})")
-    lines.append("")
-    lines.append("Input (catalogue units)")
+    return [f"perierr · closest approach to the Sun of {star.name} ({epoch}; model: {model_name})"]
+
+
+def _input_lines(star) -> list:
+    """The input section: each observable with its catalogue error."""
+    lines = ["Input (catalogue units)"]
     cat = star.catalogue_errors()
     for name in OBSERVABLES:
-        value, err = star.mean[OBSERVABLES.index(name)], cat[f"{name}_error"]
+        value, err = star.mean[INDEX[name]], cat[f"{name}_error"]
         shown = f"{value:.7f}" if name in ("ra", "dec") else format_value(value, err)
-        unit = _UNIT_OBS[name] + ("  (error in mas)" if name in ("ra", "dec") else "")
+        unit = INTERNAL_LABELS[name] + ("  (error in mas)" if name in ("ra", "dec") else "")
         lines.append(f"  {name:<16}{shown:>14} ± {err:<10.4g} {unit}")
     if star.fractional_parallax_error < math.inf:
         lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
-    lines.append("")
+    return lines
+
+
+def _perihelion_lines(lin, mc) -> list:
+    """The perihelion table: linear and Monte Carlo values, notes and extra quantiles."""
     head = f"  {'':<15}{'nominal ± linear 1σ':<24}{'MC median':>11}   {'16 % … 84 %':<23}   5 % … 95 %"
-    lines.append("Perihelion (time relative to the epoch; negative = past)")
-    lines.append(head)
-    lin = a.linear
+    lines = ["Perihelion (time relative to the epoch; negative = past)", head]
     for k, q in enumerate(OUTPUTS):
         nominal = None if lin is None else lin.value[k]
         sigma = None if lin is None else lin.sigma[k]
-        lines.append(_row(_LABEL[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
+        lines.append(_row(OUTPUT_TITLES[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
         if q == "distance_pc":
             lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
     for q in OUTPUTS:
         if mc.summaries[q].note:
-            lines.append(f"  {_LABEL[q]}: {mc.summaries[q].note}")
+            lines.append(f"  {OUTPUT_TITLES[q]}: {mc.summaries[q].note}")
+    return lines + _extra_quantile_lines(mc)
+
+
+def _extra_quantile_lines(mc) -> list:
+    """Quantiles asked for beyond the five the table shows, with their MC errors."""
     extra = [q for q in mc.levels if q not in (0.05, 0.16, 0.5, 0.84, 0.95)]
-    if extra:
-        lines.append("  other quantiles (MC error in brackets):")
-        for q in OUTPUTS:
-            s = mc.summaries[q]
-            err = 0.5 * (s.quantiles[0.84] - s.quantiles[0.16]) / 10
-            cells = ", ".join(
-                f"{100 * lv:g} %: {format_value(s.quantiles[lv], err)} ({s.quantile_se[lv]:.2g})" for lv in extra
-            )
-            lines.append(f"    {_LABEL[q]:<15}{cells}")
-    info = mc.perihelion.info
-    if info.get("method") and info.get("model") != "straight_line":
-        parts = [f"method {info['method']}"]
-        for key, label in (
-            ("n_reference_orbits", "reference orbits"),
-            ("fallback_samples", "draws integrated directly"),
-            ("map_error_au_max", "largest map error in the check [au]"),
-        ):
-            if key in info:
-                parts.append(f"{label} {info[key]:.3g}" if isinstance(info[key], float) else f"{label} {info[key]}")
-        if info.get("fallback_reason"):
-            parts.append(f"because {info['fallback_reason']}")
-        lines.append("  model: " + "; ".join(parts))
-    focus = info.get("focusing")
-    if isinstance(focus, dict) and "median_delta_distance_pc" in focus:
-        lines.append(
-            f"  gravitational focusing ({focus['mass_msun']:g} ± {focus['mass_error_msun']:g} M_sun) moved d_ph by "
-            f"{focus['median_delta_distance_pc'] * AU_PER_PC:+.3g} au and v_ph by "
-            f"{focus['median_delta_speed_kms']:+.3g} km/s (medians over the draws)"
+    if not extra:
+        return []
+    lines = ["  other quantiles (MC error in brackets):"]
+    for q in OUTPUTS:
+        s = mc.summaries[q]
+        err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) / 10
+        cells = ", ".join(
+            f"{100 * lv:g} %: {format_value(s.quantile(lv), err)} ({s.quantile_error(lv):.2g})" for lv in extra
         )
+        lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
+    return lines
+
+
+def _monte_carlo_lines(mc) -> list:
+    """The Monte Carlo line: draws, seed, worst MC error, weights and non-positive parallaxes."""
     worst = mc.worst_relative_error()
-    lines.append(
+    lines = [
         f"  Monte Carlo: {mc.n:,} draws ({mc.samples.method}), seed {mc.samples.seed}; every quantile's "
         f"MC error ≤ {worst:.2%} of its (q84 − q16)/2"
-    )
+    ]
     if mc.samples.weights is not None:
         lines.append(f"  effective sample size {mc.samples.effective_size:,.0f}")
     if mc.n_nonpositive_parallax:
         lines.append(
             f"  {mc.n_nonpositive_parallax:,} draws with parallax <= 0 (counted as never passing within any threshold)"
         )
-    lines.append("")
-    lines.append("Chance that the star passes within")
+    return lines
+
+
+def _threshold_lines(mc) -> list:
+    """The chance of passing within each threshold, or a 95 % bound when no or every draw passed."""
+    lines = ["Chance that the star passes within"]
     for t in mc.thresholds:
         if t.count == 0:
             text = f"  < {t.upper95:.4%} (95 % bound; no draw passed)"
@@ -127,63 +147,50 @@ def format_analysis(analysis) -> str:
         else:
             text = f"{t.probability:8.2%} ± {t.se:.2%}"
         lines.append(f"  {t.label:<12} {text}")
-    if a.budget is not None:
-        lines.append("")
-        lines.append("Who sets the error: share of the variance (linearized Shapley; covariance term in brackets)")
-        lines.append(f"  {'input':<17}{'distance':>18}{'time':>18}")
-        b = a.budget
-        sd, st = b.share("distance_pc"), b.share("time_myr")
-        cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
-        for name in b.inputs:
-            cells = (
-                format_share(sd[name], bounded=True), format_share(cd[name]),
-                format_share(st[name], bounded=True), format_share(ct[name]),
-            )  # fmt: skip
-            lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
-        lines.append(
-            f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
-        )
-    if a.comparison:
-        lines.append("")
-        lines.append("Against straight-line motion on the same draws (this model minus straight line)")
-        for q in OUTPUTS:
-            c = a.comparison[q]
-            lines.append(f"  {_LABEL[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
-            if q == "distance_pc":
-                au = AU_PER_PC
-                lines.append(
-                    f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
-                    f"difference {c['difference_of_medians'] * au:+,.0f}"
-                )
-    if a.prior:
-        lines.append("")
-        lines.extend(_prior_lines(a.prior))
-    cal = getattr(a, "calibration", None)
-    if cal and (
-        cal["parallax_zero_point"]["value_mas"]
-        or cal["parallax_zero_point"]["error_mas"]
-        or any(f != 1 for f in cal["error_inflation"].values())
-    ):
-        z = cal["parallax_zero_point"]
-        lines.append("")
-        lines.append(
-            f"Calibration: parallax zero-point {z['value_mas']:+.4g} ± {z['error_mas']:.2g} mas "
-            "(corrected = catalogue − zero-point)"
-        )
-        inflated = {k: f for k, f in cal["error_inflation"].items() if f != 1}
-        if inflated:
-            lines.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in inflated.items()))
-    if a.warnings or star.notes:
-        lines.append("")
-        lines.append("Read with care")
-        for message in list(a.warnings) + [n for n in star.notes]:
-            lines.append(f"  - {message}")
-    lines.append("")
+    return lines
+
+
+def _budget_lines(b) -> list:
+    """The error budget: each input's variance share for distance and time."""
+    lines = [
+        "Who sets the error: share of the variance (linearized Shapley; covariance term in brackets)",
+        f"  {'input':<17}{'distance':>18}{'time':>18}",
+    ]
+    sd, st = b.share("distance_pc"), b.share("time_myr")
+    cd, ct = b.share("distance_pc", "covariance"), b.share("time_myr", "covariance")
+    for name in b.inputs:
+        cells = (
+            format_share(sd[name], bounded=True), format_share(cd[name]),
+            format_share(st[name], bounded=True), format_share(ct[name]),
+        )  # fmt: skip
+        lines.append(f"  {input_label(name):<17}{cells[0]:>8} ({cells[1]:>6}){cells[2]:>9} ({cells[3]:>6})")
     lines.append(
-        "perierr predicts a statistical encounter from the measured motion; it is not an impact-hazard "
-        "assessment for comets or the Oort cloud."
+        f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
     )
-    return "\n".join(lines)
+    return lines
+
+
+def _comparison_lines(comparison) -> list:
+    """The comparison with straight-line motion on the same draws."""
+    lines = ["Against straight-line motion on the same draws (this model minus straight line)"]
+    for q in OUTPUTS:
+        c = comparison[q]
+        lines.append(f"  {OUTPUT_TITLES[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
+        if q == "distance_pc":
+            au = AU_PER_PC
+            lines.append(
+                f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
+                f"difference {c['difference_of_medians'] * au:+,.0f}"
+            )
+    return lines
+
+
+def _caution_lines(cautions) -> list:
+    """The cautions section, empty when there is nothing to say."""
+    shown = messages(cautions)
+    if not shown:
+        return []
+    return ["", "Read with care"] + [f"  - {message}" for message in shown]
 
 
 def _dominant(budget, output: str) -> str:
@@ -191,30 +198,66 @@ def _dominant(budget, output: str) -> str:
     return "undefined" if name is None else input_label(name)
 
 
-def _prior_lines(prior: dict) -> list:
-    """The distance-prior section: what was assumed and how far to trust the sampling."""
+def _model_lines(diag) -> list:
+    """How the model ran (methods other than the straight line) and what focusing changed."""
+    out = []
+    if diag.method and diag.model != "straight_line":
+        parts = [f"method {diag.method}"]
+        for value, label in (
+            (diag.n_reference_orbits, "reference orbits"),
+            (diag.fallback_samples, "draws integrated directly"),
+            (diag.map_error_au_max, "largest map error in the check [au]"),
+        ):
+            if value is not None:
+                parts.append(f"{label} {value:.3g}" if isinstance(value, float) else f"{label} {value}")
+        if diag.fallback_reason:
+            parts.append(f"because {diag.fallback_reason}")
+        out.append("  model: " + "; ".join(parts))
+    focus = diag.focusing
+    if focus is not None:
+        out.append(
+            f"  gravitational focusing ({focus.mass_msun:g} ± {focus.mass_error_msun:g} M_sun) moved d_ph by "
+            f"{focus.median_delta_distance_pc * AU_PER_PC:+.3g} au and v_ph by "
+            f"{focus.median_delta_speed_kms:+.3g} km/s (medians over the draws)"
+        )
+    return out
+
+
+def _calibration_lines(cal) -> list:
+    """The calibration section: the zero-point applied and the inflated errors."""
+    out = [
+        f"Calibration: parallax zero-point {cal.zero_point_mas:+.4g} ± {cal.zero_point_error_mas:.2g} mas "
+        "(corrected = catalogue − zero-point)"
+    ]
+    if cal.inflated:
+        out.append("  errors inflated: " + ", ".join(f"{k} ×{f:g}" for k, f in cal.inflated.items()))
+    return out
+
+
+def _prior_lines(prior) -> list:
+    """The distance-prior section of a ``PriorInfo``: what was assumed and how far to trust the sampling."""
     params = ", ".join(
-        f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in prior.get("parameters", {}).items()
+        f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in (prior.parameters or {}).items()
     )
-    method = prior.get("method")
-    out = [f"Distance prior: {prior['name']}" + (f" ({params})" if params else "") + f"; posterior by {method}"]
-    ess = prior.get("effective_size")
+    method = prior.method
+    out = [f"Distance prior: {prior.name}" + (f" ({params})" if params else "") + f"; posterior by {method}"]
+    ess = prior.effective_size
     if method == "reweight" and ess is not None:
         out.append(
-            f"  importance weights: effective sample size {ess:,.0f} of {prior.get('n_drawn', 0):,} draws "
-            f"(largest weight {prior.get('max_weight', 0):.2g})"
+            f"  importance weights: effective sample size {ess:,.0f} of {prior.n_drawn or 0:,} draws "
+            f"(largest weight {prior.max_weight or 0:.2g})"
         )
     elif method == "mcmc":
-        tau = prior.get("autocorrelation_time", {})
-        acc = prior.get("acceptance_fraction", 0.0)
+        tau = prior.autocorrelation_time or {}
+        acc = prior.acceptance_fraction or 0.0
         out.append(
-            f"  emcee: {prior.get('n_walkers')} walkers × {prior.get('n_steps')} steps, burn-in "
-            f"{prior.get('burn_in')}, thin {prior.get('thin')}, acceptance {acc:.2f}"
+            f"  emcee: {prior.n_walkers} walkers × {prior.n_steps} steps, burn-in "
+            f"{prior.burn_in}, thin {prior.thin}, acceptance {acc:.2f}"
         )
         if tau:
             out.append(f"  autocorrelation time ≤ {max(tau.values()):.1f} steps; effective sample size {ess:,.0f}")
-        if prior.get("switched_to_mcmc"):
-            out.append(f"  switched to MCMC: {prior['switched_to_mcmc']}")
+        if prior.switched_to_mcmc:
+            out.append(f"  switched to MCMC: {prior.switched_to_mcmc}")
     elif ess is not None:
         out.append(f"  effective sample size {ess:,.0f}")
     return out

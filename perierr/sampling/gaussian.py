@@ -7,7 +7,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Samples", "draw_gaussian", "psd_factor", "require_draws", "resolve_seed"]
+from ..errors import InputError
+
+__all__ = ["SEED_TYPES", "Samples", "draw_gaussian", "psd_factor", "require_draws", "resolve_seed"]
 
 #: Peak memory per Monte Carlo draw, bytes: measured about 110 for the straight line and 900 for the
 #: orbit model (benchmarks/), rounded up.
@@ -92,8 +94,6 @@ def require_draws(n, *, field: str = "samples", minimum: int = 100) -> int:
     InputError
         Naming ``field``, the value and what would be accepted.
     """
-    from ..errors import InputError
-
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < minimum:
         raise InputError(field, n, f"expected a whole number of draws >= {minimum}")
     try:
@@ -111,13 +111,53 @@ def require_draws(n, *, field: str = "samples", minimum: int = 100) -> int:
     return int(n)
 
 
-def resolve_seed(seed) -> int:
-    """Turn ``None`` into a fresh recorded seed; pass integers through."""
+#: What ``seed`` accepts, in words (error messages and docstrings).
+SEED_TYPES = "a non-negative integer, a numpy.random.Generator or None"
+
+
+def resolve_seed(seed: int | np.random.Generator | None) -> int:
+    """The integer seed a computation runs with and records, so that its result can be re-run.
+
+    The rule, the same for every function of perierr that takes ``seed``:
+
+    * an integer >= 0 is used as it is;
+    * ``None`` picks a fresh 63-bit seed from the operating system's entropy;
+    * a :class:`numpy.random.Generator` gives one 63-bit integer
+      (``seed.integers(2**63)``, which advances the generator by one draw), and
+      the computation then proceeds exactly as with that integer.
+
+    The result records the integer, so passing it back reproduces the result;
+    a generator in the same state gives the same integer, hence the same result.
+
+    Parameters
+    ----------
+    seed : int, numpy.random.Generator or None
+
+    Returns
+    -------
+    int
+        In ``[0, 2**63)`` for ``None`` and generators.
+
+    Raises
+    ------
+    InputError
+        For anything else (a negative number, a bool, a float, a legacy ``RandomState``).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> resolve_seed(7)
+    7
+    >>> resolve_seed(np.random.default_rng(7)) == resolve_seed(np.random.default_rng(7))
+    True
+    """
     if seed is None:
         return int(np.random.SeedSequence().entropy % (2**63))
-    if isinstance(seed, (int, np.integer)) and seed >= 0:
+    if isinstance(seed, np.random.Generator):
+        return int(seed.integers(2**63))
+    if isinstance(seed, (int, np.integer)) and not isinstance(seed, bool) and seed >= 0:
         return int(seed)
-    raise ValueError(f"seed = {seed!r}: expected a non-negative integer or None")
+    raise InputError("seed", seed, f"expected {SEED_TYPES}")
 
 
 def draw_gaussian(mean, cov, n, rng) -> np.ndarray:

@@ -9,7 +9,7 @@ Modules: :mod:`.potentials` (all components: :mod:`.potential_base`,
 """
 
 from .model import ORBIT_OPTIONS, OrbitModel, OrbitOptionError
-from .potentials import NFW, CompositePotential, Hernquist, MiyamotoNagai, Plummer, PowerLawCutoff
+from .potentials import NFW, CompositePotential, Hernquist, MiyamotoNagai, Plummer, Potential, PowerLawCutoff
 from .presets import POTENTIAL_PRESETS, get_potential
 from .sun import SOLAR_PARAMETER_SETS, SolarParameters, get_solar_parameters
 
@@ -17,6 +17,7 @@ __all__ = [
     "OrbitModel",
     "OrbitOptionError",
     "ORBIT_OPTIONS",
+    "Potential",
     "CompositePotential",
     "MiyamotoNagai",
     "PowerLawCutoff",

@@ -1,7 +1,7 @@
 """Where the orbit model evaluates: search window, tabulation grid, map span, distance bins.
 
 Times are in pc/(km/s) unless the name says Myr (see
-:data:`perierr._constants.MYR_PER_PC_PER_KMS`); positions in pc.
+:data:`perierr.units.MYR_PER_PC_PER_KMS`); positions in pc.
 """
 
 from __future__ import annotations
@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from ..._constants import MYR_PER_PC_PER_KMS as _C
+from ...units import MYR_PER_PC_PER_KMS as _C
 
 __all__ = ["rownorm", "window_and_nodes", "map_span", "distance_bins"]
 

@@ -200,13 +200,7 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coe
     m = len(nodes)
     t = np.clip(np.asarray(t_start, dtype=float), nodes[0], nodes[-1])
     n = t.size
-
-    def coefs(kk, rows):  # (24, len(rows)): components in rows, samples in columns
-        if coefficients:
-            return node_values(kk, rows)
-        c0, c1, c2, c3, _ = _cubic(nodes[kk], nodes[kk + 1], *node_values(kk, rows))
-        return np.concatenate([c0, c1, c2, c3], axis=1).T
-
+    coefs = _coefficient_source(nodes, node_values, coefficients)
     k = np.clip(np.searchsorted(nodes, t, side="right") - 1, 0, m - 2)
     c = np.ascontiguousarray(coefs(k, np.arange(n)))
     h = nodes[k + 1] - nodes[k]
@@ -221,40 +215,12 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coe
             ca, ha, ka, t_old = c, h, k, t
         else:
             ca, ha, ka, t_old = np.take(c, act, axis=1), h[act], k[act], t[act]
-        u = (t_old - nodes[ka]) / ha
-        # Horner in place: position and velocity, and the acceleration
-        p = ca[18:] * u
-        p += ca[12:18]
-        p *= u
-        p += ca[6:12]
-        p *= u
-        p += ca[:6]
-        acc = ca[21:] * (3.0 * u)
-        acc += 2.0 * ca[15:18]
-        acc *= u
-        acc += ca[9:12]
-        acc /= ha
-        x, v = p[:3], p[3:]
-        f = x[0] * v[0] + x[1] * v[1] + x[2] * v[2]
-        fp = v[0] * v[0] + v[1] * v[1] + v[2] * v[2] + x[0] * acc[0] + x[1] * acc[1] + x[2] * acc[2]
+        f, fp = _separation_rate(ca, (t_old - nodes[ka]) / ha, ha)
         if every and act.size < n:
             f, fp, ha, ka, t_old = f[act], fp[act], ha[act], ka[act], t_old[act]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * ha)
-        t_new = np.clip(t_old + step, nodes[0], nodes[-1])
-        edge = (((t_new == nodes[0]) & (f > 0)) | ((t_new == nodes[-1]) & (f < 0))) & (
-            t_old == t_new
-        )
-        conv = np.abs(step) <= tol * np.maximum(1.0, np.abs(t_old))
-        finished = conv | edge
+        t_new, edge, finished = _newton_step(nodes, t_old, f, fp, ha, tol)
         t[act] = t_new
-        k_new = np.clip(np.searchsorted(nodes, t_new, side="right") - 1, 0, m - 2)
-        move = (k_new != ka) & ~finished
-        if move.any():
-            rows = act[move]
-            k[rows] = k_new[move]
-            h[rows] = nodes[k[rows] + 1] - nodes[k[rows]]
-            c[:, rows] = coefs(k[rows], rows)
+        _move_to_new_intervals(nodes, coefs, act, ka, t_new, finished, k, h, c)
         if finished.any():
             outside[act[edge]] = True
             done[act[finished]] = True
@@ -262,3 +228,58 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coe
     u = (t - nodes[k]) / h
     state = c[:6] + u * (c[6:12] + u * (c[12:18] + u * c[18:]))
     return t, state.T, outside, done
+
+
+def _coefficient_source(nodes, node_values, coefficients):
+    """``coefs(k, rows) -> (24, len(rows))``: cubic coefficients, components in rows, samples in columns."""
+
+    def coefs(kk, rows):
+        if coefficients:
+            return node_values(kk, rows)
+        c0, c1, c2, c3, _ = _cubic(nodes[kk], nodes[kk + 1], *node_values(kk, rows))
+        return np.concatenate([c0, c1, c2, c3], axis=1).T
+
+    return coefs
+
+
+def _separation_rate(ca, u, ha):
+    """``f = x . v`` and its time derivative ``v . v + x . a`` from cubic coefficients (24, n) at ``u``."""
+    # Horner in place: position and velocity, and the acceleration
+    p = ca[18:] * u
+    p += ca[12:18]
+    p *= u
+    p += ca[6:12]
+    p *= u
+    p += ca[:6]
+    acc = ca[21:] * (3.0 * u)
+    acc += 2.0 * ca[15:18]
+    acc *= u
+    acc += ca[9:12]
+    acc /= ha
+    x, v = p[:3], p[3:]
+    f = x[0] * v[0] + x[1] * v[1] + x[2] * v[2]
+    fp = v[0] * v[0] + v[1] * v[1] + v[2] * v[2] + x[0] * acc[0] + x[1] * acc[1] + x[2] * acc[2]
+    return f, fp
+
+
+def _newton_step(nodes, t_old, f, fp, ha, tol):
+    """New times (clamped to the grid), rows stuck at a window edge, and rows finished (converged or at an edge)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        step = np.where(fp > 0, -f / fp, -np.sign(f) * 0.5 * ha)
+    t_new = np.clip(t_old + step, nodes[0], nodes[-1])
+    edge = (((t_new == nodes[0]) & (f > 0)) | ((t_new == nodes[-1]) & (f < 0))) & (
+        t_old == t_new
+    )
+    conv = np.abs(step) <= tol * np.maximum(1.0, np.abs(t_old))
+    return t_new, edge, conv | edge
+
+
+def _move_to_new_intervals(nodes, coefs, act, ka, t_new, finished, k, h, c):
+    """In place: unfinished rows whose time left their grid interval get its index, width and coefficients."""
+    k_new = np.clip(np.searchsorted(nodes, t_new, side="right") - 1, 0, len(nodes) - 2)
+    move = (k_new != ka) & ~finished
+    if move.any():
+        rows = act[move]
+        k[rows] = k_new[move]
+        h[rows] = nodes[k[rows] + 1] - nodes[k[rows]]
+        c[:, rows] = coefs(k[rows], rows)

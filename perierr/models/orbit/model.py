@@ -1,10 +1,12 @@
 """The orbit model: perihelion of a star integrated with the Sun in a Galactic potential.
 
 Monte Carlo samples of one star go through a second-order state-transition
-map of a few reference orbits (one per distance bin), which is checked
-against direct integration of the samples farthest from their reference;
-bins whose check fails, and all rows evaluated without a reference, are
+map of a few reference orbits (one per distance bin) built around the
+``reference`` point, which is checked against direct integration of the
+samples farthest from their reference; bins whose check fails, and all rows
+evaluated without a reference (no point to build the map around), are
 integrated directly (vectorized over samples). See
+:mod:`perierr.models.orbit.mapping` (the map's steps),
 :mod:`perierr.models.orbit.transition` and
 :mod:`perierr.models.orbit.integrate`.
 """
@@ -12,15 +14,19 @@ integrated directly (vectorized over samples). See
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
-from ..._constants import AU_PER_PC
-from ..._constants import MYR_PER_PC_PER_KMS as _C
+from ...errors import InputError
 from ...frames import cartesian_jacobian, observables_to_cartesian
+from ...units import MYR_PER_PC_PER_KMS as _C
+from ...units import PARALLAX
 from ..base import ForwardModel, Perihelion
-from .grid import distance_bins, map_span, rownorm, window_and_nodes
+from ..diagnostics import ModelDiagnostics
+from .grid import map_span, rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
+from .mapping import map_perihelia
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
 from .sun import SolarParameters, get_solar_parameters
@@ -35,9 +41,6 @@ ORBIT_OPTIONS = (
     "bin_width_pc", "min_bin_samples", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
-#: The reference orbits and checks use fixed-step RK4 with steps halved while its
-#: estimated position error exceeds this fraction of ``map_tolerance_au``.
-_RK4_ERROR_FRACTION = 0.3
 _map_span = map_span  # module attribute, so that tests can narrow the span
 
 
@@ -51,12 +54,12 @@ MAX_DISTANCE_PC = 1e5
 MAX_SPEED_KMS = 1e4
 
 
-class OrbitOptionError(ValueError):
-    """An option of the orbit model has an invalid value."""
+class OrbitOptionError(InputError):
+    """An option of the orbit model has an invalid value (an :class:`~perierr.errors.InputError`)."""
 
 
 def _bad(option, value, expected):
-    return OrbitOptionError(f"orbit model option {option}={value!r} is invalid; expected {expected}")
+    return OrbitOptionError(option, value, f"expected {expected} (an option of the orbit model)")
 
 
 def _positive(option, value):
@@ -205,12 +208,13 @@ class OrbitModel(ForwardModel):
         if obs.ndim == 1:
             obs = obs[None, :]
         if obs.ndim != 2 or obs.shape[1] != 6:
-            raise ValueError(f"observables have shape {obs.shape}; expected (n, 6)")
+            raise InputError("observables", f"shape {obs.shape}", "expected shape (n, 6)")
         if not np.all(np.isfinite(obs)):
-            raise ValueError("observables contain non-finite values; expected finite numbers")
-        if np.any(obs[:, 2] <= 0):
-            bad = float(obs[obs[:, 2] <= 0, 2][0])
-            raise ValueError(f"parallax={bad!r} mas is not positive; expected parallax > 0")
+            bad = obs[~np.isfinite(obs)][0]
+            raise InputError("observables", float(bad), "expected finite numbers")
+        if np.any(obs[:, PARALLAX] <= 0):
+            bad = float(obs[obs[:, PARALLAX] <= 0, PARALLAX][0])
+            raise InputError("parallax", bad, "expected a positive parallax in mas (the orbit model inverts it)")
         xv = observables_to_cartesian(obs)
         rel = (xv.reshape(-1, 3) @ self._rotation.T).reshape(-1, 6)
         return obs, rel
@@ -246,138 +250,24 @@ class OrbitModel(ForwardModel):
         return t, state, outside, conv
 
     def _map(self, rel_all, ref_rel, nodes, t_lin_all):
-        bidx, refs, sparse = distance_bins(
-            rel_all, ref_rel, bin_width_pc=self.bin_width_pc, min_bin_samples=self.min_bin_samples
-        )
-        mapped = np.flatnonzero(~sparse)
-        if mapped.size == 0:  # every distance bin too sparse for a reference orbit (few, widely spread draws)
-            t, state, outside, conv = self._direct(rel_all, nodes)
-            n = rel_all.shape[0]
-            diag = {"n_reference_orbits": 0, "n_checked": 0, "fallback_samples": 0, "sparse_bin_samples": n,
-                    "beyond_span_samples": 0,
-                    "fallback_reason": f"all {n} samples integrated directly: no distance bin held enough "
-                                       "samples for a reference orbit"}
-            return t, state, outside, conv, diag
-        rel, t_lin, bidx = rel_all[mapped], t_lin_all[mapped], bidx[mapped]
-        kref = refs.shape[0]
-        delta = rel - refs[bidx]
-        # the samples that check the map: farthest from their reference orbit,
-        # by position offset plus velocity offset times the time to perihelion
-        score = rownorm(delta[:, :3]) + rownorm(delta[:, 3:]) * (
-            np.abs(t_lin) + 1.0
-        )
-        picks = []
-        for b in range(kref):  # loop over the few reference orbits
-            rows_b = np.flatnonzero(bidx == b) if kref > 1 else np.arange(bidx.size)
-            if rows_b.size > self.n_check:
-                top = np.argpartition(-score[rows_b], self.n_check - 1)[: self.n_check]
-                rows_b = rows_b[top]
-            picks.append(rows_b)
-        check = np.concatenate(picks)
-        # the map is tabulated only over the grid span the perihelia need
-        full_nodes = nodes
-        nodes, cut_lo, cut_hi = _map_span(t_lin, full_nodes)
-        # reference orbits with variational equations and the check samples, one call
-        tables = variational_tables(
-            self.potential, self._sun_state, refs, nodes, rtol=self.rtol, atol=self.atol,
-            extra=rel[check], scheme="rk4",
-            max_error_pc=_RK4_ERROR_FRACTION * self.map_tolerance_au / AU_PER_PC,
-        )  # fmt: skip
-        int_err_au = tables.integration_error_pc * AU_PER_PC
-        # each reference's own perihelion from its grid global minimum, to
-        # shift the samples' straight-line starting times
-        ref_feats = features(np.zeros((kref, 6)))
-        ref_vals = tables.node_cubic(np.arange(kref), ref_feats)
-        grid_states = np.moveaxis(tables.table[:, :, 0, :6], 1, 0)  # (m, K, 6)
-        t_ref, _, _, _ = newton_perihelion(
-            nodes, ref_vals, grid_minimum_start(nodes, grid_states), coefficients=True
-        )
-        v_ref = refs[:, 3:]
-        t_lin_ref = -np.sum(refs[:, :3] * v_ref, axis=1) / np.sum(v_ref * v_ref, axis=1)
-        start = t_lin + (t_ref - t_lin_ref)[bidx]
-        feats = features(delta)
-        t, state, outside, conv = newton_perihelion(
-            nodes, tables.node_cubic(bidx, feats), start, coefficients=True
-        )
-        est, eder = tables.extra
-
-        def check_values(k, rows):
-            return est[k, rows], eder[k, rows], est[k + 1, rows], eder[k + 1, rows]
-
-        tc, sc, oc, cc = newton_perihelion(nodes, check_values, grid_minimum_start(nodes, est))
-        # perihelia at a cut edge of the span lie beyond it: integrated directly below
-        beyond = outside & (((t == nodes[0]) & cut_lo) | ((t == nodes[-1]) & cut_hi))
-        beyond_c = oc & (((tc == nodes[0]) & cut_lo) | ((tc == nodes[-1]) & cut_hi))
-        err_au = np.abs(rownorm(sc[:, :3]) - rownorm(state[check, :3])) * AU_PER_PC
-        err_t = np.abs(tc - t[check]) * _C
-        err_au[beyond_c | beyond[check]] = 0.0
-        err_t[beyond_c | beyond[check]] = 0.0
-        # the second-order map's error grows as the cube of the offset: bound it
-        # per reference orbit by c * score^3 with c the largest ratio on the checks
-        coef = np.zeros(kref)
-        sc3 = score[check] ** 3
-        ratio = np.divide(err_au, sc3, out=np.zeros_like(err_au), where=sc3 > 1e-9)
-        np.maximum.at(coef, bidx[check], ratio)
-        predicted = coef[bidx] * score**3 + int_err_au
-        diag = {
-            "n_reference_orbits": int(kref),
-            "n_checked": int(check.size),
-            "map_error_au_max": float(err_au.max()),
-            "map_error_time_myr_max": float(err_t.max()),
-            "map_error_model": "error_au <= c * score_pc^3, c per reference orbit from the checks",
-            "map_error_coefficient_max": float(coef.max()),
-            "integration_scheme": "fixed-step RK4 on the grid (reference orbits and checks)",
-            "integration_error_au": int_err_au,
-        }
-        # checked samples keep their direct result
-        t[check], state[check], outside[check], conv[check] = tc, sc, oc, cc
-        beyond[check] = beyond_c
-        redo = ~conv
-        if self.method == "auto":
-            redo |= predicted > self.map_tolerance_au
-            redo[check] = False
-        redo |= beyond
-        nodes = full_nodes
-        diag["map_span_myr"] = [float(tables.nodes[0] * _C), float(tables.nodes[-1] * _C)]
-        diag["beyond_span_samples"] = int(beyond.sum())
-        n_redo = int(redo.sum())
-        diag["fallback_samples"] = n_redo
-        if n_redo:
-            rows = np.flatnonzero(redo)
-            t[rows], state[rows], outside[rows], conv[rows] = self._direct(rel[rows], nodes)
-            diag["fallback_reason"] = (
-                f"{n_redo} of {rel_all.shape[0]} samples integrated directly: predicted map "
-                f"error above {self.map_tolerance_au} au, perihelion beyond the map's grid "
-                "span, or Newton not converged"
-            )
-        n_sparse = int(sparse.sum())
-        diag["sparse_bin_samples"] = n_sparse
-        n = rel_all.shape[0]
-        t_all, state_all = np.empty(n), np.empty((n, 6))
-        out_all, conv_all = np.empty(n, dtype=bool), np.empty(n, dtype=bool)
-        t_all[mapped], state_all[mapped], out_all[mapped], conv_all[mapped] = (
-            t, state, outside, conv
-        )
-        if n_sparse:
-            rows = np.flatnonzero(sparse)
-            t_all[rows], state_all[rows], out_all[rows], conv_all[rows] = self._direct(
-                rel_all[rows], nodes
-            )
-        t, state, outside, conv = t_all, state_all, out_all, conv_all
-        return t, state, outside, conv, diag
+        """Rows through the state-transition map (:func:`.mapping.map_perihelia`); t, state, outside, conv, diag."""
+        # _map_span and features are this module's names, looked up at each call, so that tests can replace them
+        return map_perihelia(self, rel_all, ref_rel, nodes, t_lin_all, span=_map_span, features=features)
 
     # --------------------------------------------------------------- interface
     def evaluate(self, observables, *, reference=None) -> Perihelion:
         """Perihelion of every row; see :meth:`ForwardModel.evaluate`.
 
-        ``info`` holds "method" ("state_transition_map", "direct" or
-        "state_transition_map+direct_fallback"), the window, the number of
-        reference orbits, the map errors found by the check [au, Myr], the
-        number of fallback samples with the reason, the number of perihelia
+        ``diagnostics`` (a :class:`~perierr.models.diagnostics.ModelDiagnostics`;
+        ``info`` is its mapping) holds ``method`` ("state_transition_map",
+        "direct" or "state_transition_map+direct_fallback"), the window, the
+        number of reference orbits, the map errors found by the check [au, Myr],
+        the number of fallback samples with the reason, the number of perihelia
         outside the window (flagged), and the straight-line answer of the same
-        rows ("straight_line": arrays of time_myr, distance_pc, speed_kms) with
+        rows (``straight_line``: arrays of time_myr, distance_pc, speed_kms) with
         the median orbit-minus-straight-line difference
-        ("model_difference_median").
+        (``model_difference_median``). Rows go through the map built around
+        ``reference``; without one they are integrated directly.
         """
         _, rel = self._relative(observables)
         v = rel[:, 3:]
@@ -388,15 +278,15 @@ class OrbitModel(ForwardModel):
         if far.any():
             return self._beyond_potential(observables, rel, t_lin, far, reference)
         window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
-        info = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}
+        found = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}  # ModelDiagnostics fields
         if reference is None or self.method == "direct":
             t, state, outside, conv = self._direct(rel, nodes)
-            info["method"] = "direct"
+            found["method"] = "direct"
         else:
             _, ref_rel = self._relative(reference)
             t, state, outside, conv, diag = self._map(rel, ref_rel[0], nodes, t_lin)
-            info.update(diag)
-            info["method"] = (
+            found.update(diag)
+            found["method"] = (
                 "state_transition_map+direct_fallback"
                 if diag["fallback_samples"] or diag["sparse_bin_samples"]
                 else "state_transition_map"
@@ -407,23 +297,24 @@ class OrbitModel(ForwardModel):
             dt = np.where(outside, -np.sum(x * w, axis=1) / np.sum(w * w, axis=1), 0.0)
             t = t + dt
             x = x + w * dt[:, None]
-        info["n_outside_window"] = int(outside.sum())
-        info["n_not_converged"] = int((~conv).sum())
-        flags = outside | ~conv
-        ph = Perihelion(
-            t * _C, rownorm(x), rownorm(w), flags=flags, info=info
-        )
+        t_ph, d_ph, v_ph = t * _C, rownorm(x), rownorm(w)
         # the straight-line answer of the same rows, so that reports can show the
         # model difference (orbit minus straight line)
         sl_d = rownorm(rel[:, :3] + v * t_lin[:, None])
         sl_v = np.sqrt(vv)
-        info["straight_line"] = {"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v}
-        info["model_difference_median"] = {
-            "time_myr": float(np.median(ph.time_myr - t_lin * _C)),
-            "distance_pc": float(np.median(ph.distance_pc - sl_d)),
-            "speed_kms": float(np.median(ph.speed_kms - sl_v)),
-        }
-        return ph
+        diagnostics = ModelDiagnostics(
+            **found,
+            n_outside_window=int(outside.sum()),
+            n_not_converged=int((~conv).sum()),
+            straight_line={"time_myr": t_lin * _C, "distance_pc": sl_d, "speed_kms": sl_v},
+            model_difference_median={
+                "time_myr": float(np.median(t_ph - t_lin * _C)),
+                "distance_pc": float(np.median(d_ph - sl_d)),
+                "speed_kms": float(np.median(v_ph - sl_v)),
+            },
+            order=tuple(found),  # the keys in the order they were found (the JSON's order)
+        )
+        return Perihelion(t_ph, d_ph, v_ph, flags=outside | ~conv, diagnostics=diagnostics)
 
     def _beyond_potential(self, observables, rel, t_lin, far, reference) -> Perihelion:
         """Rows beyond MAX_DISTANCE_PC or MAX_SPEED_KMS get the straight-line answer, flagged; the rest as usual."""
@@ -431,8 +322,8 @@ class OrbitModel(ForwardModel):
         x = rel[:, :3] + rel[:, 3:] * t_lin[:, None]
         t, d, v = t_lin * _C, rownorm(x), rownorm(rel[:, 3:])
         flags = far.copy()
-        info = {"model": self.name, "method": "straight line beyond the potential", "n_outside_window": 0,
-                "n_not_converged": 0}
+        diagnostics = ModelDiagnostics(model=self.name, method="straight line beyond the potential",
+                                       n_outside_window=0, n_not_converged=0)
         if (~far).any():
             near_ref = None if reference is None or far[0] and obs.shape[0] == 1 else reference
             ref_rel = self._relative(near_ref)[1] if near_ref is not None else None
@@ -442,10 +333,13 @@ class OrbitModel(ForwardModel):
             inner = self.evaluate(obs[~far], reference=near_ref)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
             flags[~far] = inner.flags if inner.flags is not None else False
-            info = dict(inner.info)
-        info["n_beyond_potential"] = int(far.sum())
-        info["max_distance_pc"] = MAX_DISTANCE_PC
-        return Perihelion(t, d, v, flags=flags, info=info)
+            # the straight-line block has one entry per row: the far rows' answer is the straight line itself
+            straight = {"time_myr": t_lin * _C, "distance_pc": rownorm(x), "speed_kms": rownorm(rel[:, 3:])}
+            for key, arr in inner.diagnostics.straight_line.items():
+                straight[key][~far] = arr
+            diagnostics = replace(inner.diagnostics, straight_line=straight)
+        diagnostics = replace(diagnostics, n_beyond_potential=int(far.sum()), max_distance_pc=MAX_DISTANCE_PC)
+        return Perihelion(t, d, v, flags=flags, diagnostics=diagnostics)
 
     def jacobian(self, point) -> np.ndarray:
         """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.

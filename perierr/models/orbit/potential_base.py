@@ -16,6 +16,8 @@ import astropy.constants as _const
 import astropy.units as _u
 import numpy as np
 
+from ...errors import InputError
+
 __all__ = ["G_PC_KMS2_PER_MSUN", "Potential", "CompositePotential", "PotentialParameterError"]
 
 #: Gravitational constant in pc (km/s)^2 / Msun, from astropy's CODATA G and IAU M_sun.
@@ -24,17 +26,19 @@ G_PC_KMS2_PER_MSUN = float((_const.G * _u.Msun).to_value(_u.pc * (_u.km / _u.s) 
 _FOUR_PI_G = 4.0 * math.pi * G_PC_KMS2_PER_MSUN
 
 
-class PotentialParameterError(ValueError):
-    """A potential parameter is outside its allowed range."""
+class PotentialParameterError(InputError):
+    """A potential parameter is outside its allowed range (an :class:`~perierr.errors.InputError`)."""
 
 
 def _positive(name: str, value, owner: str) -> float:
-    value = float(value)
-    if not np.isfinite(value) or value <= 0.0:
-        raise PotentialParameterError(
-            f"{owner}: parameter {name}={value!r} must be a finite positive number"
-        )
-    return value
+    expected = f"expected a finite positive number (a parameter of {owner})"
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise PotentialParameterError(name, value, expected) from None
+    if not np.isfinite(number) or number <= 0.0:
+        raise PotentialParameterError(name, number, expected)
+    return number
 
 
 class Potential(abc.ABC):
@@ -104,8 +108,7 @@ class CompositePotential(Potential):
     def __post_init__(self):
         if not self.components or not all(isinstance(c, Potential) for c in self.components):
             raise PotentialParameterError(
-                f"CompositePotential: components={self.components!r} must be a non-empty "
-                "tuple of Potential objects"
+                "components", self.components, "expected a non-empty tuple of Potential objects (CompositePotential)"
             )
 
     def potential(self, x):

@@ -40,8 +40,8 @@ def normalize_by_force_fraction(components, fractions, radius_pc, v_circ_kms) ->
     """
     if len(components) != len(fractions) or not components:
         raise PotentialParameterError(
-            f"normalize_by_force_fraction: got {len(components)} components and "
-            f"{len(fractions)} fractions; expected equal, non-zero numbers"
+            "fractions", fractions, f"expected as many fractions as components ({len(components)}), at least one "
+            "(normalize_by_force_fraction)"
         )
     total = None
     for comp, frac in zip(components, fractions, strict=True):
@@ -113,7 +113,7 @@ def get_potential(name: str = "MWPotential2014") -> PotentialPreset:
     """Return the named preset (one of :data:`POTENTIAL_PRESETS`)."""
     if name not in POTENTIAL_PRESETS:
         raise PotentialParameterError(
-            f"potential={name!r} is not a known preset; expected one of "
-            f"{', '.join(POTENTIAL_PRESETS)} or a Potential object"
+            "potential", name,
+            f"not a known preset; expected one of {', '.join(POTENTIAL_PRESETS)} or a Potential object",
         )
     return POTENTIAL_PRESETS[name]()

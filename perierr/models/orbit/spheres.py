@@ -258,9 +258,7 @@ class PowerLawCutoff(_Spherical):
         _positive("mass_msun", self.mass_msun, "PowerLawCutoff")
         _positive("rc_pc", self.rc_pc, "PowerLawCutoff")
         if not (0.0 <= float(self.alpha) < 2.0):
-            raise PotentialParameterError(
-                f"PowerLawCutoff: parameter alpha={self.alpha!r} must satisfy 0 <= alpha < 2"
-            )
+            raise PotentialParameterError("alpha", self.alpha, "expected 0 <= alpha < 2 (PowerLawCutoff)")
 
     @property
     def _s(self):

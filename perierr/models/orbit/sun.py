@@ -16,17 +16,20 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import numbers
 from dataclasses import dataclass, field
 
 import astropy.coordinates as _coord
 import astropy.units as _u
 import numpy as np
 
+from ...errors import InputError
+
 __all__ = ["SolarParameters", "SOLAR_PARAMETER_SETS", "get_solar_parameters", "SolarParameterError"]
 
 
-class SolarParameterError(ValueError):
-    """A solar parameter or parameter-set name is invalid."""
+class SolarParameterError(InputError):
+    """A solar parameter or parameter-set name is invalid (an :class:`~perierr.errors.InputError`)."""
 
 
 @dataclass(frozen=True)
@@ -63,20 +66,19 @@ class SolarParameters:
     def __post_init__(self):
         for key in ("r0_pc", "z_pc", "v_circ_kms", "u_kms", "v_kms", "w_kms"):
             value = getattr(self, key)
-            if not isinstance(value, int | float) or not math.isfinite(value):
-                raise SolarParameterError(
-                    f"solar parameter {key}={value!r} must be a finite number"
-                )
+            if isinstance(value, bool | np.bool_) or not isinstance(value, numbers.Real) or not math.isfinite(value):
+                raise SolarParameterError(key, value, "expected a finite number (a solar parameter)")
+            object.__setattr__(self, key, float(value))
         if self.r0_pc <= 0:
-            raise SolarParameterError(f"solar parameter r0_pc={self.r0_pc!r} must be positive")
+            raise SolarParameterError("r0_pc", self.r0_pc, "expected a positive distance in pc (a solar parameter)")
 
     def replace(self, **changes) -> SolarParameters:
         """Copy with some values overridden (the name gets a ``+modified`` suffix)."""
         unknown = set(changes) - {f.name for f in dataclasses.fields(self)}
         if unknown:
             raise SolarParameterError(
-                f"unknown solar parameter(s) {sorted(unknown)}; expected some of "
-                "r0_pc, z_pc, v_circ_kms, u_kms, v_kms, w_kms"
+                "solar parameter", sorted(unknown),
+                "unknown; expected some of r0_pc, z_pc, v_circ_kms, u_kms, v_kms, w_kms",
             )
         changes.setdefault("name", self.name + "+modified")
         return dataclasses.replace(self, **changes)
@@ -167,7 +169,7 @@ def get_solar_parameters(name: str = "bovy2015") -> SolarParameters:
     """Return the named solar parameter set (one of :data:`SOLAR_PARAMETER_SETS`)."""
     if name not in SOLAR_PARAMETER_SETS:
         raise SolarParameterError(
-            f"sun={name!r} is not a known solar parameter set; expected one of "
-            f"{', '.join(SOLAR_PARAMETER_SETS)} or a SolarParameters object"
+            "sun", name, f"not a known solar parameter set; expected one of {', '.join(SOLAR_PARAMETER_SETS)} "
+            "or a SolarParameters object"
         )
     return SOLAR_PARAMETER_SETS[name]()

@@ -233,61 +233,107 @@ def variational_tables(
         ``integration_error_pc`` (the "rk4" estimate, 0 for "dop853").
     """
     refs = np.atleast_2d(np.asarray(refs, dtype=float))
+    extra = np.zeros((0, 6)) if extra is None else np.asarray(extra, dtype=float)
+    k, ne = refs.shape[0], extra.shape[0]
+    y_init = _initial_state(sun_state, refs, extra)
+    if scheme == "rk4":
+        ys, dys, extra_states, err_pc = _solve_rk4(potential, y_init, nodes, k, ne, max_error_pc)
+    elif scheme == "dop853":
+        ys, dys, extra_states = _solve_dop853(potential, y_init, nodes, k, ne, rtol, atol)
+        err_pc = 0.0
+    else:
+        raise ValueError(f"scheme={scheme!r} is unknown; expected 'dop853' or 'rk4'")
+    tables = MapTables(nodes, refs, _feature_table(ys, dys))
+    tables.integration_error_pc = err_pc
+    if ne:
+        tables.extra = extra_states
+    return tables
+
+
+def _initial_state(sun_state, refs, extra) -> np.ndarray:
+    """The Sun, the K reference states with identity Phi1 and zero Phi2, then the extra states, as one vector."""
     k = refs.shape[0]
     y0 = np.zeros((k, _NVAR))
     y0[:, :6] = refs
     y0[:, 6:42] = np.eye(6).ravel()
-    extra = np.zeros((0, 6)) if extra is None else np.asarray(extra, dtype=float)
-    ne, nv = extra.shape[0], k * _NVAR
-    y_init = np.concatenate([sun_state, y0.ravel(), extra.ravel()])
-    m = len(nodes)
-    err_pc = 0.0
-    if scheme == "rk4":
-        out = np.empty(y_init.size)
+    return np.concatenate([sun_state, y0.ravel(), extra.ravel()])
 
-        def fun_rk(y):
-            # one call of the potential for the Sun, the references and the checks
-            sun = y[:6]
-            yv = y[6 : 6 + nv].reshape(k, _NVAR)
-            ye = y[6 + nv :].reshape(ne, 6)
-            pts = np.concatenate([sun[None, :3], sun[:3] + yv[:, :3], sun[:3] + ye[:, :3]])
-            acc, hes, third = potential.derivatives(pts)
-            dsun, dy = _variational_rhs(sun, acc[0], acc[1 : 1 + k], hes[1 : 1 + k],
-                                        third[1 : 1 + k], yv)  # fmt: skip
-            out[:6] = dsun
-            out[6 : 6 + nv] = dy.ravel()
-            de = out[6 + nv :].reshape(ne, 6)
-            de[:, :3] = ye[:, 3:]
-            de[:, 3:] = acc[1 + k :] - acc[0]
-            return out.copy()
 
-        pos = np.concatenate([6 + _NVAR * np.arange(k)[:, None] + np.arange(3),
-                              6 + nv + 6 * np.arange(ne)[:, None] + np.arange(3)]).ravel()  # fmt: skip
-        sub = 1
-        while True:
-            sol, dsol, err = rk4_on_nodes(fun_rk, y_init, nodes, substeps=sub)
-            err_pc = float(err[pos].max())
-            if max_error_pc is None or err_pc <= max_error_pc or sub >= 16:
-                break
-            sub *= 2
-        ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
-        dys = dsol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
-    elif scheme == "dop853":
+def _rk4_rhs(potential, size, k, ne):
+    """Right-hand side ``f(y)`` of the whole system for RK4: one potential call for Sun, references and checks."""
+    nv = k * _NVAR
+    out = np.empty(size)
 
-        def fun(_t, y):
-            sun = y[:6]
-            dsun, dy = _derivative(potential, sun, y[6 : 6 + nv].reshape(k, _NVAR))
-            if not ne:
-                return np.concatenate([dsun, dy.ravel()])
-            _, de = relative_derivative(potential, sun, y[6 + nv :].reshape(ne, 6))
-            return np.concatenate([dsun, dy.ravel(), de.ravel()])
+    def fun_rk(y):
+        # one call of the potential for the Sun, the references and the checks
+        sun = y[:6]
+        yv = y[6 : 6 + nv].reshape(k, _NVAR)
+        ye = y[6 + nv :].reshape(ne, 6)
+        pts = np.concatenate([sun[None, :3], sun[:3] + yv[:, :3], sun[:3] + ye[:, :3]])
+        acc, hes, third = potential.derivatives(pts)
+        dsun, dy = _variational_rhs(sun, acc[0], acc[1 : 1 + k], hes[1 : 1 + k],
+                                    third[1 : 1 + k], yv)  # fmt: skip
+        out[:6] = dsun
+        out[6 : 6 + nv] = dy.ravel()
+        de = out[6 + nv :].reshape(ne, 6)
+        de[:, :3] = ye[:, 3:]
+        de[:, 3:] = acc[1 + k :] - acc[0]
+        return out.copy()
 
-        sol = _solve_both_ways(fun, y_init, nodes, rtol, atol)
-        sun = sol[:, :6]
-        ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
-        _, dys = _derivative(potential, sun, ys)
-    else:
-        raise ValueError(f"scheme={scheme!r} is unknown; expected 'dop853' or 'rk4'")
+    return fun_rk
+
+
+def _solve_rk4(potential, y_init, nodes, k, ne, max_error_pc):
+    """Fixed-step RK4 on the nodes, substeps doubled (up to 16) until the position error is below ``max_error_pc``.
+
+    Returns the variational states and derivatives (m, K, 258), the extra states and derivatives (or None)
+    and the estimated position error [pc].
+    """
+    nv, m = k * _NVAR, len(nodes)
+    fun_rk = _rk4_rhs(potential, y_init.size, k, ne)
+    pos = np.concatenate([6 + _NVAR * np.arange(k)[:, None] + np.arange(3),
+                          6 + nv + 6 * np.arange(ne)[:, None] + np.arange(3)]).ravel()  # fmt: skip
+    sub = 1
+    while True:
+        sol, dsol, err = rk4_on_nodes(fun_rk, y_init, nodes, substeps=sub)
+        err_pc = float(err[pos].max())
+        if max_error_pc is None or err_pc <= max_error_pc or sub >= 16:
+            break
+        sub *= 2
+    ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+    dys = dsol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+    extra_states = None
+    if ne:
+        extra_states = (sol[:, 6 + nv :].reshape(m, ne, 6), dsol[:, 6 + nv :].reshape(m, ne, 6))
+    return ys, dys, extra_states, err_pc
+
+
+def _solve_dop853(potential, y_init, nodes, k, ne, rtol, atol):
+    """Adaptive DOP853 to every node; the variational states and derivatives (m, K, 258) and the extra ones."""
+    nv, m = k * _NVAR, len(nodes)
+
+    def fun(_t, y):
+        sun = y[:6]
+        dsun, dy = _derivative(potential, sun, y[6 : 6 + nv].reshape(k, _NVAR))
+        if not ne:
+            return np.concatenate([dsun, dy.ravel()])
+        _, de = relative_derivative(potential, sun, y[6 + nv :].reshape(ne, 6))
+        return np.concatenate([dsun, dy.ravel(), de.ravel()])
+
+    sol = _solve_both_ways(fun, y_init, nodes, rtol, atol)
+    sun = sol[:, :6]
+    ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
+    _, dys = _derivative(potential, sun, ys)
+    extra_states = None
+    if ne:
+        es = sol[:, 6 + nv :].reshape(m, ne, 6)
+        extra_states = (es, relative_derivative(potential, sun, es)[1])
+    return ys, dys, extra_states
+
+
+def _feature_table(ys, dys) -> np.ndarray:
+    """Feature -> (state, derivative) coefficients (K, m, 28, 12) from variational states (m, K, 258)."""
+    m, k = ys.shape[:2]
     table = np.empty((k, m, N_FEATURES, 12))
     coef = np.where(_IA == _IB, 0.5, 1.0)
     for col, arr in ((0, ys), (6, dys)):
@@ -298,12 +344,4 @@ def variational_tables(
         table[..., 0, col : col + 6] = arr[..., :6]
         table[..., 1:7, col : col + 6] = np.swapaxes(p1, -1, -2)
         table[..., 7:, col : col + 6] = np.swapaxes(quad, -1, -2)
-    tables = MapTables(nodes, refs, table)
-    tables.integration_error_pc = err_pc
-    if ne:
-        es = sol[:, 6 + nv :].reshape(m, ne, 6)
-        if scheme == "rk4":
-            tables.extra = (es, dsol[:, 6 + nv :].reshape(m, ne, 6))
-        else:
-            tables.extra = (es, relative_derivative(potential, sun, es)[1])
-    return tables
+    return table

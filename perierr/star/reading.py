@@ -1,0 +1,218 @@
+"""Reading a star from a mapping, a TOML file or a table row: names, units, missing values, correlations.
+
+Bare numbers are read in the catalogue units (:data:`perierr.units.FIELD_UNITS`);
+Quantities and strings with units are converted by the one parser,
+:func:`perierr.units.to_number`. Every error names the field, the value, what
+was expected and, for tables, the row.
+"""
+
+from __future__ import annotations
+
+import difflib
+import os
+from collections.abc import Mapping
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import astropy.units as u
+import numpy as np
+import tomllib
+
+from ..cautions import emit, note
+from ..errors import InputError
+from ..units import FIELD_UNITS, INDEX, OBSERVABLES, errors_to_internal, to_number
+from .checks import LARGEST_ERROR, plausibility, unit_slips
+from .fields import CORRELATIONS, ERRORS, KNOWN_FIELDS, OPTIONAL_ERRORS, split_correlation
+from .observed import ObservedStar, check_psd
+
+if TYPE_CHECKING:
+    from astropy.table import Table
+
+__all__ = ["MASKED", "read_catalogue", "read_star_file", "star_from_mapping"]
+
+
+def star_from_mapping(cls, mapping, *, row=None, strict=True):
+    """Build ``cls`` (an :class:`ObservedStar`) from catalogue-named fields; see ``ObservedStar.from_mapping``."""
+    data = _as_dict(mapping)
+    if strict:
+        _refuse_unknown(data, row)
+    values, cautions = _read_measurements(data, row)
+    cautions.extend(plausibility(values, row))
+    corrs = _read_correlations(data, row)
+    cautions.extend(unit_slips(values, row))
+    cov = _covariance(values, corrs, row)
+    mean = np.array([values[n] for n in OBSERVABLES])
+    star = cls(mean, cov, cautions=tuple(cautions), **_read_meta(data, row))
+    emit(star.cautions)
+    return star
+
+
+def _refuse_unknown(data, row) -> None:
+    """Unknown field names are likely typos: refuse them, suggesting the closest known name."""
+    for key in data:
+        if key not in KNOWN_FIELDS:
+            close = difflib.get_close_matches(key, KNOWN_FIELDS, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise InputError(key, data[key], f"unknown field{hint} Known fields: {', '.join(KNOWN_FIELDS)}", row)
+
+
+def _read_measurements(data, row) -> tuple:
+    """The six observables and their errors in catalogue units, and notes on the inputs held exact."""
+    values, cautions = {}, []
+    for name in OBSERVABLES + ERRORS:
+        if name not in data or _is_missing(data[name]):
+            if name in OPTIONAL_ERRORS:
+                values[name] = 0.0
+                cautions.append(note("held-exact", f"{name} not given: held exact", name))
+                continue
+            raise InputError(name, None, f"missing; expected a value in {FIELD_UNITS[name]}", row)
+        values[name] = _to_float(name, data[name], row)
+    for name in ERRORS:
+        if values[name] < 0:
+            raise InputError(name, values[name], "expected an error >= 0 (0 means held exact)", row)
+        if values[name] > LARGEST_ERROR:
+            raise InputError(
+                name, values[name], f"expected an error below {LARGEST_ERROR:g} (its square must be a "
+                "number); check the unit", row
+            )
+        if values[name] == 0 and name not in OPTIONAL_ERRORS:
+            cautions.append(note("held-exact", f"{name} = 0: {name[:-6]} held exact", name))
+    if not -90.0 <= values["dec"] <= 90.0:
+        raise InputError("dec", values["dec"], "expected a declination in [-90, 90] deg", row)
+    return values, cautions
+
+
+def _read_correlations(data, row) -> dict:
+    """The correlation coefficients given (a column that is absent means 0; a masked cell is refused)."""
+    corrs = {}
+    for name in CORRELATIONS:
+        if data.get(name) is MASKED:
+            raise InputError(
+                name, "masked", "the column is present but this value is missing (or NaN); expected a "
+                "correlation in [-1, 1] (a catalogue without the column means 0)", row
+            )
+        if name in data and not _is_missing(data[name]):
+            c = _to_float(name, data[name], row, unit=None)
+            if not -1.0 <= c <= 1.0:
+                raise InputError(name, c, "expected a correlation coefficient in [-1, 1]", row)
+            corrs[name] = c
+    return corrs
+
+
+def _covariance(values, corrs, row) -> np.ndarray:
+    """The internal covariance from catalogue errors and correlations (checked positive semi-definite)."""
+    sigma = errors_to_internal([values[e] for e in ERRORS], values["dec"], row=row)
+    corr = np.eye(6)
+    for name, c in corrs.items():
+        a, b = split_correlation(name)
+        corr[INDEX[a], INDEX[b]] = corr[INDEX[b], INDEX[a]] = c
+    check_psd(corr, row=row, what="correlation matrix")
+    return corr * np.outer(sigma, sigma)
+
+
+def _read_meta(data, row) -> dict:
+    """Name, source_id, epoch, mass and its error (optional)."""
+    meta = {}
+    for key in ("mass", "mass_error"):
+        if key in data and not _is_missing(data[key]):
+            meta[key] = _to_float(key, data[key], row)
+            if meta[key] < 0 or (key == "mass" and meta[key] == 0):
+                raise InputError(key, meta[key], "expected a positive mass in M_sun", row)
+    epoch = data.get("ref_epoch")
+    meta["ref_epoch"] = None if _is_missing(epoch) else _to_float("ref_epoch", epoch, row, unit=None)
+    name, source_id = data.get("name"), data.get("source_id")
+    if _is_missing(name):
+        name = str(source_id) if not _is_missing(source_id) else (f"row {row}" if row is not None else "star")
+    meta["name"] = str(name)
+    meta["source_id"] = None if _is_missing(source_id) else str(source_id)
+    return meta
+
+
+def read_star_file(path: str | os.PathLike) -> ObservedStar:
+    """Read one star from a TOML file of catalogue-named fields.
+
+    Parameters
+    ----------
+    path : str or Path
+        A TOML file with flat keys (``parallax = 12.3`` or
+        ``parallax = "12.3 mas"``).
+    """
+    path = Path(path)
+    if path.is_dir():
+        raise InputError("star file", str(path), "is a folder; expected a TOML star file")
+    try:
+        with path.open("rb") as fh:
+            data = tomllib.load(fh)
+    except FileNotFoundError:
+        raise InputError("star file", str(path), "file not found") from None
+    except PermissionError:
+        raise InputError("star file", str(path), "cannot be read (permission denied)") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(
+            "star file", str(path), f"is not UTF-8 text (byte {exc.object[exc.start:exc.start + 1]!r} at offset "
+            f"{exc.start}); save it as UTF-8 TOML"
+        ) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError("star file", str(path), f"not valid TOML ({exc})") from None
+    if "star" in data and isinstance(data["star"], Mapping):
+        data = dict(data["star"])
+    return ObservedStar.from_mapping(data)
+
+
+def read_catalogue(source: str | os.PathLike | Table) -> list[ObservedStar]:
+    """Read every row of a table (ECSV/FITS/VOTable path or astropy Table).
+
+    Each row becomes an :class:`ObservedStar`; an error names the row.
+    """
+    from astropy.table import Table
+
+    table = source if isinstance(source, Table) else Table.read(source)
+    return [ObservedStar.from_mapping(row, row=i, strict=False) for i, row in enumerate(table)]
+
+
+def _as_dict(mapping) -> dict:
+    if isinstance(mapping, Mapping):
+        return dict(mapping)
+    colnames = getattr(mapping, "colnames", None)
+    if colnames is None:
+        raise InputError("star", type(mapping).__name__, "expected a mapping or an astropy Table row")
+    out = {}
+    for name in colnames:
+        col = mapping.table[name] if hasattr(mapping, "table") else None
+        value = mapping[name]
+        if _is_missing(value):  # masked (or NaN read back as masked): missing, never 0
+            out[name] = MASKED
+            continue
+        if col is not None and getattr(col, "unit", None) is not None and np.ndim(value) == 0:
+            try:
+                value = u.Quantity(value, col.unit)
+            except (TypeError, ValueError):
+                value = str(value)  # a bad cell: the field's reader names it with its row
+
+        out[name] = value
+    return out
+
+
+class _Masked:
+    """A masked table cell: the column is there but the value is not (never read as 0)."""
+
+    def __repr__(self) -> str:
+        return "masked"
+
+
+#: Stands for a masked cell of a present column.
+MASKED = _Masked()
+
+
+def _is_missing(value) -> bool:
+    if value is None or value is MASKED:
+        return True
+    if np.ma.is_masked(value):
+        return True
+    return isinstance(value, str) and value.strip() == ""
+
+
+def _to_float(name, value, row, unit="default") -> float:
+    target = FIELD_UNITS.get(name) if unit == "default" else unit
+    # a table cell read as text (one bad cell turns a CSV column into text) is a number in the column's unit
+    return to_number(name, value, target, row=row, text_needs_unit=row is None)
