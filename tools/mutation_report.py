@@ -10,6 +10,12 @@ failed, crashed or timed out on it (mutmut's "killed", "timeout", "segfault").
 The score is killed / (all mutants - equivalent). A mutant no test reaches
 ("no tests") counts as a survivor: code no test runs is code no test checks.
 
+A full pass takes longer than one working session on the 2-core machine, and
+``.mutation/`` is scratch space, so ``--save`` keeps each finished group's
+exit codes in ``tests/mutation/results.json`` together with a digest of the
+group's source and test files. A group without a live run is read from there
+when its digest still matches the files; otherwise the report calls it stale.
+
 Run (from the repository root; see DEVELOPERS.md for the wall time)::
 
     pip install mutmut
@@ -20,6 +26,9 @@ Run (from the repository root; see DEVELOPERS.md for the wall time)::
 from __future__ import annotations
 
 import argparse
+import datetime
+import hashlib
+import importlib.util
 import json
 import subprocess
 import sys
@@ -49,6 +58,74 @@ def read_results(root: Path) -> dict:
     return out
 
 
+def _groups(root: Path) -> dict:
+    """The groups of ``tools/mutation_run.py``: name -> (source patterns, test files, slow)."""
+    spec = importlib.util.spec_from_file_location("mutation_run", root / "tools" / "mutation_run.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module.GROUPS
+
+
+def group_digest(root: Path, group: str, tree: Path | None = None) -> str:
+    """sha256 of the group's source and test files (paths and bytes, sorted) as they are in ``tree``.
+
+    ``tree`` defaults to ``root``; a group's scratch copy ``.mutation/<group>/`` holds the files as they were
+    when the group ran, so its digest says what the saved result is a result of.
+    """
+    tree = root if tree is None else tree
+    sources, tests, _ = _groups(root)[group]
+    files = sorted({f for pattern in sources for f in tree.glob(pattern) if f.suffix == ".py"}
+                   | {tree / t for t in tests if (tree / t).exists()})
+    h = hashlib.sha256()
+    for f in files:
+        h.update(str(f.relative_to(tree)).encode())
+        h.update(f.read_bytes())
+    return h.hexdigest()
+
+
+def _finished(work: Path) -> bool:
+    """Whether mutmut's run of a group ended (its log's last line is the final rate)."""
+    log = work / "mutmut.log"
+    return log.exists() and log.read_text(encoding="utf-8", errors="replace").rstrip().endswith("mutations/second")
+
+
+def save_snapshot(root: Path, out: Path) -> list:
+    """Store the exit codes of every group run in ``.mutation/`` in ``out``; returns the groups saved."""
+    data = json.loads(out.read_text(encoding="utf-8")) if out.exists() else {}
+    commit = subprocess.run(["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=root,
+                            check=False).stdout.strip()
+    saved = []
+    for group in sorted(p.name for p in (root / ".mutation").glob("*") if (p / "mutants").is_dir()):
+        work = root / ".mutation" / group
+        if group not in _groups(root) or not _finished(work):
+            continue  # an unfinished run is not a result
+        codes = {}
+        for meta in sorted((work / "mutants").rglob("*.meta")):
+            codes.update(json.loads(meta.read_text(encoding="utf-8")).get("exit_code_by_key", {}))
+        if not codes or any(c is None for c in codes.values()):
+            continue
+        data[group] = {"digest": group_digest(root, group, work), "saved_at_commit": commit,
+                       "date": datetime.date.today().isoformat(), "exit_codes": dict(sorted(codes.items()))}
+        saved.append(group)
+    out.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
+    return saved
+
+
+def read_snapshot(root: Path, path: Path, live: set) -> tuple:
+    """Results of saved groups without a live run whose files are unchanged, and the names of stale ones."""
+    if not path.exists():
+        return {}, []
+    out, stale = {}, []
+    for group, entry in json.loads(path.read_text(encoding="utf-8")).items():
+        if group in live:
+            continue
+        if group not in _groups(root) or entry["digest"] != group_digest(root, group):
+            stale.append(group)
+            continue
+        out.update({name: (code, None) for name, code in entry["exit_codes"].items()})
+    return out, stale
+
+
 def read_equivalent(folder: Path) -> dict:
     """Mutant name -> reason it is equivalent (behaves exactly like the original), from ``equivalent*.toml``."""
     out = {}
@@ -60,6 +137,8 @@ def read_equivalent(folder: Path) -> dict:
 
 def diff_of(name: str, group: Path) -> str:
     """The mutant's diff, as ``mutmut show`` prints it in its group's folder (only the changed lines)."""
+    if group is None:
+        return "(saved result: re-run the group to see the diff)"
     text = subprocess.run(["mutmut", "show", name], capture_output=True, text=True, check=False, cwd=group).stdout
     lines = [ln for ln in text.splitlines() if ln[:1] in "+-" and not ln.startswith(("+++", "---"))]
     return "\n".join(lines)
@@ -72,8 +151,15 @@ def main(argv=None) -> int:
     parser.add_argument("--equivalent", type=Path, default=Path("tests/mutation"), help="folder of equivalent*.toml")
     parser.add_argument("--out", type=Path, default=Path("tests/mutation/REPORT.md"))
     parser.add_argument("--no-diffs", action="store_true", help="list survivors without their diffs (fast)")
+    parser.add_argument("--snapshot", type=Path, default=Path("tests/mutation/results.json"))
+    parser.add_argument("--save", action="store_true", help="store finished groups' results in --snapshot first")
     args = parser.parse_args(argv)
+    if args.save:
+        print(f"saved: {', '.join(save_snapshot(args.root, args.snapshot)) or 'no finished group'}")
     results = read_results(args.root)
+    live = {g.name for g in {group for _, group in results.values()}}
+    saved, stale_groups = read_snapshot(args.root, args.snapshot, live)
+    results.update(saved)
     if not results:
         print("no mutmut results under .mutation/: run `python tools/mutation_run.py` first", file=sys.stderr)
         return 2
@@ -115,6 +201,9 @@ def main(argv=None) -> int:
         *rows,
         "",
     ]
+    if stale_groups:
+        lines += ["Saved groups whose files changed since their run (re-run them): "
+                  + ", ".join(sorted(stale_groups)), ""]
     if stale:
         lines += ["Equivalent entries with no such mutant now (the function changed; re-check them):", ""]
         lines += [f"- `{n}`" for n in stale] + [""]
