@@ -13,6 +13,7 @@ import math
 
 import numpy as np
 
+from ..errors import InputError
 from ..units import MAS_PC
 
 __all__ = ["log_distance_posterior", "posterior_mode"]
@@ -31,7 +32,16 @@ def log_distance_posterior(r, parallax, parallax_error, prior) -> np.ndarray:
     parallax, parallax_error : float
         w and s [mas].
     prior : DistancePrior
+
+    Raises
+    ------
+    InputError
+        For a parallax or error that is not finite, or an error that is not positive (the
+        likelihood is then no density of r).
     """
+    if not (math.isfinite(parallax) and math.isfinite(parallax_error) and parallax_error > 0):
+        field, value = ("parallax", parallax) if not math.isfinite(parallax) else ("parallax_error", parallax_error)
+        raise InputError(field, value, "expected a finite parallax and a positive, finite parallax_error in mas")
     r = np.asarray(r, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         chi = (parallax - MAS_PC / r) / parallax_error
