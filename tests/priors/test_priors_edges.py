@@ -464,8 +464,11 @@ def test_integrated_edsd_is_normalized():
     assert val == pytest.approx(1.0, rel=1e-8)
 
 
-@pytest.mark.parametrize(("plx", "err", "field"), [(2.0, 0.0, "parallax_error"), (2.0, -1.0, "parallax_error"),
-                                                   (float("nan"), 0.5, "parallax"), (2.0, float("inf"), "parallax_error")])
+NO_DENSITY = [(2.0, 0.0, "parallax_error"), (2.0, -1.0, "parallax_error"), (float("nan"), 0.5, "parallax"),
+              (2.0, float("inf"), "parallax_error")]
+
+
+@pytest.mark.parametrize(("plx", "err", "field"), NO_DENSITY)
 def test_log_distance_posterior_refuses_a_likelihood_that_is_no_density(plx, err, field):
     # project rule: no silent NaN; a Gaussian likelihood needs a finite mean and a positive finite sigma
     with pytest.raises(InputError, match=f"{field} = "):
