@@ -21,6 +21,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..errors import InputError
 from ..sampling.gaussian import psd_factor, resolve_seed
 from .game import conditional_map, shapley_values, standardize
 
@@ -80,6 +81,10 @@ class ShapleyEstimate:
         return out
 
 
+#: The conditional statistics the estimator knows: the inner variance, or the width of a central interval.
+STATISTICS = ("variance", "width")
+
+
 def conditional_costs(func, mean, cov, *, n_outer, n_inner, rng, statistic="variance", level=0.9):
     """Per-outer-draw conditional statistics for every subset of inputs.
 
@@ -102,6 +107,8 @@ def conditional_costs(func, mean, cov, *, n_outer, n_inner, rng, statistic="vari
         Conditional statistic of each output for each subset and outer draw
         (row 0, the empty subset, is 0).
     """
+    if statistic not in STATISTICS:
+        raise InputError("statistic", statistic, f"expected one of {', '.join(STATISTICS)}")
     mu = np.asarray(mean, dtype=float)
     sigma, corr = standardize(cov)
     k = mu.size

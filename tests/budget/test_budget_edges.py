@@ -705,3 +705,12 @@ def test_linear_costs_of_independent_inputs():
     got = linear_costs(jac, np.diag(s * s))
     want = np.array([[sum((jac[0, i] * s[i]) ** 2 for i in range(3) if m >> i & 1)] for m in range(8)])
     assert_allclose(got, want, rtol=1e-12, atol=1e-15)
+
+
+@pytest.mark.parametrize("statistic", ["WIDTH", "widths", None, "std"])
+def test_conditional_costs_refuse_a_statistic_they_do_not_know(statistic):
+    # conditional_costs docstring: statistic is "variance" or "width"; anything else is refused by name
+    # (it used to fall through to the width game)
+    with pytest.raises(InputError, match=f"statistic = {statistic!r}: expected one of variance, width"):
+        conditional_costs(lambda x: x[:, :1], np.zeros(2), np.eye(2), n_outer=4, n_inner=4,
+                          rng=np.random.default_rng(0), statistic=statistic)
