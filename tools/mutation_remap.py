@@ -9,13 +9,14 @@ current tree and rewrites the names in ``tests/mutation/equivalent*.toml``:
 
 * same text in the same module: kept;
 * same text in another module (found by function name): renamed;
-* otherwise: left as it is and listed for a re-check (the report shows such
-  entries as stale once the group has run).
+* otherwise: taken out of the list (its number may now name another mutant) and
+  kept in ``tests/mutation/to_recheck.toml`` with its reason, for a re-check.
 
 Run (from the repository root)::
 
     python tools/mutation_remap.py OLD_COMMIT            # show what would change
     python tools/mutation_remap.py OLD_COMMIT --write    # rewrite the TOML files
+    python tools/mutation_remap.py OLD_COMMIT --write --only equivalent_budget.toml
 """
 
 from __future__ import annotations
@@ -93,22 +94,38 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("commit", help="the commit the lists were written against")
     parser.add_argument("--write", action="store_true", help="rewrite the TOML files")
+    parser.add_argument("--only", nargs="*", default=None, help="file names to treat (default: every list)")
     args = parser.parse_args(argv)
     now, cache = current_functions(), {}
     recheck = []
-    for path in sorted((ROOT / "tests" / "mutation").glob("equivalent*.toml")):
+    folder = ROOT / "tests" / "mutation"
+    for path in sorted(folder.glob("equivalent*.toml")):
+        if args.only is not None and path.name not in args.only:
+            continue
         text = path.read_text(encoding="utf-8")
         for name in re.findall(r'^\[equivalent\."([^"]+)"\]', text, flags=re.M):
             new, what = remap(name, args.commit, now, cache)
             if new is None:
-                recheck.append((path.name, name, what))
+                block = re.search(rf'^\[equivalent\."{re.escape(name)}"\]\n(?:[^\[\n].*\n)*\n?', text, flags=re.M)
+                recheck.append((path.name, name, what, block.group(0) if block else ""))
+                if block:
+                    text = text.replace(block.group(0), "")
             elif new != name:
                 print(f"{path.name}: {name} -> {new}")
                 text = text.replace(f'[equivalent."{name}"]', f'[equivalent."{new}"]')
         if args.write:
             path.write_text(text, encoding="utf-8")
-    for file, name, what in recheck:
+    for file, name, what, _ in recheck:
         print(f"{file}: {name}: {what}")
+    if args.write and recheck:
+        out = folder / "to_recheck.toml"
+        head = "" if out.exists() else (
+            "# Equivalence entries whose function changed since they were written (tools/mutation_remap.py):\n"
+            "# their numbers may now name other mutants, so they no longer count. Re-check each against the\n"
+            "# current mutants and move it back to its equivalent_*.toml under its new name, or kill it.\n\n")
+        with out.open("a", encoding="utf-8") as fh:
+            fh.write(head + "".join(f"# from {file} ({what}; at {args.commit})\n{block.rstrip()}\n\n"
+                                    for file, _, what, block in recheck))
     print(f"{len(recheck)} entries to re-check")
     return 0
 
