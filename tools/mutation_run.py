@@ -41,7 +41,7 @@ GROUPS = {
     "summary": (
         ["perierr/summary.py", "perierr/thresholds.py"],
         ["tests/test_summary_weighted.py", "tests/propagate/test_propagation.py", "tests/test_json_contract.py",
-         "tests/test_summary_edges.py", "tests/test_typed_results.py"],
+         "tests/test_summary_edges.py", "tests/test_typed_results.py", "tests/test_summary_mutation_edges.py"],
         False,
     ),
     "frames_models": (
@@ -55,7 +55,9 @@ GROUPS = {
     "propagate": (
         ["perierr/propagate/*", "perierr/sampling/gaussian.py"],
         ["tests/propagate/test_propagation.py", "tests/test_edge_cases.py", "tests/test_json_contract.py",
-         "tests/test_cautions.py", "tests/propagate/test_propagate_edges.py", "tests/test_typed_results.py"],
+         "tests/test_cautions.py", "tests/propagate/test_propagate_edges.py", "tests/test_typed_results.py",
+         "tests/propagate/test_linear_correlated.py", "tests/propagate/test_propagate_mutation_edges.py",
+         "tests/test_seeds.py"],
         False,
     ),
     "orbit": (
