@@ -176,10 +176,15 @@ def errors_to_internal(errors, dec, *, names=OBSERVABLES, row=None, ra_field: st
     Raises
     ------
     InputError
-        An ra error above 0 at a celestial pole (``cos dec <`` :data:`POLE_COS`).
+        A declination that is not a number in [-90, 90] deg, or an ra error above 0 at a celestial
+        pole (``cos dec <`` :data:`POLE_COS`).
     """
     out = np.array(errors, dtype=float)
-    cosd = np.cos(np.radians(dec))
+    decs = np.asarray(dec, dtype=float)
+    outside = ~((decs >= -90.0) & (decs <= 90.0))  # NaN is outside too
+    if np.any(outside):
+        raise InputError("dec", float(decs[outside].flat[0]), "expected a declination in [-90, 90] deg", row)
+    cosd = np.cos(np.radians(decs))
     for k, name in enumerate(names):
         if name == "ra":
             pole = (cosd < POLE_COS) & (out[..., k] > 0)

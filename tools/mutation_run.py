@@ -49,7 +49,7 @@ GROUPS = {
          "perierr/models/diagnostics.py", "perierr/models/__init__.py"],
         ["tests/test_frames.py", "tests/models/test_straight_line.py", "tests/models/test_focusing.py",
          "tests/budget/test_budget_inputs.py", "tests/test_json_contract.py", "tests/models/test_models_edges.py",
-         "tests/test_typed_results.py"],
+         "tests/test_typed_results.py", "tests/models/test_models_mutation_edges.py"],
         False,
     ),
     "propagate": (
@@ -77,13 +77,14 @@ GROUPS = {
     ),
     "plan_update": (
         ["perierr/plan/update.py"],
-        ["tests/plan/test_plan_update.py", "tests/plan/test_plan_goals.py", "tests/plan/test_plan_update_edges.py"],
+        ["tests/plan/test_plan_update.py", "tests/plan/test_plan_goals.py", "tests/plan/test_plan_update_edges.py",
+         "tests/test_units_mutation_edges.py"],
         False,
     ),
     "units": (
         ["perierr/units.py"],
         ["tests/test_units.py", "tests/star/test_star.py", "tests/test_frames.py", "tests/plan/test_plan_update.py",
-         "tests/plan/test_plan_update_edges.py", "tests/test_calibration.py"],
+         "tests/plan/test_plan_update_edges.py", "tests/test_calibration.py", "tests/test_units_mutation_edges.py"],
         False,
     ),
 }
