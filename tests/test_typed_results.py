@@ -29,9 +29,8 @@ from perierr.propagate import propagate_samples
 from perierr.report.text import format_analysis
 from perierr.sampling.gaussian import Samples
 from perierr.summary import summarize
+from tests.test_json_contract import lma  # the straight line written in that test, from its formulas
 
-K_KMS = (1.0 * u.au / u.yr).to_value(u.km / u.s)  # astropy: 1 au/yr in km/s
-C_MYR = (1.0 * u.pc / (u.km / u.s)).to_value(u.Myr)  # astropy: Myr per pc/(km/s)
 G = const.G.to_value(u.pc * (u.km / u.s) ** 2 / u.Msun)  # astropy (IAU 2015 nominal values)
 
 BASE = {
@@ -50,15 +49,6 @@ def quiet(fn, *args, **kwargs):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)
         return fn(*args, **kwargs)
-
-
-def lma(values):
-    """Straight-line (t [Myr], d [pc], v [km/s]) of observables (n, 6): t = -r v_r / v^2, d = r v_t / v."""
-    x = np.atleast_2d(np.asarray(values, dtype=float))
-    r = 1000.0 / x[:, 2]
-    vt = K_KMS * np.hypot(x[:, 3], x[:, 4]) * r / 1000.0
-    v = np.hypot(x[:, 5], vt)
-    return np.stack([-C_MYR * r * x[:, 5] / v**2, r * vt / v, v], axis=-1)
 
 
 def hyperbola_pericentre(b, v, mass):

@@ -40,6 +40,8 @@ from perierr.models.orbit.sun import SolarParameterError, get_solar_parameters
 from perierr.models.orbit.transition import MapTables, _derivative, features, variational_tables
 from perierr.units import MYR_PER_PC_PER_KMS
 
+from .test_potentials import _fd_grad as _fd  # central differences along the three axes (textbook numerics)
+
 # ---------------------------------------------------------------- potentials: parameters and descriptions
 
 VALID = {
@@ -104,16 +106,6 @@ def test_composite_needs_potentials_and_scales_all_parts():
     assert isinstance(doubled, CompositePotential)
     assert np.allclose(doubled.potential(x), 2.0 * pot.potential(x), rtol=1e-14, atol=0)
     assert doubled.components[1].mass_msun == 2.0 * VALID[MiyamotoNagai]["mass_msun"]
-
-
-def _fd(f, x, h):
-    """Central differences of f along the three axes, stacked on a new last axis (textbook numerics)."""
-    out = []
-    for k in range(3):
-        e = np.zeros(3)
-        e[k] = h
-        out.append((f(x + e) - f(x - e)) / (2 * h))
-    return np.stack(out, axis=-1)
 
 
 def test_fused_derivatives_of_a_disk_plus_one_sphere_match_finite_differences():
