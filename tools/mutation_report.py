@@ -165,6 +165,8 @@ def main(argv=None) -> int:
         return 2
     equivalent = read_equivalent(args.equivalent)
     stale = sorted(set(equivalent) - set(results))
+    # an entry whose mutant a test kills is wrong (or its number now names another mutant)
+    contradicted = sorted(n for n in equivalent if n in results and results[n][0] in KILLED)
     per = defaultdict(Counter)
     survivors = defaultdict(list)
     for name, (code, group) in sorted(results.items()):
@@ -201,6 +203,10 @@ def main(argv=None) -> int:
         *rows,
         "",
     ]
+    if contradicted:
+        lines += ["Listed as equivalent but killed by a test (the entry is wrong, or its number now names another "
+                  "mutant; re-check it):", ""]
+        lines += [f"- `{n}`" for n in contradicted] + [""]
     if stale_groups:
         lines += ["Saved groups whose files changed since their run (re-run them): "
                   + ", ".join(sorted(stale_groups)), ""]
