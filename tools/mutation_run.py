@@ -12,7 +12,7 @@ Run (from the repository root; ``pip install mutmut``)::
 
     python tools/mutation_run.py            # every group, one after another
     python tools/mutation_run.py budget orbit
-    python tools/mutation_run.py --survivors orbit   # after adding tests: re-test only the survivors
+    python tools/mutation_run.py --fresh orbit       # after adding tests: forget the last run and re-test all
     python tools/mutation_report.py         # the score and the survivors
 
 Wall times on the 2-core development machine are in DEVELOPERS.md.
@@ -135,48 +135,22 @@ def run(group: str, children: int) -> float:
     return time.perf_counter() - start
 
 
-def survivors(group: str) -> list:
-    """Names of the group's mutants that survived or that no test reached, from its last run."""
-    mutmut = shutil.which("mutmut") or str(Path(sys.executable).with_name("mutmut"))
-    text = subprocess.run([mutmut, "results"], cwd=WORK / group, capture_output=True, text=True, check=False).stdout
-    return [line.split(":")[0].strip() for line in text.splitlines()
-            if line.strip().endswith(("survived", "no tests"))]
-
-
-def rerun_survivors(group: str, children: int) -> float:
-    """Re-test the survivors of a finished group against the current tests; returns the wall time in seconds.
-
-    mutmut re-tests a mutant only when its function changed, so a new test that kills a survivor is
-    registered by naming the survivor again.
-    """
-    work = prepare(group)
-    mutants = work / "mutants"
-    if mutants.is_dir():  # the mutated copy runs its own copy of the tests: bring the new ones in
-        shutil.copytree(ROOT / "tests", mutants / "tests", dirs_exist_ok=True,
-                        ignore=shutil.ignore_patterns("__pycache__"))
-    names = survivors(group)
-    mutmut = shutil.which("mutmut") or str(Path(sys.executable).with_name("mutmut"))
-    start = time.perf_counter()
-    with (work / "mutmut-survivors.log").open("w", encoding="utf-8") as log:
-        for i in range(0, len(names), 200):  # keep the command line short
-            subprocess.run([mutmut, "run", "--max-children", str(children), *names[i:i + 200]], cwd=work,
-                           stdout=log, stderr=log, check=False)
-    return time.perf_counter() - start
-
-
 def main(argv=None) -> int:
     """Run the named groups (default: all); returns the exit status."""
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("groups", nargs="*", help=f"groups to run (default: all): {', '.join(GROUPS)}")
     parser.add_argument("--max-children", type=int, default=2, help="parallel mutants (default 2)")
-    parser.add_argument("--survivors", action="store_true",
-                        help="re-test only the survivors of the groups' last run (after adding tests)")
+    parser.add_argument("--fresh", action="store_true",
+                        help="forget the groups' last run first (mutmut re-tests a mutant only when its function "
+                             "changed, so new tests are credited only by a fresh run)")
     args = parser.parse_args(argv)
     unknown = [g for g in args.groups if g not in GROUPS]
     if unknown:
         parser.error(f"unknown group(s) {', '.join(unknown)}; expected some of {', '.join(GROUPS)}")
     for group in args.groups or list(GROUPS):
-        seconds = (rerun_survivors if args.survivors else run)(group, args.max_children)
+        if args.fresh:
+            shutil.rmtree(WORK / group, ignore_errors=True)
+        seconds = run(group, args.max_children)
         print(f"{group}: {seconds / 60:.1f} min (log: .mutation/{group}/mutmut.log)", flush=True)
     return 0
 
