@@ -13,8 +13,7 @@ the subpackages :mod:`perierr.plan`, :mod:`perierr.priors`,
 quick and ``perierr.plan.rank_measurements`` works after it.
 """
 
-import importlib
-
+from ._lazy import lazy_names
 from ._version import __version__
 from .analysis import Analysis, analyze
 from .budget import LinearBudget, linear_budget
@@ -66,16 +65,4 @@ __all__ = [
     "read_star_file",
 ]
 
-
-def __getattr__(name):
-    if name in _LAZY:
-        value = getattr(importlib.import_module(_LAZY[name]), name)
-        globals()[name] = value  # found once, then an ordinary attribute
-        return value
-    if name in _SUBPACKAGES:
-        return importlib.import_module(f"{__name__}.{name}")
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_LAZY) | set(_SUBPACKAGES))
+__getattr__, __dir__ = lazy_names(__name__, globals(), _LAZY, _SUBPACKAGES)

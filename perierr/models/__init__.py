@@ -4,8 +4,7 @@
 (``perierr.models.orbit`` works without importing it first).
 """
 
-import importlib
-
+from .._lazy import lazy_names
 from ..errors import InputError
 from .base import ForwardModel, Perihelion
 from .diagnostics import FocusingDiagnostics, ModelDiagnostics
@@ -72,7 +71,5 @@ def make_model(name: str = "straight_line", **options) -> ForwardModel:
     return model
 
 
-def __getattr__(name):
-    if name in ("orbit", "focusing"):  # submodules with heavier imports (scipy), loaded when asked for
-        return importlib.import_module(f"{__name__}.{name}")
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+# submodules with heavier imports (scipy), loaded when asked for
+__getattr__, __dir__ = lazy_names(__name__, globals(), {}, ("orbit", "focusing"))

@@ -12,27 +12,26 @@ The names below are loaded on first use (PEP 562), so that a run without a
 prior does not pay for the samplers at start-up.
 """
 
-import importlib
-
+from .._lazy import lazy_names
 from ..sampling.reweight import log_weights, reweight  # light: numpy only
 
 #: Public name -> the submodule that defines it.
 _WHERE = {
     "ChainTooShortError": "..sampling.mcmc",
-    "CustomPrior": "densities",
-    "DistancePrior": "densities",
-    "ExponentialDensity": "densities",
-    "GeneralizedGamma": "densities",
+    "CustomPrior": ".densities",
+    "DistancePrior": ".densities",
+    "ExponentialDensity": ".densities",
+    "GeneralizedGamma": ".densities",
     "METHODS": "..sampling.posterior",
-    "NoPrior": "densities",
-    "PRIOR_SYNTAX": "parse",
-    "TablePrior": "densities",
-    "UniformDensity": "densities",
-    "log_distance_posterior": "densities",
-    "parse_prior": "parse",
-    "posterior_mode": "densities",
+    "NoPrior": ".densities",
+    "PRIOR_SYNTAX": ".parse",
+    "TablePrior": ".densities",
+    "UniformDensity": ".densities",
+    "log_distance_posterior": ".densities",
+    "parse_prior": ".parse",
+    "posterior_mode": ".densities",
     "posterior_samples": "..sampling.posterior",
-    "resolve_prior": "parse",
+    "resolve_prior": ".parse",
     "sample_posterior_mcmc": "..sampling.mcmc",
 }
 
@@ -57,17 +56,4 @@ __all__ = [
     "sample_posterior_mcmc",
 ]
 
-
-def __getattr__(name):
-    if name not in _WHERE:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    where = _WHERE[name]
-    module = importlib.import_module(where, "perierr.priors") if where.startswith(".") else (
-        importlib.import_module(f"{__name__}.{where}"))
-    value = getattr(module, name)
-    globals()[name] = value  # found once, then an ordinary attribute
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_WHERE))
+__getattr__, __dir__ = lazy_names(__name__, globals(), _WHERE)
