@@ -87,7 +87,10 @@ class ModelDiagnostics:
     fallback_reason : str
         Why they were.
     sparse_bin_samples : int
-        Draws in distance bins too sparse for a reference orbit (integrated directly).
+        Draws in parts of the cloud too sparse for a map of their own (integrated directly).
+    multimodal_leaves : int
+        Orbit model: leaves of the map whose draws may have several minima of the separation in their span
+        (their search starts at each draw's smallest separation on the grid).
     method : str
         Orbit model: ``"direct"``, ``"state_transition_map"``, ``"state_transition_map+direct_fallback"`` or
         ``"straight line beyond the potential"``.
@@ -129,6 +132,7 @@ class ModelDiagnostics:
     fallback_samples: int | None = None
     fallback_reason: str | None = None
     sparse_bin_samples: int | None = None
+    multimodal_leaves: int | None = None
     method: str | None = None
     n_outside_window: int | None = None
     n_not_converged: int | None = None

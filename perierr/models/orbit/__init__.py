@@ -3,9 +3,12 @@
 Modules: :mod:`.potentials` (all components: :mod:`.potential_base`,
 :mod:`.spheres`, :mod:`.disk`), :mod:`.presets` (named potentials),
 :mod:`.sun` (solar parameter sets and the Galactocentric frame),
-:mod:`.integrate` (direct integration and perihelion search),
-:mod:`.transition` (second-order state-transition map), :mod:`.model`
-(:class:`OrbitModel`).
+:mod:`.grid` (window and grid), :mod:`.integrate` (DOP853 integration and
+the perihelion search on quintic Hermite interpolants), :mod:`.draws`
+(fixed-step RK4 of many draws, the Sun's orbit shared), :mod:`.leaves`
+(leaves of the draw cloud and their polynomial maps), :mod:`.mapping` (the
+map's steps, check and fallback), :mod:`.transition` (variational equations,
+for the Jacobian), :mod:`.model` (:class:`OrbitModel`).
 """
 
 from .model import ORBIT_OPTIONS, OrbitModel, OrbitOptionError

@@ -33,6 +33,7 @@ __all__ = [
     "hermite",
     "newton_perihelion",
     "grid_minimum_start",
+    "quintic_coefficients",
 ]
 
 
@@ -162,6 +163,23 @@ def _cubic(t0, t1, p0, m0, p1, m1):
     return p0, h * m0, c2, c3, h
 
 
+def quintic_coefficients(h, p0, v0, a0, p1, v1, a1):
+    """Power-basis coefficients (c0..c5) in u = (t - t0) / h of the quintic Hermite interpolant.
+
+    It matches position, velocity and acceleration at both ends of an interval of width ``h``; its error
+    is of order h^6 times the sixth derivative, against h^4 for the cubic through positions and
+    velocities (Hairer, Norsett & Wanner 1993, Sect. II.6). Arrays broadcast; ``h`` against their
+    leading axes.
+    """
+    v0, v1 = h * v0, h * v1
+    a0, a1 = h * h * a0, h * h * a1
+    dp = p1 - p0
+    c3 = 10.0 * dp - 6.0 * v0 - 4.0 * v1 - 0.5 * (3.0 * a0 - a1)
+    c4 = -15.0 * dp + 8.0 * v0 + 7.0 * v1 + 0.5 * (3.0 * a0 - 2.0 * a1)
+    c5 = 6.0 * dp - 3.0 * (v0 + v1) - 0.5 * (a0 - a1)
+    return p0, v0, 0.5 * a0, c3, c4, c5
+
+
 def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coefficients=False):
     """Refine the time of minimum separation with Newton's method on Hermite cubics.
 
@@ -173,9 +191,12 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coe
         ``node_values(k, rows) -> (state0, deriv0, state1, deriv1)``, each of
         shape (len(rows), 6): relative states and their time derivatives of
         stars ``rows`` at node indices ``k`` and ``k + 1``.
-        With ``coefficients=True`` it returns instead the (24, len(rows))
-        power-basis coefficients (c0, c1, c2, c3), 6 rows each, of the
-        Hermite cubic in u = (t - t_k) / h_k (as from :func:`_cubic`).
+        The separation between nodes is the quintic Hermite interpolant of
+        the positions through their velocities and accelerations.
+        With ``coefficients=True`` it returns instead power-basis coefficients
+        in u = (t - t_k) / h_k: (18, len(rows)), c0..c5 of the position's
+        quintic (:func:`quintic_coefficients`), or (24, len(rows)), c0..c3 of
+        the Hermite cubics of position and velocity (:func:`_cubic`).
     t_start : ndarray, shape (n,)
         Starting times (clamped to the grid).
     max_iter : int
@@ -226,24 +247,43 @@ def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coe
             done[act[finished]] = True
             act = act[~finished]
     u = (t - nodes[k]) / h
-    state = c[:6] + u * (c[6:12] + u * (c[12:18] + u * c[18:]))
+    if c.shape[0] == 18:
+        pos, vel = _quintic_state(c, u, h)
+        state = np.concatenate([pos, vel])
+    else:
+        state = c[:6] + u * (c[6:12] + u * (c[12:18] + u * c[18:]))
     return t, state.T, outside, done
 
 
 def _coefficient_source(nodes, node_values, coefficients):
-    """``coefs(k, rows) -> (24, len(rows))``: cubic coefficients, components in rows, samples in columns."""
+    """``coefs(k, rows)``: interpolant coefficients, components in rows, samples in columns.
+
+    From node values, the quintic of the positions (18 rows: c0..c5 of x, y, z) built with the
+    accelerations (the last three components of the derivatives); given coefficients are either that or
+    the cubics of positions and velocities (24 rows).
+    """
 
     def coefs(kk, rows):
         if coefficients:
             return node_values(kk, rows)
-        c0, c1, c2, c3, _ = _cubic(nodes[kk], nodes[kk + 1], *node_values(kk, rows))
-        return np.concatenate([c0, c1, c2, c3], axis=1).T
+        s0, d0, s1, d1 = node_values(kk, rows)
+        h = (nodes[kk + 1] - nodes[kk])[:, None]
+        parts = quintic_coefficients(h, s0[:, :3], s0[:, 3:], d0[:, 3:], s1[:, :3], s1[:, 3:], d1[:, 3:])
+        return np.concatenate(parts, axis=1).T
 
     return coefs
 
 
 def _separation_rate(ca, u, ha):
-    """``f = x . v`` and its time derivative ``v . v + x . a`` from cubic coefficients (24, n) at ``u``."""
+    """``f = x . v`` and its time derivative ``v . v + x . a`` from interpolant coefficients at ``u``.
+
+    ``ca``: (24, n) cubics of position and velocity, or (18, n) quintics of the position.
+    """
+    if ca.shape[0] == 18:
+        x, v, acc = _quintic_state(ca, u, ha, second=True)
+        f = x[0] * v[0] + x[1] * v[1] + x[2] * v[2]
+        fp = v[0] * v[0] + v[1] * v[1] + v[2] * v[2] + x[0] * acc[0] + x[1] * acc[1] + x[2] * acc[2]
+        return f, fp
     # Horner in place: position and velocity, and the acceleration
     p = ca[18:] * u
     p += ca[12:18]
@@ -260,6 +300,31 @@ def _separation_rate(ca, u, ha):
     f = x[0] * v[0] + x[1] * v[1] + x[2] * v[2]
     fp = v[0] * v[0] + v[1] * v[1] + v[2] * v[2] + x[0] * acc[0] + x[1] * acc[1] + x[2] * acc[2]
     return f, fp
+
+
+def _quintic_state(ca, u, ha, *, second=False):
+    """Position, velocity (and acceleration) from quintic coefficients (18, n) at ``u`` (Horner)."""
+    p = ca[15:18] * u
+    dp = ca[15:18] * (5.0 * u)
+    ddp = ca[15:18] * (20.0 * u) if second else None
+    for i in (4, 3, 2):
+        c = ca[3 * i : 3 * i + 3]
+        p += c
+        p *= u
+        dp += i * c
+        dp *= u
+        if second and i > 2:
+            ddp += (i * (i - 1)) * c
+            ddp *= u
+    p += ca[3:6]
+    p *= u
+    p += ca[0:3]
+    dp += ca[3:6]
+    v = dp / ha
+    if not second:
+        return p, v
+    ddp += 2.0 * ca[6:9]
+    return p, v, ddp / (ha * ha)
 
 
 def _newton_step(nodes, t_old, f, fp, ha, tol):

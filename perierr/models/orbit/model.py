@@ -13,6 +13,7 @@ integrated directly (vectorized over samples). See
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import replace
 
@@ -24,9 +25,9 @@ from ...units import MYR_PER_PC_PER_KMS as _C
 from ...units import PARALLAX
 from ..base import ForwardModel, Perihelion
 from ..diagnostics import ModelDiagnostics
-from .grid import map_span, rownorm, window_and_nodes
+from .grid import rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
-from .mapping import map_perihelia
+from .mapping import direct_rows, map_perihelia
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
 from .sun import SolarParameters, get_solar_parameters
@@ -38,10 +39,9 @@ __all__ = ["OrbitModel", "OrbitOptionError", "ORBIT_OPTIONS"]
 ORBIT_OPTIONS = (
     "potential", "sun", "horizon_myr", "max_horizon_myr", "grid_step_myr", "grid_travel_pc",
     "method",
-    "bin_width_pc", "min_bin_samples", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
+    "leaf_radius_pc", "min_leaf_samples", "map_order", "map_tolerance_au", "n_check", "rtol", "atol", "chunk_size",
 )  # fmt: skip
 _METHODS = ("auto", "map", "direct")
-_map_span = map_span  # module attribute, so that tests can narrow the span
 
 
 #: Rows farther than this from the Sun [pc] lie beyond the Galactic potential's validity (the halo of
@@ -72,6 +72,13 @@ def _positive(option, value):
     return v
 
 
+def replace_method(model, method="direct"):
+    """A copy of ``model`` with another ``method``."""
+    other = copy.copy(model)
+    other.method = method
+    return other
+
+
 class OrbitModel(ForwardModel):
     """Perihelion from orbits of the Sun and the star in a Milky Way potential.
 
@@ -83,46 +90,51 @@ class OrbitModel(ForwardModel):
     sun : str or SolarParameters, default "bovy2015"
         Solar parameter set name ("bovy2015", "astropy_v4") or an object.
     horizon_myr : None, float or (float, float), default None
-        Search window [Myr]. None: the range of the rows' straight-line
-        times, widened on each side by 25 % of the time plus half the range
-        plus 0.3 Myr, always containing now, capped at ``max_horizon_myr``;
-        a number h: (-h, h); a pair: (t_min, t_max) with
-        t_min <= 0 <= t_max. Perihelia outside are flagged and given the
-        straight-line extrapolation from the window edge.
+        Search window [Myr]: the perihelion is the global minimum of the
+        separation inside it. None: (-``max_horizon_myr``, ``max_horizon_myr``);
+        a number h: (-h, h); a pair: (t_min, t_max) with t_min <= 0 <= t_max.
+        Perihelia outside (the separation still falls at the window edge) are
+        flagged and given the straight-line extrapolation from the edge.
     max_horizon_myr : float, default 100
-        Cap of the automatic window [Myr].
-    grid_step_myr : float, default 0.5
-        Largest step of the tabulation grid [Myr] (the integrator's own steps
-        are adaptive; the perihelion is refined far below this step).
-    grid_travel_pc : float, default 10
+        Half-width of the default window [Myr]. Over such times the Galactic
+        tide can bring a slow star back closer than its first approach.
+    grid_step_myr : float, default 1.0
+        Largest step of the tabulation grid [Myr]; the perihelion is refined
+        far below it on quintic Hermite interpolants of the tabulated
+        positions, velocities and accelerations.
+    grid_travel_pc : float, default 20
         The grid step is also at most this distance divided by the largest
-        relative speed of the rows: the Hermite error grows as (speed *
-        step)^2 step^2 times the third derivatives of the potential (the disk's
-        vertical structure), about 0.02 au at the default.
+        relative speed of the rows (the interpolation error grows as the sixth
+        power of the distance travelled per step).
     method : {"auto", "map", "direct"}, default "auto"
-        "map": state-transition map (needs ``reference``), checked but never
-        replaced; "direct": integrate every row; "auto": map with automatic
-        fallback to direct integration where the check fails.
-    bin_width_pc : float, default 10
-        Width of the distance bins [pc]; each bin with at least
-        ``min_bin_samples`` samples (and the bin of ``reference``) gets its own
-        reference orbit, all integrated in one solver call.
-    min_bin_samples : int, default 50
-        Samples in sparser bins are integrated directly (cheaper than a
-        reference orbit with its 258 variational equations).
+        "auto": polynomial maps fitted on leaves of the draw cloud, checked on
+        random draws against direct integration, with automatic fallback to
+        direct integration (fixed-step RK4) where the check does not trust the
+        map (:mod:`~perierr.models.orbit.mapping`); rows fewer than
+        ``min_leaf_samples`` are integrated directly with RK4; "map": the same,
+        checked but never replaced; "direct": every row with scipy's adaptive
+        DOP853 at ``rtol``/``atol`` (the reference; slow).
+    leaf_radius_pc : float, default 50
+        Largest radius of a leaf of the draw cloud [pc] in the scaled offsets
+        (position offset, and velocity offset times the straight-line time
+        plus 1 pc/(km/s)) before the check; leaves the check does not trust
+        are halved again (up to three rounds).
+    min_leaf_samples : int, default 200
+        Fewest draws of a leaf (at least twice its training and check draws);
+        sparser parts of the cloud are integrated directly.
+    map_order : {2, 3, 4}, default 4
+        Highest degree of a leaf's polynomial map (the lowest degree the check
+        trusts is used).
     map_tolerance_au : float, default 0.5
-        Largest allowed map error in d_ph [au] on the checked samples.
-    n_check : int, default 4
-        Samples per bin checked against direct integration (those farthest
-        from their reference orbit).
+        Largest allowed map error in d_ph [au] predicted from the check.
+    n_check : int, default 8
+        Random check draws per leaf (plus its two farthest from the centre),
+        integrated directly and compared with the map.
     rtol, atol : float, default 1e-10, 1e-10
-        DOP853 tolerances of every direct integration and of the Jacobian's
-        reference orbit (state in pc and km/s). The default already agrees
-        with galpy at rtol 1e-12 to 0.001 au for stars within 50 pc; the
-        results hardly change between 1e-9 and 1e-12. The map's reference
-        orbits and check samples use fixed-step RK4 on the grid instead (its
-        estimated error, at most 0.3 ``map_tolerance_au``, is added to the
-        predicted map error; :mod:`~perierr.models.orbit.fixed_step`).
+        DOP853 tolerances of ``method="direct"`` and of the Jacobian's
+        reference orbit (state in pc and km/s). The RK4 integrations of the
+        map halve their steps until Richardson's estimate of their error is
+        below a tenth of ``map_tolerance_au``.
     chunk_size : int, default 20000
         Samples per direct-integration call (bounds memory; smaller for long
         windows so that the tabulated states stay below ~250 MB).
@@ -132,9 +144,9 @@ class OrbitModel(ForwardModel):
 
     def __init__(
         self, *, potential="MWPotential2014", sun="bovy2015", horizon_myr=None,
-        max_horizon_myr=100.0, grid_step_myr=0.5, grid_travel_pc=10.0, method="auto",
-        bin_width_pc=10.0, min_bin_samples=50,
-        map_tolerance_au=0.5, n_check=4, rtol=1e-10, atol=1e-10, chunk_size=20000,
+        max_horizon_myr=100.0, grid_step_myr=1.0, grid_travel_pc=20.0, method="auto",
+        leaf_radius_pc=50.0, min_leaf_samples=200, map_order=4,
+        map_tolerance_au=0.5, n_check=8, rtol=1e-10, atol=1e-10, chunk_size=20000,
     ):  # fmt: skip
         if isinstance(potential, str):
             self._preset = get_potential(potential)
@@ -168,10 +180,13 @@ class OrbitModel(ForwardModel):
         if method not in _METHODS:
             raise _bad("method", method, f"one of {', '.join(_METHODS)}")
         self.method = method
-        self.bin_width_pc = _positive("bin_width_pc", bin_width_pc)
-        if not isinstance(min_bin_samples, int | np.integer) or min_bin_samples < 1:
-            raise _bad("min_bin_samples", min_bin_samples, "a positive integer")
-        self.min_bin_samples = int(min_bin_samples)
+        self.leaf_radius_pc = _positive("leaf_radius_pc", leaf_radius_pc)
+        if not isinstance(min_leaf_samples, int | np.integer) or min_leaf_samples < 1:
+            raise _bad("min_leaf_samples", min_leaf_samples, "a positive integer")
+        self.min_leaf_samples = int(min_leaf_samples)
+        if not isinstance(map_order, int | np.integer) or isinstance(map_order, bool) or map_order not in (2, 3, 4):
+            raise _bad("map_order", map_order, "2, 3 or 4")
+        self.map_order = int(map_order)
         self.map_tolerance_au = _positive("map_tolerance_au", map_tolerance_au)
         if not isinstance(n_check, int | np.integer) or n_check < 1:
             raise _bad("n_check", n_check, "a positive integer")
@@ -196,8 +211,9 @@ class OrbitModel(ForwardModel):
             "grid_step_myr": self.grid_step_myr,
             "grid_travel_pc": self.grid_travel_pc,
             "method": self.method,
-            "bin_width_pc": self.bin_width_pc,
-            "min_bin_samples": self.min_bin_samples,
+            "leaf_radius_pc": self.leaf_radius_pc,
+            "min_leaf_samples": self.min_leaf_samples,
+            "map_order": self.map_order,
             "map_tolerance_au": self.map_tolerance_au,
             "n_check": self.n_check,
             "integrator": {"scheme": "DOP853", "rtol": self.rtol, "atol": self.atol},
@@ -219,14 +235,17 @@ class OrbitModel(ForwardModel):
         rel = (xv.reshape(-1, 3) @ self._rotation.T).reshape(-1, 6)
         return obs, rel
 
-    def _grid(self, t_lin, speed):
-        """Window [Myr] and grid nodes [pc/(km/s)] for straight-line times and speeds."""
-        return window_and_nodes(
-            t_lin, speed, horizon_myr=self.horizon_myr, max_horizon_myr=self.max_horizon_myr,
-            grid_step_myr=self.grid_step_myr, grid_travel_pc=self.grid_travel_pc,
-        )  # fmt: skip
+    def window(self) -> tuple:
+        """The search window (t_min, t_max) [Myr]."""
+        if self.horizon_myr is not None:
+            return tuple(self.horizon_myr)
+        return (-self.max_horizon_myr, self.max_horizon_myr)
 
-    # ---------------------------------------------------------------- solvers
+    def _grid(self, speed, window=None):
+        """Window [Myr] and grid nodes [pc/(km/s)] for the largest relative speed [km/s]."""
+        return window_and_nodes(self.window() if window is None else window, speed,
+                                grid_step_myr=self.grid_step_myr, grid_travel_pc=self.grid_travel_pc)
+
     def _direct(self, rel, nodes):
         """Direct integration of every row (chunked); returns t, state, outside, conv."""
         n = rel.shape[0]
@@ -249,13 +268,12 @@ class OrbitModel(ForwardModel):
             t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, values, t0)
         return t, state, outside, conv
 
-    def _map(self, rel_all, ref_rel, nodes, t_lin_all):
-        """Rows through the state-transition map (:func:`.mapping.map_perihelia`); t, state, outside, conv, diag."""
-        # _map_span and features are this module's names, looked up at each call, so that tests can replace them
-        return map_perihelia(self, rel_all, ref_rel, nodes, t_lin_all, span=_map_span, features=features)
+    def _map(self, rel_all, t_lin_all, progress=None):
+        """Rows through the leaf maps (:func:`.mapping.map_perihelia`); t, state, outside, conv, diag."""
+        return map_perihelia(self, rel_all, t_lin_all, progress)
 
     # --------------------------------------------------------------- interface
-    def evaluate(self, observables, *, reference=None) -> Perihelion:
+    def evaluate(self, observables, *, reference=None, progress=None) -> Perihelion:
         """Perihelion of every row; see :meth:`ForwardModel.evaluate`.
 
         ``diagnostics`` (a :class:`~perierr.models.diagnostics.ModelDiagnostics`;
@@ -276,15 +294,21 @@ class OrbitModel(ForwardModel):
         t_lin = -np.sum(rel[:, :3] * v, axis=1) / np.where(vv > 0, vv, 1.0)
         far = (rownorm(rel[:, :3]) > MAX_DISTANCE_PC) | (np.sqrt(vv) > MAX_SPEED_KMS)
         if far.any():
-            return self._beyond_potential(observables, rel, t_lin, far, reference)
-        window, nodes = self._grid(t_lin, np.sqrt(vv.max()))
-        found = {"model": self.name, "window_myr": list(window), "grid_nodes": len(nodes)}  # ModelDiagnostics fields
-        if reference is None or self.method == "direct":
+            return self._beyond_potential(observables, rel, t_lin, far, reference, progress)
+        found = {"model": self.name}  # ModelDiagnostics fields, in the JSON's order
+        if self.method == "direct":
+            window, nodes = self._grid(np.sqrt(vv.max()))
+            found.update(window_myr=list(window), grid_nodes=len(nodes))
             t, state, outside, conv = self._direct(rel, nodes)
             found["method"] = "direct"
+            if progress is not None:
+                progress(rel.shape[0], rel.shape[0])
+        elif rel.shape[0] < self.min_leaf_samples:  # too few rows for a map: RK4 over the window
+            t, state, outside, conv, diag = direct_rows(self, rel, progress)
+            found.update(diag)
+            found["method"] = "direct"
         else:
-            _, ref_rel = self._relative(reference)
-            t, state, outside, conv, diag = self._map(rel, ref_rel[0], nodes, t_lin)
+            t, state, outside, conv, diag = self._map(rel, t_lin, progress)
             found.update(diag)
             found["method"] = (
                 "state_transition_map+direct_fallback"
@@ -316,7 +340,7 @@ class OrbitModel(ForwardModel):
         )
         return Perihelion(t_ph, d_ph, v_ph, flags=outside | ~conv, diagnostics=diagnostics)
 
-    def _beyond_potential(self, observables, rel, t_lin, far, reference) -> Perihelion:
+    def _beyond_potential(self, observables, rel, t_lin, far, reference, progress=None) -> Perihelion:
         """Rows beyond MAX_DISTANCE_PC or MAX_SPEED_KMS get the straight-line answer, flagged; the rest as usual."""
         obs = np.asarray(observables, dtype=float).reshape(-1, 6)
         x = rel[:, :3] + rel[:, 3:] * t_lin[:, None]
@@ -330,7 +354,7 @@ class OrbitModel(ForwardModel):
             if ref_rel is not None and (rownorm(ref_rel[:, :3])[0] > MAX_DISTANCE_PC
                                         or rownorm(ref_rel[:, 3:])[0] > MAX_SPEED_KMS):
                 near_ref = None
-            inner = self.evaluate(obs[~far], reference=near_ref)
+            inner = self.evaluate(obs[~far], reference=near_ref, progress=progress)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
             flags[~far] = inner.flags if inner.flags is not None else False
             # the straight-line block has one entry per row: the far rows' answer is the straight line itself
@@ -353,9 +377,15 @@ class OrbitModel(ForwardModel):
             from ..straight import StraightLine  # beyond the potential: the straight line, as evaluate()
 
             return StraightLine().jacobian(obs[0])
-        v = rel[0, 3:]
-        t_lin = np.array([-np.dot(rel[0, :3], v) / np.dot(v, v)])
-        _, nodes = self._grid(t_lin, np.linalg.norm(v))
+        # the nominal perihelion over the whole window, then the variational equations around it
+        nominal = direct_rows(self, rel)
+        t_ph = float(nominal[0][0]) * _C
+        if nominal[2][0]:  # outside the window: central differences of the flagged (extrapolated) answer
+            return self._jacobian_by_differences(obs[0])
+        pad = 0.1 * abs(t_ph) + 2.0 * self.grid_step_myr
+        lo, hi = self.window()
+        local = (max(lo, min(0.0, t_ph - pad)), min(hi, max(0.0, t_ph + pad)))
+        _, nodes = self._grid(np.linalg.norm(rel[0, 3:]), local)
         tables = variational_tables(
             self.potential, self._sun_state, rel, nodes, rtol=self.rtol, atol=self.atol
         )
@@ -382,3 +412,12 @@ class OrbitModel(ForwardModel):
         rot6 = np.zeros((6, 6))
         rot6[:3, :3] = rot6[3:, 3:] = self._rotation
         return jac_gc @ rot6 @ cartesian_jacobian(obs[0])
+
+    def _jacobian_by_differences(self, point) -> np.ndarray:
+        """(3, 6) central differences of the direct answer (for a perihelion outside the window)."""
+        point = np.asarray(point, dtype=float)
+        steps = np.maximum(np.abs(point), 1.0) * 1e-6
+        rows = np.vstack([point + np.diag(steps), point - np.diag(steps)])
+        ph = replace_method(self).evaluate(rows)
+        out = np.stack([ph.time_myr, ph.distance_pc, ph.speed_kms])  # (3, 12)
+        return (out[:, :6] - out[:, 6:]) / (2.0 * steps)

@@ -116,8 +116,20 @@ class CompositePotential(Potential):
         return sum(c.potential(x) for c in self.components)
 
     def acceleration(self, x):
-        """Acceleration [(km/s)^2/pc], shape (..., 3)."""
-        return sum(c.acceleration(x) for c in self.components)
+        """Acceleration [(km/s)^2/pc], shape (..., 3).
+
+        Spherical components share one radius and one product with the position.
+        """
+        radial = [c for c in self.components if getattr(c, "_radial", False)]
+        if len(radial) < 2:
+            return sum(c.acceleration(x) for c in self.components)
+        x = np.asarray(x, dtype=float)
+        r = np.sqrt(np.einsum("...i,...i->...", x, x))
+        acc = -(sum(c._d1(r) for c in radial) / r)[..., None] * x
+        for c in self.components:
+            if not getattr(c, "_radial", False):
+                acc += c.acceleration(x)
+        return acc
 
     def hessian(self, x):
         """Hessian of Phi [(km/s)^2/pc^2], shape (..., 3, 3)."""

@@ -25,7 +25,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from .fixed_step import rk4_on_nodes
 from .integrate import _solve_both_ways, relative_derivative
 
 __all__ = ["N_FEATURES", "features", "variational_tables", "MapTables"]
@@ -118,7 +117,6 @@ class MapTables:
         self.refs = refs
         self.table = table
         self.extra = None  # (states, derivs) of directly integrated extra states
-        self.integration_error_pc = 0.0  # estimated error of the fixed-step scheme
         # power-basis coefficients of the Hermite cubic of every interval, as
         # linear maps of the features: (K, m-1, 28, 24) for (c0, c1, c2, c3)
         # of the state in u = (t - t_k) / h_k (see integrate.cubic_coefficients)
@@ -194,11 +192,10 @@ def _product(a, f):
     return out
 
 
-def variational_tables(
-    potential, sun_state, refs, nodes, *, rtol, atol, extra=None, scheme="dop853",
-    max_error_pc=None,
-):  # fmt: skip
+def variational_tables(potential, sun_state, refs, nodes, *, rtol, atol, extra=None):
     """Integrate reference orbits with their variational equations and tabulate the maps.
+
+    Used by the orbit model's Jacobian (linear propagation) around the nominal star.
 
     Parameters
     ----------
@@ -211,40 +208,23 @@ def variational_tables(
     nodes : ndarray, shape (m,)
         Increasing grid times containing 0 [pc/(km/s)].
     rtol, atol : float
-        DOP853 tolerances (``scheme="dop853"``).
+        DOP853 tolerances.
     extra : ndarray, shape (E, 6), optional
-        Further relative states integrated directly in the same solver call
-        (the samples that check the map).
-    scheme : {"dop853", "rk4"}
-        "dop853": adaptive scipy DOP853 to every node; "rk4": fixed-step
-        classical Runge-Kutta, one step per grid interval, halved (up to 16
-        steps per interval) while the embedded error estimate of the relative
-        positions exceeds ``max_error_pc`` (see
-        :mod:`~perierr.models.orbit.fixed_step`).
-    max_error_pc : float, optional
-        Largest allowed estimated position error [pc] for "rk4".
+        Further relative states integrated directly in the same solver call.
 
     Returns
     -------
     MapTables
         With, if ``extra`` is given, the attribute ``extra`` = (states,
         derivs), each of shape (m, E, 6), as from
-        :func:`~perierr.models.orbit.integrate.integrate_relative`, and
-        ``integration_error_pc`` (the "rk4" estimate, 0 for "dop853").
+        :func:`~perierr.models.orbit.integrate.integrate_relative`.
     """
     refs = np.atleast_2d(np.asarray(refs, dtype=float))
     extra = np.zeros((0, 6)) if extra is None else np.asarray(extra, dtype=float)
     k, ne = refs.shape[0], extra.shape[0]
     y_init = _initial_state(sun_state, refs, extra)
-    if scheme == "rk4":
-        ys, dys, extra_states, err_pc = _solve_rk4(potential, y_init, nodes, k, ne, max_error_pc)
-    elif scheme == "dop853":
-        ys, dys, extra_states = _solve_dop853(potential, y_init, nodes, k, ne, rtol, atol)
-        err_pc = 0.0
-    else:
-        raise ValueError(f"scheme={scheme!r} is unknown; expected 'dop853' or 'rk4'")
+    ys, dys, extra_states = _solve_dop853(potential, y_init, nodes, k, ne, rtol, atol)
     tables = MapTables(nodes, refs, _feature_table(ys, dys))
-    tables.integration_error_pc = err_pc
     if ne:
         tables.extra = extra_states
     return tables
@@ -257,55 +237,6 @@ def _initial_state(sun_state, refs, extra) -> np.ndarray:
     y0[:, :6] = refs
     y0[:, 6:42] = np.eye(6).ravel()
     return np.concatenate([sun_state, y0.ravel(), extra.ravel()])
-
-
-def _rk4_rhs(potential, size, k, ne):
-    """Right-hand side ``f(y)`` of the whole system for RK4: one potential call for Sun, references and checks."""
-    nv = k * _NVAR
-    out = np.empty(size)
-
-    def fun_rk(y):
-        # one call of the potential for the Sun, the references and the checks
-        sun = y[:6]
-        yv = y[6 : 6 + nv].reshape(k, _NVAR)
-        ye = y[6 + nv :].reshape(ne, 6)
-        pts = np.concatenate([sun[None, :3], sun[:3] + yv[:, :3], sun[:3] + ye[:, :3]])
-        acc, hes, third = potential.derivatives(pts)
-        dsun, dy = _variational_rhs(sun, acc[0], acc[1 : 1 + k], hes[1 : 1 + k],
-                                    third[1 : 1 + k], yv)  # fmt: skip
-        out[:6] = dsun
-        out[6 : 6 + nv] = dy.ravel()
-        de = out[6 + nv :].reshape(ne, 6)
-        de[:, :3] = ye[:, 3:]
-        de[:, 3:] = acc[1 + k :] - acc[0]
-        return out.copy()
-
-    return fun_rk
-
-
-def _solve_rk4(potential, y_init, nodes, k, ne, max_error_pc):
-    """Fixed-step RK4 on the nodes, substeps doubled (up to 16) until the position error is below ``max_error_pc``.
-
-    Returns the variational states and derivatives (m, K, 258), the extra states and derivatives (or None)
-    and the estimated position error [pc].
-    """
-    nv, m = k * _NVAR, len(nodes)
-    fun_rk = _rk4_rhs(potential, y_init.size, k, ne)
-    pos = np.concatenate([6 + _NVAR * np.arange(k)[:, None] + np.arange(3),
-                          6 + nv + 6 * np.arange(ne)[:, None] + np.arange(3)]).ravel()  # fmt: skip
-    sub = 1
-    while True:
-        sol, dsol, err = rk4_on_nodes(fun_rk, y_init, nodes, substeps=sub)
-        err_pc = float(err[pos].max())
-        if max_error_pc is None or err_pc <= max_error_pc or sub >= 16:
-            break
-        sub *= 2
-    ys = sol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
-    dys = dsol[:, 6 : 6 + nv].reshape(m, k, _NVAR)
-    extra_states = None
-    if ne:
-        extra_states = (sol[:, 6 + nv :].reshape(m, ne, 6), dsol[:, 6 + nv :].reshape(m, ne, 6))
-    return ys, dys, extra_states, err_pc
 
 
 def _solve_dop853(potential, y_init, nodes, k, ne, rtol, atol):

@@ -107,9 +107,9 @@ def assert_matches_reference(ph, ref, *, rows=None, map_path=False):
 
 
 # ------------------------------------------------------------------------------- options, describe
-FLOAT_OPTIONS = ("horizon_myr", "max_horizon_myr", "grid_step_myr", "grid_travel_pc", "bin_width_pc",
+FLOAT_OPTIONS = ("horizon_myr", "max_horizon_myr", "grid_step_myr", "grid_travel_pc", "leaf_radius_pc",
                  "map_tolerance_au", "rtol", "atol")  # fmt: skip
-INT_OPTIONS = ("min_bin_samples", "n_check", "chunk_size")
+INT_OPTIONS = ("min_leaf_samples", "n_check", "chunk_size")
 
 
 @pytest.mark.parametrize("option", FLOAT_OPTIONS)
@@ -136,11 +136,14 @@ def test_integer_options_must_be_positive_integers(option, value):
 def test_smallest_valid_options_are_accepted():
     # the smallest values the docstring allows: any positive number, any positive integer (also numpy
     # integers), windows (t_min, t_max) with t_min <= 0 <= t_max that touch now on one side
-    tiny = dict(max_horizon_myr=1e-300, grid_step_myr=1e-300, grid_travel_pc=1e-300, bin_width_pc=1e-300,
+    tiny = dict(max_horizon_myr=1e-300, grid_step_myr=1e-300, grid_travel_pc=1e-300, leaf_radius_pc=1e-300,
                 map_tolerance_au=1e-300, rtol=1e-300, atol=1e-300)  # fmt: skip
-    model = OrbitModel(horizon_myr=1e-300, min_bin_samples=1, n_check=np.int64(1), chunk_size=1, **tiny)
+    model = OrbitModel(horizon_myr=1e-300, min_leaf_samples=1, n_check=np.int64(1), chunk_size=1, **tiny)
     assert model.horizon_myr == (-1e-300, 1e-300)
-    assert (model.min_bin_samples, model.n_check, model.chunk_size) == (1, 1, 1)
+    assert (model.min_leaf_samples, model.n_check, model.chunk_size) == (1, 1, 1)
+    for bad in (1, 5, 3.0, True, "4"):
+        with pytest.raises(OrbitOptionError, match=r"map_order = .*: expected 2, 3 or 4"):
+            OrbitModel(map_order=bad)
     assert all(getattr(model, k) == 1e-300 for k in tiny)
     assert OrbitModel(horizon_myr=(0, 5)).describe()["horizon_myr"] == [0.0, 5.0]
     assert OrbitModel(horizon_myr=[-5, 0]).describe()["horizon_myr"] == [-5.0, 0.0]
@@ -163,9 +166,9 @@ def test_describe_records_the_documented_defaults():
         "name": "orbit",
         "potential": get_potential("MWPotential2014").describe(),
         "sun": get_solar_parameters("bovy2015").as_dict(),
-        "horizon_myr": "auto", "max_horizon_myr": 100.0, "grid_step_myr": 0.5, "grid_travel_pc": 10.0,
-        "method": "auto", "bin_width_pc": 10.0, "min_bin_samples": 50, "map_tolerance_au": 0.5,
-        "n_check": 4, "integrator": {"scheme": "DOP853", "rtol": 1e-10, "atol": 1e-10},
+        "horizon_myr": "auto", "max_horizon_myr": 100.0, "grid_step_myr": 1.0, "grid_travel_pc": 20.0,
+        "method": "auto", "leaf_radius_pc": 50.0, "min_leaf_samples": 200, "map_order": 4,
+        "map_tolerance_au": 0.5, "n_check": 8, "integrator": {"scheme": "DOP853", "rtol": 1e-10, "atol": 1e-10},
     }  # fmt: skip
     desc = OrbitModel().describe()
     assert desc == expected
@@ -238,7 +241,7 @@ def test_star_at_rest_relative_to_the_sun_has_its_perihelion_now():
     assert ph.distance_pc[0] == pytest.approx(10.0, rel=1e-12)
     assert ph.speed_kms[0] < 1e-9
     assert ph.info["straight_line"]["time_myr"][0] == 0.0
-    assert ph.info["window_myr"] == pytest.approx([-0.3, 0.3], abs=1e-12)  # docstring: +/- 0.3 Myr
+    assert ph.info["window_myr"] == [-100.0, 100.0]  # docstring: +/- max_horizon_myr
 
 
 def test_direct_info_reports_window_straight_line_and_model_difference():
@@ -327,10 +330,10 @@ EDGE_REF = observables_from_galactic([0.0, 99999.9, 0.0], [1000.0, 0.0, 0.0])[0]
 @pytest.mark.parametrize(
     ("reference", "method"),
     [
-        (NEAR_ROWS[0], "state_transition_map"),  # the Monte Carlo path for the rows within
+        (NEAR_ROWS[0], "direct"),  # the Monte Carlo path for the rows within: too few rows for a map
         (FAR_ROW[0], "direct"),  # a reference beyond the potential is not used
         (FAST_X_REF, "direct"),
-        (EDGE_REF, "state_transition_map+direct_fallback"),  # used; its bin holds no sample
+        (EDGE_REF, "direct"),
     ],
     ids=["near", "far", "fast", "edge"],
 )
@@ -357,10 +360,10 @@ def test_the_limits_themselves_are_within_the_potential():
     assert straight_line_reference(at_distance)[1][0] == pytest.approx(1e5, rel=1e-12)
     assert straight_line_reference(at_speed)[2][0] == pytest.approx(1e4, rel=1e-12)
     for row in (at_distance, at_speed):
-        ph = OrbitModel().evaluate(row)
+        ph = OrbitModel(horizon_myr=0.01).evaluate(row)  # a short window: the limit rule is what is checked
         assert "n_beyond_potential" not in ph.info and ph.info["method"] == "direct"
-        mixed = OrbitModel(horizon_myr=3.0).evaluate(np.vstack([FAR_ROW, NEAR_ROWS[:1]]), reference=row[0])
-        assert mixed.info["method"].startswith("state_transition_map")
+        mixed = OrbitModel(horizon_myr=3.0).evaluate(np.vstack([FAR_ROW, NEAR_ROWS[:1], row]))
+        assert mixed.info["n_beyond_potential"] == 1 and not mixed.flags[1:].any()
 
 
 # ---------------------------------------------------------------------------------------- jacobian
@@ -464,8 +467,8 @@ def test_jacobian_of_a_slow_star_in_a_negligible_potential():
 # tangential 95 km/s; 99,999.9 pc along Galactic y moving 1000 km/s along x; exactly 1e4 km/s radially
 # from 50 kpc (directions where the rotated states keep these norms exactly).
 WITHIN_LIMITS = {
-    "at-distance": (np.array([0.0, 30.0, 0.01, 0.2, 0.0, 0.0]), {}),
-    "edge": (EDGE_REF, {}),
+    "at-distance": (np.array([0.0, 30.0, 0.01, 0.2, 0.0, 0.0]), {"horizon_myr": 0.3}),
+    "edge": (EDGE_REF, {"horizon_myr": 1.0}),
     "at-speed": (np.array([0.0, -80.0, 0.02, 0.0, 0.0, -1e4]), {"grid_travel_pc": 1e4}),
 }
 
@@ -565,162 +568,26 @@ def offset_scores(draws, reference):
     return np.linalg.norm(x - x0, axis=1) + np.linalg.norm(v - v0, axis=1) * (np.abs(t_lin) + 1.0)
 
 
-# one 30 pc distance bin holds every check draw
-CHECK_OPTIONS = {"n_check": 1, "bin_width_pc": 30.0}
-
-
-def test_check_reports_the_map_error_of_the_draw_farthest_from_the_reference():
-    # OrbitModel docstring: n_check samples per bin, those farthest from their reference orbit, are
-    # checked against direct integration; method="map" keeps the map elsewhere. With n_check=1 the
-    # velocity outlier (10 km/s for 0.5 Myr: score 15 pc, against 10 pc for the position outlier and
-    # < 0.2 pc for the others) is the one checked: of its two identical copies one keeps the direct
-    # result, the other the map, and the reported map errors are exactly their difference. All draws
-    # agree with the scipy/galpy orbits.
-    draws = check_draws()
-    scores = offset_scores(draws, NOMINAL)
-    assert scores[8] * 1.4 < scores[6] == scores[7] and scores[:6].max() < 0.2
-    ph = OrbitModel(method="map", **CHECK_OPTIONS).evaluate(draws, reference=NOMINAL)
-    assert_matches_reference(ph, orbit_reference(draws, (-3.0, 3.0)), map_path=True)
-    info = ph.info
-    assert info["method"] == "state_transition_map" and info["n_checked"] == 1
-    assert info["n_reference_orbits"] == 1 and info["fallback_samples"] == 0
-    d_err = abs(ph.distance_pc[6] - ph.distance_pc[7]) * AU
-    t_err = abs(ph.time_myr[6] - ph.time_myr[7])
-    assert d_err > 1e-6 and t_err > 1e-12  # the map is not exact for the outlier: the check has something to find
-    # the au figure is the same float difference (rel 1e-9); times differ by rounding of t * Myr/unit
-    # (~1e-16 Myr against ~1e-12 Myr here: rel 1e-3)
-    assert info["map_error_au_max"] == pytest.approx(d_err, rel=1e-9, abs=0)
-    assert info["map_error_time_myr_max"] == pytest.approx(t_err, rel=1e-3, abs=0)
-    # the error model of the info: error_au <= c * score^3, with equality on the check
-    assert info["map_error_model"] == "error_au <= c * score_pc^3, c per reference orbit from the checks"
-    assert info["map_error_coefficient_max"] == pytest.approx(d_err / scores[6] ** 3, rel=1e-6, abs=0)
-    assert info["integration_scheme"] == "fixed-step RK4 on the grid (reference orbits and checks)"
-    # docstring: the RK4 error estimate is at most 0.3 map_tolerance_au (and RK4 is not exact)
-    assert 0 < info["integration_error_au"] <= 0.3 * 0.5
-    assert info["beyond_span_samples"] == 0 and info["sparse_bin_samples"] == 0
-
-
-@pytest.mark.parametrize("tolerance_au", [1e-3, 1.7e-5, 1e-9])
-def test_fallback_follows_the_reported_error_model(tolerance_au):
-    # method="auto" (docstring): a draw is integrated directly where its predicted map error, c * score^3
-    # plus the RK4 error estimate (info: map_error_model, integration_error_au), exceeds map_tolerance_au;
-    # the checked draw keeps its direct result. The count and reason of the fallbacks are reported, and
-    # every draw agrees with the scipy/galpy orbits (to the map path's 1 au: with a single check the
-    # position outlier's own map error, 0.03 au, is not what the model predicts for it).
-    draws = check_draws()
-    n = draws.shape[0]
-    ph = OrbitModel(map_tolerance_au=tolerance_au, **CHECK_OPTIONS).evaluate(draws, reference=NOMINAL)
-    ref = orbit_reference(draws, (-3.0, 3.0))
-    assert_matches_reference(ph, ref, map_path=True)
-    info = ph.info
-    scores = offset_scores(draws, NOMINAL)
-    predicted = info["map_error_coefficient_max"] * scores**3 + info["integration_error_au"]
-    unchecked = np.arange(n) != 6  # the first copy of the outlier is the one checked (ties: lowest index)
-    expected = int(np.sum(unchecked & (predicted > tolerance_au)))
-    assert info["fallback_samples"] == expected
-    # 1e-3 au: nothing to refit; 1.7e-5 au: only the unchecked copy of the outlier (predicted 2.1e-5 au,
-    # against 1.4e-5 au for the position outlier); 1e-9 au: everything but the check
-    assert expected == {1e-3: 0, 1.7e-5: 1, 1e-9: n - 1}[tolerance_au]
-    if tolerance_au == 1e-3:  # docstring: the RK4 estimate stays within 0.3 map_tolerance_au
-        assert 0 < info["integration_error_au"] <= 0.3 * tolerance_au
-    if expected:
-        assert info["method"] == "state_transition_map+direct_fallback"
-        assert info["fallback_reason"] == (
-            f"{expected} of {n} samples integrated directly: predicted map error above {tolerance_au} au, "
-            "perihelion beyond the map's grid span, or Newton not converged"
-        )
-    else:
-        assert info["method"] == "state_transition_map" and "fallback_reason" not in info
-    if tolerance_au == 1e-9:  # both copies of the outlier integrated
-        assert abs(ph.distance_pc[6] - ph.distance_pc[7]) * AU < 1e-7  # RK4 check vs DOP853: ~1e-8 au
-
-
-def test_draws_in_sparse_bins_are_integrated_directly():
-    # bin_width_pc / min_bin_samples docstring: bins with fewer samples are integrated directly. Here no
-    # draw lies in the reference's bin (reference 80 pc away, draws within 30 pc), so every draw is.
-    draws = invented_stars(5, seed=3, dmax=30.0, tmax=3.0)
-    reference = _galactic([80.0, 0.0, 0.0], [-20.0, 5.0, 0.0])[0]
-    ph = OrbitModel(horizon_myr=3.0).evaluate(draws, reference=reference)
-    assert_matches_reference(ph, orbit_reference(draws, (-3.0, 3.0)))
-    assert not ph.flags.any()
-    info = ph.info
-    assert info["method"] == "state_transition_map+direct_fallback"
-    assert (info["n_reference_orbits"], info["n_checked"], info["fallback_samples"]) == (0, 0, 0)
-    assert (info["sparse_bin_samples"], info["beyond_span_samples"]) == (5, 0)
-    assert info["fallback_reason"] == (
-        "all 5 samples integrated directly: no distance bin held enough samples for a reference orbit"
-    )
-
-
-@pytest.mark.parametrize(("n_bins", "n_checked"), [(2, 4 + 3), (3, 4 + 3 + 3)])
-def test_each_distance_bin_gets_a_reference_orbit_and_checks(n_bins, n_checked):
-    # bin_width_pc docstring: each 10 pc bin with at least min_bin_samples samples (and the bin of the
-    # reference) gets its own reference orbit; n_check samples per bin are checked (all of a smaller
-    # bin). Draws: 5 near the nominal (20 pc), 3 near 40 pc, 3 near 60 pc (when n_bins == 3) and 2 near
-    # 80 pc (a sparse bin with min_bin_samples=3, integrated directly).
-    rng = np.random.default_rng(8)
-    groups = [(1.0, 5), (2.0, 3), (4.0, 2)] if n_bins == 2 else [(1.0, 5), (2.0, 3), (3.0, 3), (4.0, 2)]
-    draws = np.vstack([
-        _galactic(P0 * f + rng.normal(0.0, 0.3, (k, 3)), V0 + rng.normal(0.0, 0.2, (k, 3))) for f, k in groups
-    ])  # fmt: skip
-    ph = OrbitModel(horizon_myr=3.0, min_bin_samples=3).evaluate(draws, reference=NOMINAL)
-    assert_matches_reference(ph, orbit_reference(draws, (-3.0, 3.0)), map_path=True)
-    info = ph.info
-    assert info["n_reference_orbits"] == n_bins
-    assert info["n_checked"] == n_checked
-    assert info["sparse_bin_samples"] == 2
-    assert info["method"] == "state_transition_map+direct_fallback"
-
-
-def _small_draws(center_p, center_v, n, seed):
-    rng = np.random.default_rng(seed)
-    return _galactic(center_p + rng.normal(0.0, 0.05, (n, 3)), center_v + rng.normal(0.0, 0.05, (n, 3)))
-
-
-@pytest.mark.parametrize("side", ["past", "future"])
-def test_perihelia_beyond_a_cut_map_span_are_integrated_directly(monkeypatch, side):
-    # The map is tabulated only over the grid span the perihelia need (module docstring: _map_span may
-    # be narrowed by tests). Cut it at half the perihelion time, on the side of the perihelia: every
-    # draw's perihelion is then beyond the span, so every draw must be integrated directly (agreeing
-    # with the scipy/galpy orbits to the direct tolerance), and the check finds no map error.
-    sign = -1.0 if side == "past" else 1.0
-    draws = _small_draws(P0, sign * V0, 8, seed=13)
-    real_span = model_mod._map_span
-    spans = []
-
-    def cut_span(t_lin, nodes):
-        sub, cut_lo, cut_hi = real_span(t_lin, nodes)
-        half = 0.5 * (np.max(t_lin) if side == "past" else np.min(t_lin))
-        sub = sub[sub >= half] if side == "past" else sub[sub <= half]
-        spans.append(sub)
-        return (sub, True, cut_hi) if side == "past" else (sub, cut_lo, True)
-
-    monkeypatch.setattr(model_mod, "_map_span", cut_span)
-    ph = OrbitModel(horizon_myr=3.0, grid_step_myr=0.1).evaluate(draws, reference=NOMINAL * [1, 1, 1, sign, sign, sign])
-    assert_matches_reference(ph, orbit_reference(draws, (-3.0, 3.0)))
-    assert len(spans[0]) >= 3  # more than the two nodes next to now
-    info = ph.info
-    assert info["beyond_span_samples"] == 8 and info["fallback_samples"] == 8
-    assert info["map_error_au_max"] == 0.0 and info["map_error_time_myr_max"] == 0.0
-    span_myr = [spans[0][0] * REF_MYR_PER_TIME_UNIT, spans[0][-1] * REF_MYR_PER_TIME_UNIT]
-    assert info["map_span_myr"] == pytest.approx(span_myr, rel=1e-9, abs=1e-12)
-    assert not ph.flags.any() and info["n_outside_window"] == 0
-
-
 @pytest.mark.parametrize("side", ["past", "future"])
 def test_perihelia_beyond_the_window_are_flagged_not_refitted(side):
-    # the map's span ends at the window's edge (not cut) on the side of the perihelia, which lie beyond
-    # the window (~4.8 Myr, window +/- 3 Myr): the draws are flagged with the straight-line
-    # extrapolation from the edge (OrbitModel docstring; checked as in test_orbit_search), and they
-    # are not "beyond the map's span", so method="map" integrates none of them directly
+    # the perihelia lie beyond the window (~4.8 Myr, window +/- 3 Myr): through the leaf maps, the draws are
+    # flagged with the straight-line extrapolation from the edge (OrbitModel docstring; checked as in
+    # test_orbit_search on the first six draws)
     sign = -1.0 if side == "past" else 1.0
     rng = np.random.default_rng(17)
     nominal = LATE_ROW[0] * [1, 1, 1, sign, sign, sign]
-    draws = nominal + rng.normal(size=(6, 6)) * [0.0, 0.0, 0.5, 0.05, 0.05, 0.1]
-    ph = OrbitModel(horizon_myr=3.0, method="map").evaluate(draws, reference=nominal)
-    ref = orbit_reference(draws, (-3.0, 3.0))
+    draws = nominal + rng.normal(size=(300, 6)) * [0.0, 0.0, 0.5, 0.05, 0.05, 0.1]
+    ph = OrbitModel(horizon_myr=3.0, method="map").evaluate(draws)
+    ref = orbit_reference(draws[:6], (-3.0, 3.0))
     assert np.all(ref["edge"] == sign)
-    assert_global_minimum_or_flagged(ph, ref, (-3.0, 3.0), map_path=True)
-    assert ph.flags.all() and ph.info["n_outside_window"] == 6
-    assert ph.info["beyond_span_samples"] == 0 and ph.info["fallback_samples"] == 0
-    assert ph.info["method"] == "state_transition_map"
+    assert_global_minimum_or_flagged(_rows(ph, 6), ref, (-3.0, 3.0), map_path=True)
+    assert ph.flags.all() and ph.info["n_outside_window"] == draws.shape[0]
+    assert ph.info["fallback_samples"] == 0 and ph.info["method"] == "state_transition_map"
+
+
+def _rows(ph, n):
+    """The first ``n`` rows of a Perihelion (for comparison with a reference of those rows)."""
+    from perierr.models.base import Perihelion
+
+    return Perihelion(ph.time_myr[:n], ph.distance_pc[:n], ph.speed_kms[:n], flags=ph.flags[:n],
+                      diagnostics=ph.diagnostics)

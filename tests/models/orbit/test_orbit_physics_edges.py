@@ -14,8 +14,7 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import brentq
 from scipy.special import gammainc
 
-from perierr.models.orbit.fixed_step import rk4_on_nodes
-from perierr.models.orbit.grid import distance_bins, map_span, window_and_nodes
+from perierr.models.orbit.grid import window_and_nodes
 from perierr.models.orbit.integrate import (
     _solve_both_ways,
     grid_minimum_start,
@@ -232,29 +231,6 @@ def test_frame_puts_the_sun_at_its_radius_and_height():
 C = MYR_PER_PC_PER_KMS  # Myr per pc/(km/s), from astropy units (0.9778)
 
 
-def _auto(t_myr, speed, cap=100.0, step=0.5, travel=10.0):
-    return window_and_nodes(np.asarray(t_myr) / C, speed, horizon_myr=None, max_horizon_myr=cap,
-                            grid_step_myr=step, grid_travel_pc=travel)  # fmt: skip
-
-
-def test_automatic_window_follows_the_documented_rule():
-    # docstring: range of the times widened on each side by 25 % of the time plus half the range plus 0.3 Myr,
-    # containing now, capped at max_horizon_myr
-    (lo, hi), _ = _auto([-10.0, -6.0], 1.0)
-    assert lo == pytest.approx(-10.0 - 2.3 - 2.5, abs=1e-12) and hi == 0.0
-    (lo, hi), _ = _auto([8.0, 12.0], 1.0)
-    assert lo == 0.0 and hi == pytest.approx(12.0 + 2.3 + 3.0, abs=1e-12)
-    (lo, hi), _ = _auto([4.0, 12.0], 1.0)
-    assert lo == pytest.approx(4.0 - 4.3 - 1.0, abs=1e-12)
-    (lo, hi), _ = _auto([-3.0, 5.0], 1.0)
-    assert lo == pytest.approx(-3.0 - 4.3 - 0.75, abs=1e-12)
-    assert hi == pytest.approx(5.0 + 4.3 + 1.25, abs=1e-12)
-    (lo, hi), _ = _auto([-80.0, 90.0], 1.0, cap=100.0)
-    assert (lo, hi) == (-100.0, 100.0)
-    (lo, hi), _ = _auto([-0.1, 0.1], 1.0)
-    assert lo == pytest.approx(-0.1 - 0.4 - 0.025, abs=1e-12)
-
-
 def _check_nodes(nodes, lo, hi, step):
     # docstring: increasing, containing 0 once, from lo to hi [Myr], equal spacing on each side of at most step
     t = nodes * C
@@ -278,55 +254,9 @@ def _check_nodes(nodes, lo, hi, step):
     ],
 )
 def test_grid_nodes_follow_the_step_rule(horizon, speed, step, travel, expected_step):
-    (lo, hi), nodes = window_and_nodes(np.zeros(2), speed, horizon_myr=horizon, max_horizon_myr=100.0,
-                                       grid_step_myr=step, grid_travel_pc=travel)  # fmt: skip
+    (lo, hi), nodes = window_and_nodes(horizon, speed, grid_step_myr=step, grid_travel_pc=travel)
     assert (lo, hi) == horizon
     _check_nodes(nodes, lo, hi, expected_step)
-    (lo, hi), nodes = _auto([-10.0, -6.0], 30.0)
-    _check_nodes(nodes, lo, hi, 10.0 / 30.0 * C)
-
-
-def test_map_span_widening_and_cut_flags():
-    # docstring: widen by a quarter of the range plus a tenth of the largest |time|, out to the next node, and
-    # always keep the nodes next to now; the flags say whether the span was cut below / above
-    nodes = np.arange(-20.0, 21.0)
-    span, below, above = map_span(np.array([-5.3, 2.2]), nodes)  # pad 1.875 + 0.53 -> [-7.705, 4.605]
-    assert span.tolist() == list(np.arange(-8.0, 6.0)) and below and above
-    span, below, above = map_span(np.array([-10.0, 10.0]), nodes)  # pad 5 + 1 = 6 lands on the nodes -16, 16
-    assert span.tolist() == list(np.arange(-16.0, 17.0)) and below and above
-    span, below, above = map_span(np.array([-15.0, 15.0]), nodes)  # beyond both ends: nothing cut
-    assert span.tolist() == nodes.tolist() and not below and not above
-    span, below, above = map_span(np.array([-13.0, -12.0]), nodes)  # -> [-14.55, 0], plus node 1 after now
-    assert span.tolist() == list(np.arange(-15.0, 2.0)) and below and above
-    # the span starting at the second node is still cut below
-    span, below, above = map_span(np.array([-12.0, 10.0]), nodes)  # pad 5.5 + 1.2 -> -18.7
-    assert span[0] == -19.0 and below
-    # all times ahead: the span still holds the node before now
-    span, below, above = map_span(np.array([3.0, 4.0]), np.arange(-1.0, 30.0))
-    assert span.tolist() == list(np.arange(-1.0, 6.0)) and not below and above
-
-
-def test_distance_bins_group_by_distance_and_average_states():
-    # docstring: label = rint((|s| - |s_ref|) / width); bins with fewer than min_bin_samples rows are sparse
-    # (index 0); the reference's own bin gets the nominal state; others the mean state of their rows
-    rng = np.random.default_rng(5)
-    ref = np.array([600.0, 800.0, 0.0, 400.0, -40.0, 50.0])  # |s| = 1000 pc; velocities do not count
-
-    def at(dist, n):
-        d = rng.normal(size=(n, 3))
-        d *= dist / np.linalg.norm(d, axis=1)[:, None]
-        return np.hstack([d, rng.normal(0.0, 300.0, size=(n, 3))])
-
-    rel = np.vstack([at(1004.0, 3), at(1098.0, 1), at(1203.0, 4), at(1302.0, 2), at(1401.0, 1)])
-    bidx, refs, sparse = distance_bins(rel, ref, bin_width_pc=100.0, min_bin_samples=2)
-    assert sparse.tolist() == [False] * 3 + [True] + [False] * 6 + [True]
-    assert bidx.tolist() == [0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 0]
-    assert np.array_equal(refs[0], ref)
-    assert np.allclose(refs[1], rel[4:8].mean(axis=0), rtol=1e-14)
-    assert np.allclose(refs[2], rel[8:10].mean(axis=0), rtol=1e-14)
-    # a single-sample bin of its own, and the reference bin without members
-    bidx, refs, sparse = distance_bins(rel[3:4], ref, bin_width_pc=100.0, min_bin_samples=1)
-    assert bidx.tolist() == [0] and not sparse.any() and np.array_equal(refs[0], rel[3])
 
 
 # ---------------------------------------------------------------- a harmonic potential, all closed forms
@@ -391,7 +321,6 @@ def test_variational_tables_of_harmonic_motion_match_the_closed_form():
     extra = np.array([[7.0, 1.0, -2.0, 0.5, -0.4, 0.2], [-3.0, 6.0, 1.0, 0.0, 1.0, -1.0]])
     tab = variational_tables(_Harmonic(OMEGA), SUN0, refs, nodes, rtol=1e-12, atol=1e-12, extra=extra)
     assert tab.refs.dtype == np.float64 and np.array_equal(tab.refs, np.array(refs, dtype=float))
-    assert tab.integration_error_pc == 0.0
     flows = np.stack([_harmonic_flow(t) for t in nodes])  # (m, 6, 6)
     refs_f = np.asarray(refs, dtype=float)
     for kk in range(2):
@@ -434,53 +363,6 @@ def _rk4_expected(y0, nodes, sub):
                 y = rmat @ y
             out[i], t = y, nodes[i]
     return out, err
-
-
-@pytest.mark.parametrize(
-    ("big", "axis"), [("refs", 0), ("refs", 2), ("extra", 0), ("extra", 2), ("sun", 0)],
-    ids=["rx", "rz", "ex", "ez", "sun"],
-)  # fmt: skip
-def test_rk4_tables_and_their_error_estimate_match_the_closed_form(big, axis):
-    # the fixed-step scheme is classical RK4 with one step per interval; its estimate is the largest summed
-    # embedded error of the relative positions (refs and extra states); one group and one axis dominate (or
-    # the Sun's own orbit, far out, whose error does not count)
-    nodes = np.array([-6.0, -2.5, 0.0, 3.0, 7.0])
-    scale = np.ones((2, 2))
-    scale[:, 1] = 2.0
-    if big != "sun":
-        scale[0 if big == "refs" else 1] *= 1e3
-    sun0 = SUN0 * (1e4 if big == "sun" else 1.0)
-    base = np.array([0.3, -0.2, 0.25, 0.01, 0.02, -0.01])
-    states = np.tile(base, (2, 2, 1))
-    states[..., axis] = 1.0
-    states *= scale[..., None]
-    refs, extra = states[0], states[1]
-    tab = variational_tables(_Harmonic(OMEGA), sun0, refs, nodes, rtol=0, atol=0, extra=extra, scheme="rk4")
-    exp = [_rk4_expected(y, nodes, 1) for y in np.vstack([refs, extra])]
-    assert tab.integration_error_pc == pytest.approx(max(e[1][:3].max() for e in exp), rel=1e-9)
-    for kk in range(2):
-        assert np.allclose(tab.table[kk, :, 0, :6], exp[kk][0], rtol=1e-10, atol=1e-10)
-    assert np.allclose(tab.extra[0], np.stack([exp[2][0], exp[3][0]], axis=1), rtol=1e-10, atol=1e-10)
-    assert np.allclose(tab.extra[1], np.stack([exp[2][0], exp[3][0]], axis=1) @ _A.T, rtol=1e-10, atol=1e-10)
-
-
-def test_rk4_step_halving_stops_at_the_bound_or_at_sixteen_steps():
-    # documented rule: halve the steps while the estimate exceeds max_error_pc, up to 16 steps per interval
-    nodes = np.array([-5.0, 0.0, 6.0])
-    refs = np.array([[100.0, 20.0, -30.0, 1.0, 2.0, 0.5]])
-
-    def run(bound):
-        return variational_tables(_Harmonic(OMEGA), SUN0, refs, nodes, rtol=0, atol=0, scheme="rk4",
-                                  max_error_pc=bound).integration_error_pc  # fmt: skip
-
-    est = {sub: _rk4_expected(refs[0], nodes, sub)[1][:3].max() for sub in (1, 2, 16)}
-    e1 = run(None)
-    assert e1 == pytest.approx(est[1], rel=1e-10)
-    assert run(e1) == e1  # equal to the bound: accepted
-    assert run(0.5 * (est[1] + est[2])) == pytest.approx(est[2], rel=1e-10)
-    assert run(1e-300) == pytest.approx(est[16], rel=1e-10)
-    with pytest.raises(ValueError, match="scheme='rk5' is unknown"):
-        variational_tables(_Harmonic(OMEGA), SUN0, refs, nodes, rtol=0, atol=0, scheme="rk5")
 
 
 def test_derivatives_keep_batch_shapes():
@@ -528,39 +410,6 @@ def test_integrate_relative_follows_harmonic_motion_backwards_only():
 
 
 # ---------------------------------------------------------------- fixed-step RK4 closed form
-
-
-def test_rk4_on_nodes_default_is_one_step_per_interval():
-    # y' = lam y: each RK4 step multiplies by R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24 and its embedded estimate is
-    # |y| |z^4/72 - z^5/144| (z = lam h); see _rk4_matrix for the source
-    lam = np.array([-0.8, 0.5])
-
-    def fun(y):
-        return lam * y
-
-    def r_and_e(z):
-        return 1 + z + z**2 / 2 + z**3 / 6 + z**4 / 24, np.abs(z**4 / 72 - z**5 / 144)
-
-    nodes = np.array([-1.5, -0.5, 0.0, 0.6, 1.0, 2.0])
-    y0 = np.array([1.0, -2.0])
-    states, derivs, err = rk4_on_nodes(fun, y0, nodes)
-    expected, est = np.empty_like(states), np.zeros(2)
-    expected[2] = y0
-    for idx in ((3, 4, 5), (1, 0)):
-        y, t = y0, 0.0
-        for i in idx:
-            r, e = r_and_e(lam * (nodes[i] - t))
-            est += e * np.abs(y)
-            y, t = r * y, nodes[i]
-            expected[i] = y
-    assert np.array_equal(states[2], y0)
-    assert np.allclose(states, expected, rtol=1e-14, atol=0)
-    assert np.allclose(derivs, lam * expected, rtol=1e-14, atol=0)
-    assert np.allclose(err, est, rtol=1e-12, atol=0)
-    # now as the first node: one pass forwards only
-    states, _, err = rk4_on_nodes(fun, y0, np.array([0.0, 0.5]))
-    r, e = r_and_e(lam * 0.5)
-    assert np.allclose(states[1], r * y0, rtol=1e-14) and np.allclose(err, e * np.abs(y0), rtol=1e-12)
 
 
 # ---------------------------------------------------------------- Hermite cubics and the perihelion search
@@ -762,26 +611,33 @@ def _ellipse(t, rows=None):
 
 
 def _ellipse_interval(nodes, k):
-    """f(t) = x.v and f'(t) = v.v + x.dv/dt of the Hermite cubics of position and velocity on interval k."""
+    """f(t) = x.v and f'(t) = v.v + x.a of the quintic Hermite interpolant of the position on interval k.
+
+    The quintic through position, velocity and acceleration at both ends, written out from its defining
+    conditions here (six linear equations solved with numpy), independently of the package's coefficients.
+    """
     h = nodes[k + 1] - nodes[k]
     p0, v0, a0 = _ellipse(nodes[k])
     p1, v1, a1 = _ellipse(nodes[k + 1])
-    cx = _hermite_power_basis(p0, v0, p1, v1, h)
-    cv = _hermite_power_basis(v0, a0, v1, a1, h)
+    # rows: p(0), p'(0), p''(0), p(1), p'(1), p''(1) of sum c_i u^i, derivatives in u
+    lhs = np.array([[1, 0, 0, 0, 0, 0], [0, 1, 0, 0, 0, 0], [0, 0, 2, 0, 0, 0],
+                    [1, 1, 1, 1, 1, 1], [0, 1, 2, 3, 4, 5], [0, 0, 2, 6, 12, 20]], dtype=float)
+    rhs = np.stack([p0, h * v0, h * h * a0, p1, h * v1, h * h * a1])
+    cx = np.linalg.solve(lhs, rhs)  # (6, 3)
 
     def fun(t):
         u = (t - nodes[k]) / h
         x = sum(c * u**i for i, c in enumerate(cx))
-        v = sum(c * u**i for i, c in enumerate(cv))
-        dv = sum(i * c * u ** (i - 1) for i, c in enumerate(cv) if i) / h
-        return x @ v, v @ v + x @ dv
+        v = sum(i * c * u ** (i - 1) for i, c in enumerate(cx) if i) / h
+        a = sum(i * (i - 1) * c * u ** (i - 2) for i, c in enumerate(cx) if i > 1) / (h * h)
+        return x @ v, v @ v + x @ a
 
     return fun
 
 
 def test_one_newton_iteration_is_a_newton_step_on_the_interval_holding_the_start():
     # the interval k with t_k <= t < t_(k+1) (the last one for the grid end; starts are grid nodes in practice,
-    # from grid_minimum_start); Newton's step t - f / f' with f and f' from the Hermite cubics of that interval
+    # from grid_minimum_start); Newton's step t - f / f' with f and f' from the quintic of that interval
     # (definitions in the docstrings; Press et al. 2007, Sect. 9.4). f' > 0 on (pi/4, 3 pi/4) for this ellipse.
     nodes = 0.75 + 0.5 * np.arange(4)
     starts = np.array([1.0, 1.25, 1.6, 1.75, 2.1, 2.25, 0.9])  # 1.25, 1.75, 2.25 are nodes
@@ -793,13 +649,13 @@ def test_one_newton_iteration_is_a_newton_step_on_the_interval_holding_the_start
 
 
 def test_newton_follows_the_perihelion_into_the_first_interval():
-    # the root of f = x.v on the first interval's cubics (scipy brentq), reached from the second interval
+    # the root of f = x.v on the first interval's quintic (scipy brentq), reached from the second interval
     nodes = 1.4 + 0.5 * np.arange(6)  # the true perihelion pi/2 lies in the first interval
     t_ref = brentq(lambda tt: _ellipse_interval(nodes, 0)(tt)[0], nodes[0], nodes[1], xtol=1e-15)
     assert abs(t_ref - math.pi / 2) < 1e-3
     t, state, outside, conv = newton_perihelion(nodes, _node_values_of(_ellipse, nodes), np.array([2.2, 1.5]))
-    # f' comes from the velocity cubic, not from differentiating x.v: they differ by the interpolation error
-    # (1e-4 relative on this coarse grid), so the last accepted step (<= 1e-7) leaves up to ~1e-11
+    # f and f' come from the same quintic: Newton converges quadratically to its root; the last accepted
+    # step (<= 1e-7) leaves far below 1e-10
     assert np.allclose(t, t_ref, rtol=0, atol=1e-10) and conv.all() and not outside.any()
 
 
@@ -820,7 +676,7 @@ def test_node_cubic_equals_the_per_sample_hermite_coefficients(n, n_refs):
     nodes = np.cumsum(rng.uniform(0.5, 1.5, 7)) - 3.0
     table = rng.normal(size=(n_refs, 7, 28, 12))
     tab = MapTables(nodes, np.zeros((n_refs, 6)), table)
-    assert tab.extra is None and tab.integration_error_pc == 0.0
+    assert tab.extra is None
     delta = rng.normal(size=(n, 6))
     feats = features(delta)
     ref_index = rng.integers(0, n_refs, n)

@@ -8,7 +8,8 @@ separation falls, rises and falls again. The reference is an independent integra
 ``reference_relative_orbits`` in test_orbit_model.py), scanned on a dense time grid and
 refined with scipy's bounded ``minimize_scalar`` on the dense-output interpolant.
 
-Contract checked (issue 11, point 5): the reported perihelion is the global minimum of
+Contract checked (issue 11, point 5), on the direct path and through the leaf maps: the reported
+perihelion is the global minimum of
 the separation in the search window, or the draw is flagged; a draw whose separation
 still falls at the window edge is flagged, with the straight-line extrapolation from the
 edge (OrbitModel docstring), never replaced by an interior local minimum.
@@ -22,6 +23,7 @@ import pytest
 from scipy.optimize import minimize_scalar
 
 from perierr.models import StraightLine
+from perierr.models.base import Perihelion
 from perierr.models.orbit import OrbitModel
 
 from .test_orbit_model import REF_MYR_PER_TIME_UNIT, reference_relative_orbits
@@ -74,12 +76,12 @@ TOL_EDGE_REL_MAP = 1e-5
 GRID_STEP_MYR = 0.02  # brute-force scan step (a few hundred points per local minimum)
 
 
-def draws_for(star, seed):
-    """The nominal star and N_DRAWS Gaussian draws around it (seeded)."""
+def draws_for(star, seed, n=N_DRAWS):
+    """The nominal star and ``n`` Gaussian draws around it (seeded)."""
     rng = np.random.default_rng(seed)
     nominal = np.asarray(star, dtype=float)
     sigma = REL_SIGMA * np.abs(nominal) + ABS_SIGMA
-    return np.vstack([nominal, nominal + rng.normal(size=(N_DRAWS, 6)) * sigma])
+    return np.vstack([nominal, nominal + rng.normal(size=(n, 6)) * sigma])
 
 
 def brute_force_search(obs, window):
@@ -223,61 +225,34 @@ def test_direct_search_finds_the_global_minimum(name):
         assert ph.info["n_outside_window"] == int((ref["edge"] != 0).sum())
 
 
-ISSUE_11_MAP = pytest.mark.xfail(
-    strict=True,
-    raises=AssertionError,
-    reason="issue 11: the state-transition map tabulates only a span cut around the straight-line times "
-    "(map_span, here [-0.5, 8] or [-1, 3.5] Myr), starts Newton there and checks its samples on the same "
-    "span, so it returns the local minimum there, unflagged, where the global minimum or the falling "
-    "window edge lies 29-44 Myr away",
-)
-
-
-@pytest.mark.parametrize(
-    "name",
-    [
-        pytest.param("far_future", marks=ISSUE_11_MAP),
-        pytest.param("edge_future", marks=ISSUE_11_MAP),
-        pytest.param("far_past", marks=ISSUE_11_MAP),
-        pytest.param("edge_past", marks=ISSUE_11_MAP),
-        "near_global",
-    ],
-)
+@pytest.mark.parametrize("name", list(CASES))
 def test_monte_carlo_path_finds_the_global_minimum(name):
-    # What propagate_samples runs: evaluate(draws, reference=nominal) with the
-    # default method "auto" (state-transition map, direct fallback) and a fixed window.
+    # What propagate_samples runs, with enough draws for the leaf maps: the case's draws first, then more
+    # draws of the same star (their answers are not checked; they make the cloud the maps are fitted on).
     obs, ref = case_data(name)
-    _, window, _ = CASES[name]
-    ph = OrbitModel(horizon_myr=window).evaluate(obs, reference=obs[0])
-    if name == "near_global":  # the passing case really goes through the map (no fallback)
-        assert ph.info["method"] == "state_transition_map"
-    assert_global_minimum_or_flagged(ph, ref, window, map_path=True)
-
-
-ISSUE_11_AUTO = pytest.mark.xfail(
-    strict=True,
-    raises=AssertionError,
-    reason="issue 11: the automatic window (straight-line times widened by 25 %, half their range and "
-    "0.3 Myr) ends at 8.6-9.2 Myr, before the closest approach near 39 Myr, and the local minimum at "
-    "6.8 Myr inside it is returned unflagged",
-)
+    star, window, _ = CASES[name]
+    ph = OrbitModel(horizon_myr=window).evaluate(np.vstack([obs, draws_for(star, seed=1, n=300)]))
+    assert ph.info["method"].startswith("state_transition_map") and ph.info["n_reference_orbits"] >= 1
+    assert_global_minimum_or_flagged(_first(ph, obs.shape[0]), ref, window, map_path=True)
 
 
 @pytest.mark.parametrize(
-    "name, reference",
-    [
-        pytest.param("far_future", False, marks=ISSUE_11_AUTO),
-        pytest.param("far_future", True, marks=ISSUE_11_AUTO),
-        ("near_global", False),
-        ("near_global", True),
-    ],
+    "name, many",
+    [("far_future", False), ("far_future", True), ("near_global", False), ("near_global", True)],
 )
-def test_automatic_window_finds_the_global_minimum(name, reference):
+def test_automatic_window_finds_the_global_minimum(name, many):
     # The default model (no horizon given) with its cap set to the case's window:
     # the perihelion it reports unflagged must be the global minimum within the cap.
-    # reference=True is the default Monte Carlo path (analyze / propagate_samples).
+    # many=True: enough draws for the leaf maps (the default Monte Carlo path).
     obs, ref = case_data(name)
-    _, window, _ = CASES[name]
+    star, window, _ = CASES[name]
     model = OrbitModel(max_horizon_myr=window[1])
-    ph = model.evaluate(obs, reference=obs[0]) if reference else model.evaluate(obs)
-    assert_global_minimum_or_flagged(ph, ref, window, map_path=reference, edge_extrapolation=False)
+    rows = np.vstack([obs, draws_for(star, seed=2, n=300)]) if many else obs
+    ph = _first(model.evaluate(rows), obs.shape[0])
+    assert_global_minimum_or_flagged(ph, ref, window, map_path=many, edge_extrapolation=False)
+
+
+def _first(ph, n):
+    """The first ``n`` rows of a Perihelion, with its diagnostics."""
+    return Perihelion(ph.time_myr[:n], ph.distance_pc[:n], ph.speed_kms[:n], flags=ph.flags[:n],
+                      diagnostics=ph.diagnostics)
