@@ -282,10 +282,10 @@ def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, lev
     linear = linearize(star, model) if star.mean[PARALLAX] > 0 else None
     samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
     reference = star.mean if star.mean[PARALLAX] > 0 else _posterior_reference(samples)
+    rng = nuisance_rng(seed)
     mc = propagate_samples(
-        samples, model, reference=reference, rng=nuisance_rng(seed), levels=levels, thresholds=thresholds,
-        progress=progress,
-    )  # fmt: skip
+        samples, model, reference=reference, rng=rng, levels=levels, thresholds=thresholds, progress=progress
+    )
     prior_block = PriorInfo.from_samples(prior, samples)
     found = []
     asked, got = samples.info.get("n_requested"), samples.info.get("n_delivered")

@@ -40,6 +40,7 @@ __all__ = [
     "MODEL_MEDIAN_FRACTION",
     "MODEL_PROBABILITY_CHANGE",
     "READING_CHECKS",
+    "TIDE_TIME_MYR",
     "Caution",
     "Reading",
     "emit",
