@@ -8,8 +8,11 @@ the steadier of the two.
 
 * ``python -c pass``: the interpreter alone;
 * ``import perierr.cli``: what every command pays before it starts;
-* ``perierr run``: the demo star (invented), 100,000 draws, straight line, the default report;
-* ``perierr run, 1,000 draws``: the same with almost no computing, so nearly all of it is start-up.
+* ``perierr run``: the demo star (invented), 100,000 draws, the default model (the Galactic orbit), the
+  default report;
+* ``perierr run, 1,000 draws``: the same with almost no computing, so nearly all of it is start-up;
+* ``perierr run, straight line``: ``--model straight_line``, 100,000 draws on straight lines (which still
+  integrate one orbit at the nominal inputs for the model-difference caution).
 
 With ``--importtime`` it also lists the modules that cost most to import (``python -X importtime``,
 cumulative milliseconds, the largest first). ``--compare PATH`` also measures another checkout of perierr
@@ -39,11 +42,13 @@ STAR = ROOT / "data_demo" / "kestrel-4.toml"
 def commands() -> dict:
     run = f"import sys; from perierr.cli import main; sys.exit(main(['run', {str(STAR)!r}, '--seed', '1']))"
     small = run.replace("'--seed', '1'", "'--seed', '1', '--samples', '1000'")
+    straight = run.replace("'--seed', '1'", "'--seed', '1', '--model', 'straight_line'")
     return {
         "python -c pass": "pass",
         "import perierr.cli": "import perierr.cli",
         "perierr run": run,
         "perierr run, 1,000 draws": small,
+        "perierr run, straight line": straight,
     }
 
 

@@ -34,7 +34,10 @@ _LAZY = {
 }
 
 #: Subpackages reachable as attributes of ``perierr`` without importing them first.
-_SUBPACKAGES = ("budget", "calibration", "models", "plan", "priors", "propagate", "report", "sampling", "star")
+_SUBPACKAGES = (
+    "budget", "calibration", "comparison", "models", "plan", "priors", "progress", "propagate", "report", "sampling",
+    "star",
+)  # fmt: skip
 
 __all__ = [
     "Analysis",

@@ -1,9 +1,12 @@
 """The main job in one call: a star in, perihelion with intervals and budget out.
 
 :func:`analyze` runs the forward model at the nominal inputs, the linearized
-propagation, the Monte Carlo propagation and the linearized error budget, and
-collects the warnings a reader needs. Its :class:`Analysis` result renders to
-the JSON contract with :meth:`Analysis.to_dict`.
+propagation, the Monte Carlo propagation and the linearized error budget, sets
+the other model beside the one that ran (:mod:`perierr.comparison`) and
+collects the warnings a reader needs. The default model is the Galactic orbit;
+the straight line is one option away (``model="straight_line"``). Its
+:class:`Analysis` result renders to the JSON contract with
+:meth:`Analysis.to_dict`.
 """
 
 from __future__ import annotations
@@ -19,17 +22,18 @@ from ._version import __version__
 from .budget import LinearBudget, star_budget
 from .calibration import CalibrationInfo
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
+from .comparison import is_straight_line, orbit_nominal_comparison, straight_line_comparison
 from .errors import InputError, PerierrWarning
-from .models import ForwardModel, StraightLine, make_model
+from .models import DEFAULT_MODEL, ForwardModel, make_model
 from .priors.info import PriorInfo
 from .propagate.linear import LinearResult, linearize
-from .propagate.montecarlo import MonteCarloResult, evaluate_aligned, monte_carlo, nuisance_rng, propagate_samples
+from .propagate.montecarlo import MonteCarloResult, monte_carlo, nuisance_rng, propagate_samples
 from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
 from .star.checks import require_motion
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
-from .units import AU_PER_PC, OUTPUTS, PARALLAX
+from .units import AU_PER_PC, PARALLAX
 
 if TYPE_CHECKING:  # names for the annotations only; importing them here would slow every start
     from astropy.units import Quantity
@@ -57,12 +61,17 @@ class Analysis:
         reading notes are in ``star.cautions``. ``warnings`` lists their messages.
     comparison : dict
         For models other than the straight line: the straight-line answer on
-        the same samples and the difference.
+        the same samples and the difference, threshold probabilities
+        included (:func:`perierr.comparison.straight_line_comparison`).
     prior : PriorInfo or None
         The distance prior (name, parameters, method, sampling diagnostics).
     calibration : CalibrationInfo or None
         Parallax zero-point and error inflation factors that were applied
         (``star`` is the star after them), with the catalogue parallax.
+    orbit_comparison : dict
+        For the straight line: the orbit model at the nominal inputs beside it
+        (:func:`perierr.comparison.orbit_nominal_comparison`), so a
+        straight-line run still says what the Galactic tide would change.
     """
 
     star: ObservedStar
@@ -74,6 +83,7 @@ class Analysis:
     comparison: dict = field(default_factory=dict)
     prior: PriorInfo | None = None
     calibration: CalibrationInfo | None = None
+    orbit_comparison: dict = field(default_factory=dict)
 
     @property
     def warnings(self) -> list:
@@ -107,6 +117,8 @@ class Analysis:
             out["calibration"] = self.calibration.to_dict()
         if self.comparison:
             out["straight_line_comparison"] = self.comparison
+        if self.orbit_comparison:
+            out["orbit_nominal_comparison"] = self.orbit_comparison
         out["notes"] = list(self.star.notes)
         return out
 
@@ -114,7 +126,7 @@ class Analysis:
 def analyze(
     star: ObservedStar,
     *,
-    model: ForwardModel | str = "straight_line",
+    model: ForwardModel | str = DEFAULT_MODEL,
     n_samples: int = 100_000,
     seed: int | np.random.Generator | None = None,
     levels: Sequence[float] = DEFAULT_LEVELS,
@@ -126,6 +138,7 @@ def analyze(
     parallax_offset: float | str | Quantity | tuple[float, float] | None = None,
     error_inflation: float | str | Mapping[str, float] | None = None,
     focusing: bool = False,
+    progress: Callable[[int, int], None] | None = None,
 ) -> Analysis:
     """Perihelion of a star with linear and Monte Carlo intervals and a budget.
 
@@ -133,7 +146,11 @@ def analyze(
     ----------
     star : ObservedStar
     model : ForwardModel or str
-        A model or a name accepted by :func:`perierr.models.make_model`.
+        A model or a name accepted by :func:`perierr.models.make_model`. The
+        default is the Galactic orbit model; ``"straight_line"`` is the linear
+        motion approximation (fast, for screening: the result then carries
+        the orbit model at the nominal inputs beside it, and a caution when
+        they differ).
     n_samples : int
         Monte Carlo draws (first round in the adaptive mode).
     seed : int, numpy.random.Generator or None
@@ -166,6 +183,10 @@ def analyze(
         draws come from the analysis seed (``nuisance_rng(seed)`` of
         :mod:`perierr.propagate.montecarlo`), so the same seed gives the same
         numbers.
+    progress : callable, optional
+        ``progress(done, total)``, called as the Monte Carlo draws go through
+        the model (e.g. :func:`perierr.progress.terminal_progress`); it only
+        reports.
 
     Returns
     -------
@@ -178,13 +199,19 @@ def analyze(
     >>> import perierr
     >>> from perierr.demo import demo_path
     >>> star = perierr.read_star_file(demo_path("kestrel-4.toml"))
-    >>> result = perierr.analyze(star, n_samples=20_000, seed=7)
+    >>> import warnings
+    >>> with warnings.catch_warnings(record=True):  # the straight line would mislead here: a caution
+    ...     result = perierr.analyze(star, n_samples=20_000, seed=7)
     >>> d = result.monte_carlo.summaries["distance_pc"]
     >>> print(f"d_ph = {result.linear.value[1]:.4f} +/- {result.linear.sigma[1]:.4f} pc; MC median {d.median:.4f} pc")
-    d_ph = 0.0919 +/- 0.0029 pc; MC median 0.0919 pc
+    d_ph = 0.1001 +/- 0.0031 pc; MC median 0.1002 pc
+    >>> print(f"straight lines: {result.comparison['distance_pc']['median']:.4f} pc")  # the same draws
+    straight lines: 0.0919 pc
+    >>> [c.code for c in result.cautions]
+    ['model-difference']
     >>> shares = result.budget.share("distance_pc")
     >>> max(shares, key=shares.get)
-    'pmdec'
+    'radial_velocity'
     >>> result.monte_carlo.samples.seed  # recorded: passing it back gives the same numbers
     7
     """
@@ -210,26 +237,44 @@ def analyze(
         require_motion(star.mean)
         if distance_prior is None:
             linear = linearize(star, model)
-            mc = monte_carlo(star, model, n=n_samples, seed=seed, levels=levels, thresholds=thresholds,
-                             target_error=target_error, max_samples=max_samples)
-            prior_block, with_prior, found = None, False, []
+            mc = monte_carlo(
+                star,
+                model,
+                n=n_samples,
+                seed=seed,
+                levels=levels,
+                thresholds=thresholds,
+                target_error=target_error,
+                max_samples=max_samples,
+                progress=progress,
+            )
+            prior_block, with_prior, found, reference = None, False, [], star.mean
         else:
-            linear, mc, prior_block, with_prior, found = _under_prior(
-                star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds
+            linear, mc, prior_block, with_prior, found, reference = _under_prior(
+                star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds, progress
             )
         budget = None if linear is None else star_budget(star, linear, calibration=calibration)
     found = found + from_warnings(caught)
-    found.extend(reading_cautions(star, linear, mc, with_prior))
-    comparison = {}
-    if not isinstance(model, StraightLine):
-        comparison = _compare_straight_line(star, linear, mc)
+    comparison, orbit_comparison, described = {}, {}, model.describe()
+    if not is_straight_line(model):
+        comparison = straight_line_comparison(mc, model, reference, linear=linear)
+    elif reference[PARALLAX] > 0:
+        orbit_comparison = orbit_nominal_comparison(reference, mc)
+    more = {"comparison": comparison, "orbit_comparison": orbit_comparison, "model": described}
+    found.extend(reading_cautions(star, linear, mc, with_prior, **more))
     found = unique(found)
     emit(found)
-    return Analysis(star, model.describe(), linear, mc, budget, found, comparison, prior_block, calibration_block)
+    return Analysis(
+        star, described, linear, mc, budget, found, comparison, prior_block, calibration_block, orbit_comparison
+    )
 
 
-def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds):
-    """Posterior draws under a distance prior, propagated; the linearization where the parallax allows it."""
+def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds, progress):
+    """Posterior draws under a distance prior, propagated; the linearization where the parallax allows it.
+
+    Returns the linearization, the Monte Carlo result, the prior block, whether a prior was used, the
+    cautions found and the reference point (the point the model linearized around).
+    """
     from .priors import posterior_samples, resolve_prior
 
     prior = resolve_prior(distance_prior)
@@ -237,20 +282,23 @@ def _under_prior(star, model, distance_prior, prior_method, n_samples, seed, lev
     linear = linearize(star, model) if star.mean[PARALLAX] > 0 else None
     samples = posterior_samples(star, prior, n=n_samples, seed=seed, method=prior_method)
     reference = star.mean if star.mean[PARALLAX] > 0 else _posterior_reference(samples)
+    rng = nuisance_rng(seed)
     mc = propagate_samples(
-        samples, model, reference=reference, rng=nuisance_rng(seed), levels=levels, thresholds=thresholds
+        samples, model, reference=reference, rng=rng, levels=levels, thresholds=thresholds, progress=progress
     )
     prior_block = PriorInfo.from_samples(prior, samples)
     found = []
     asked, got = samples.info.get("n_requested"), samples.info.get("n_delivered")
     if asked is not None and got is not None and got < asked:
-        found.append(Caution(
-            "mcmc-shortfall",
-            f"MCMC delivered {got:,} of the {asked:,} draws asked for (the chain is thinned to about one "
-            f"draw per autocorrelation time; effective size {samples.effective_size:,.0f})",
-            subject="prior",
-        ))
-    return linear, mc, prior_block, with_prior, found
+        found.append(
+            Caution(
+                "mcmc-shortfall",
+                f"MCMC delivered {got:,} of the {asked:,} draws asked for (the chain is thinned to about one "
+                f"draw per autocorrelation time; effective size {samples.effective_size:,.0f})",
+                subject="prior",
+            )
+        )
+    return linear, mc, prior_block, with_prior, found, reference
 
 
 def _posterior_reference(samples) -> np.ndarray:
@@ -268,20 +316,3 @@ def _with_focusing(model, star):
             "mass", None, "gravitational focusing needs the star's mass: give mass (and mass_error) in M_sun"
         )
     return Focused(model, mass_msun=star.mass, mass_error_msun=star.mass_error or 0.0)
-
-
-def _compare_straight_line(star, linear, mc) -> dict:
-    """Straight-line answer on the same samples, and the difference."""
-    straight = StraightLine()
-    ph, _ = evaluate_aligned(straight, mc.samples.values, reference=star.mean)
-    out = {}
-    for k, q in enumerate(OUTPUTS):
-        x, w = mc.valid_values(ph.output(q))
-        med = float(weighted_quantiles(x, [0.5], w)[0])  # the definition the summaries use
-        entry = {"median": med, "difference_of_medians": mc.summaries[q].median - med}
-        if linear is not None:
-            nominal = float(straight.evaluate(star.mean[None, :]).as_array()[0, k])
-            entry["nominal"] = nominal
-            entry["difference_of_nominal"] = float(linear.value[k] - nominal)
-        out[q] = entry
-    return out

@@ -30,19 +30,25 @@ import numpy as np
 
 from .errors import PerierrWarning
 from .models.straight import HEAD_ON_RELATIVE
-from .units import MAS_PC, OUTPUTS, PARALLAX
+from .units import AU_PER_PC, MAS_PC, OUTPUTS, PARALLAX
 
 __all__ = [
     "BIASED_PARALLAX_FRACTION",
+    "DIRECT_FRACTION",
     "HAZARD",
     "LINEAR_CHECKS",
+    "MODEL_MEDIAN_FRACTION",
+    "MODEL_PROBABILITY_CHANGE",
     "READING_CHECKS",
+    "TIDE_TIME_MYR",
     "Caution",
     "Reading",
     "emit",
     "is_head_on",
     "linear_cautions",
+    "map_tolerance",
     "messages",
+    "model_difference",
     "note",
     "reading_cautions",
     "unique",
@@ -51,6 +57,26 @@ __all__ = [
 #: Fractional parallax error above which 1/parallax is a biased distance
 #: (Bailer-Jones 2015, PASP 127, 994, Sect. 4).
 BIASED_PARALLAX_FRACTION = 0.2
+
+#: The model-difference caution fires when the straight line moves a median of t_ph, d_ph or v_ph by more than
+#: this fraction of the (q84 - q16)/2 of the answer (common practice, no source): a shift of a quarter of a
+#: Gaussian sigma turns a 5 % tail into 8 %, more than the rounding of any quoted interval.
+MODEL_MEDIAN_FRACTION = 0.25
+
+#: ... or a probability P(d_ph < D) by more than this (absolute; common practice, no source): the planner's
+#: decisiveness level (``--alpha``, 0.05), so a change this large can turn a settled question into an open one.
+MODEL_PROBABILITY_CHANGE = 0.05
+
+#: Without the orbit model's answer at hand, a straight-line run is told to use the orbit model beyond this
+#: |t_ph| [Myr]: within a Myr the Galactic tide moves a perihelion a few tens of pc away by thousands of au
+#: (the README's demo star: 1,700 au in 0.65 Myr).
+TIDE_TIME_MYR = 1.0
+
+#: Direct orbit integrations above this fraction of the draws are worth a caution (they cost time only).
+DIRECT_FRACTION = 0.1
+
+#: Symbols of the outputs in sentences.
+_SYMBOL = {"time_myr": "t_ph", "distance_pc": "d_ph", "speed_kms": "v_ph"}
 
 #: What perierr's predictions are not; every report ends with it, once.
 HAZARD = (
@@ -214,6 +240,9 @@ class Reading:
     linear: object  # LinearResult or None (nominal parallax <= 0)
     mc: object  # MonteCarloResult
     with_prior: bool
+    comparison: dict | None = None  # the straight line on the same draws (perierr.comparison), other models
+    orbit_comparison: dict | None = None  # the orbit model at the nominal inputs, straight-line runs
+    model: dict | None = None  # describe() of the model that ran
 
 
 def _biased_parallax(r: Reading) -> Caution | None:
@@ -295,14 +324,14 @@ def _large_mc_error(r: Reading) -> Caution | None:
 
 
 def _direct_integrations(r: Reading) -> Caution | None:
-    info = r.mc.perihelion.info
-    n_direct = int(info.get("fallback_samples", 0) or 0) + int(info.get("beyond_span_samples", 0) or 0)
+    diag = r.mc.perihelion.diagnostics
+    n_direct = int(diag.fallback_samples or 0) + int(diag.sparse_bin_samples or 0)
     size = r.mc.n_valid
-    if n_direct > 0.1 * max(size, 1):
+    if n_direct > DIRECT_FRACTION * max(size, 1):
         return Caution(
             "direct-integration",
-            f"{n_direct:,} draws ({n_direct / size:.0%}) needed direct orbit "
-            "integration: the state-transition map could not cover the spread of the draws (slow but exact)",
+            f"{n_direct:,} draws ({n_direct / size:.0%}) needed direct orbit integration: the state-transition "
+            "map could not cover the spread of the draws; this only cost time, the answers are exact",
             subject="model",
         )
     return None
@@ -322,24 +351,134 @@ def _nonpositive_parallax(r: Reading) -> Caution | None:
 
 def _model_flags(r: Reading) -> Caution | None:
     flags = r.mc.perihelion.flags
-    if flags is not None and np.any(flags):
-        return Caution(
-            "model-flags", f"{int(np.count_nonzero(flags))} samples were flagged by the model (see model info)",
-            subject="model",
+    if flags is None or not np.any(flags):
+        return None
+    n_flagged, diag = int(np.count_nonzero(flags)), r.mc.perihelion.diagnostics
+    why = []
+    if diag.n_outside_window:
+        why.append(
+            f"{diag.n_outside_window:,} with their perihelion beyond the edge of the search window, extrapolated "
+            "along a straight line from there (pass a longer horizon: --horizon, or horizon_myr)"
         )
-    return None
+    if diag.n_not_converged:
+        why.append(f"{diag.n_not_converged:,} whose perihelion search did not converge")
+    text = f"{n_flagged} samples were flagged by the model"
+    return Caution("model-flags", text + (": " + "; ".join(why) if why else " (see model info)"), subject="model")
 
 
-def _long_straight_line(r: Reading) -> Caution | None:
+def map_tolerance(model: dict | None) -> tuple:
+    """The orbit model's ``map_tolerance_au`` and ``method`` option from its description (None if it has none)."""
+    while model is not None and "map_tolerance_au" not in model:
+        model = model.get("base")  # a wrapper (focusing) describes the wrapped model under "base"
+    return (None, None) if model is None else (model["map_tolerance_au"], model.get("method"))
+
+
+def _map_error(r: Reading) -> Caution | None:
+    """A map error above the tolerance that ``method="map"`` kept (``"auto"`` integrates those draws directly)."""
+    worst = r.mc.perihelion.diagnostics.map_error_au_max
+    tolerance, method = map_tolerance(r.model)
+    if worst is None or tolerance is None or method != "map" or not worst > tolerance:
+        return None
+    return Caution(
+        "map-error",
+        f"the state-transition map's check against direct integration found errors up to {worst:.3g} au, above "
+        f'its tolerance of {tolerance:g} au, and method "map" keeps the mapped answers: d_ph may be off by that '
+        'much; use method "auto" (the default), which integrates such draws directly',
+        subject="model",
+    )
+
+
+def model_difference(r: Reading) -> Caution | None:
+    """The straight line and the orbit model disagree by more than the thresholds, at any |t_ph|.
+
+    With a model other than the straight line, the straight line on the same draws (``r.comparison``) is
+    judged: a median of t_ph, d_ph or v_ph off by more than :data:`MODEL_MEDIAN_FRACTION` of the model's
+    (q84 - q16)/2, or a P(d_ph < D) off by more than :data:`MODEL_PROBABILITY_CHANGE`. With the straight line,
+    the orbit model at the nominal inputs (``r.orbit_comparison``) is judged by the first rule against the
+    straight-line interval; without it, straight lines beyond :data:`TIDE_TIME_MYR` are told to use the orbit
+    model.
+    """
+    if r.comparison:
+        return _straight_line_differs(r)
+    if r.orbit_comparison:
+        return _orbit_differs(r)
     t = abs(r.mc.summaries["time_myr"].median)
-    if t > 10 and r.mc.perihelion.info.get("model") == "straight_line":
+    if r.mc.perihelion.diagnostics.model == "straight_line" and t > TIDE_TIME_MYR:
         return Caution(
-            "long-straight-line",
-            f"|t_ph| is about {t:.0f} Myr: over such times the Galactic tide bends both paths "
-            "and straight lines are unreliable; use the orbit model",
+            "model-difference",
+            f"|t_ph| is about {t:.2g} Myr and straight lines ignore the Galactic tide, which moves perihelia by "
+            "thousands of au within a Myr; use the orbit model (the default: drop --model straight_line)",
             subject="model",
         )
     return None
+
+
+def _beyond(difference: float, half: float, scale: float) -> bool:
+    """A difference beyond :data:`MODEL_MEDIAN_FRACTION` of the half-width (beyond rounding for a zero width)."""
+    if half > 0:
+        return abs(difference) > MODEL_MEDIAN_FRACTION * half
+    return abs(difference) > 1e-9 * abs(scale)
+
+
+def _value(q: str, x: float, *, signed: bool = False) -> str:
+    """An output value with its unit in a sentence (distances in pc and au; times always signed)."""
+    sign = "+" if signed or q == "time_myr" else ""
+    if q == "distance_pc":
+        au = f"{x * AU_PER_PC:{sign},.0f} au"
+        return f"{x:{sign}.4g} pc = {au}" if signed else f"{x:.4g} pc ({au})"
+    return f"{x:{sign}.4g} {'Myr' if q == 'time_myr' else 'km/s'}"
+
+
+def _scale(difference: float, half: float) -> str:
+    if half > 0:
+        return f"{abs(difference) / half:.2f} × the half-width (q84 − q16)/2"
+    return "while the interval has no width"
+
+
+def _straight_line_differs(r: Reading) -> Caution | None:
+    c, parts = r.comparison, []
+    for q in OUTPUTS:
+        e = c[q]
+        model_median = r.mc.summaries[q].median
+        off = e["median"] - model_median  # straight line minus the model
+        if _beyond(off, e["half_width"], model_median):
+            parts.append(
+                f"median {_SYMBOL[q]} {_value(q, e['median'])} instead of {_value(q, model_median)} "
+                f"({_value(q, off, signed=True)}, {_scale(off, e['half_width'])})"
+            )
+    for t in c.get("thresholds", ()):
+        if abs(t["difference"]) > MODEL_PROBABILITY_CHANGE:
+            parts.append(f"P(d_ph < {t['label']}) = {t['probability']:.1%} instead of {t['model_probability']:.1%}")
+    if not parts:
+        return None
+    name = r.mc.perihelion.diagnostics.model or "chosen"
+    return Caution(
+        "model-difference",
+        f"straight lines would mislead for this star: on the same draws they give {'; '.join(parts)}. The "
+        f"Galactic tide matters here: quote the {name} model's answer, not a straight-line one (screens included)",
+        subject="model",
+    )
+
+
+def _orbit_differs(r: Reading) -> Caution | None:
+    c, parts = r.orbit_comparison, []
+    for q in OUTPUTS:
+        e = c[q]
+        if _beyond(e["difference"], e["half_width"], e["straight_line"]):
+            parts.append(
+                f"{_SYMBOL[q]} {_value(q, e['orbit'])} instead of {_value(q, e['straight_line'])} "
+                f"({_value(q, e['difference'], signed=True)}, {_scale(e['difference'], e['half_width'])} of "
+                "these straight-line draws)"
+            )
+    if not parts:
+        return None
+    return Caution(
+        "model-difference",
+        f"the Galactic tide matters for this star: the orbit model at the nominal inputs gives {'; '.join(parts)}, "
+        "so these straight-line answers, threshold probabilities included, may mislead; rerun with the orbit "
+        "model (the default: drop --model straight_line)",
+        subject="model",
+    )
 
 
 def _nonfinite_distance(r: Reading) -> Caution | None:
@@ -361,14 +500,18 @@ READING_CHECKS: tuple = (
     _direct_integrations,
     _nonpositive_parallax,
     _model_flags,
-    _long_straight_line,
+    _map_error,
+    model_difference,
     _nonfinite_distance,
 )
 
 
-def reading_cautions(star, linear, mc, with_prior: bool) -> list:
-    """Every :data:`READING_CHECKS` caution that applies to a finished analysis."""
-    return _run(READING_CHECKS, Reading(star, linear, mc, with_prior))
+def reading_cautions(star, linear, mc, with_prior: bool, **more) -> list:
+    """Every :data:`READING_CHECKS` caution that applies to a finished analysis.
+
+    ``more``: the optional fields of :class:`Reading` (``comparison``, ``orbit_comparison``, ``model``).
+    """
+    return _run(READING_CHECKS, Reading(star, linear, mc, with_prior, **more))
 
 
 def _run(checks: Iterable[Callable], *args) -> list:

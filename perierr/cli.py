@@ -1,6 +1,8 @@
 """Command line: ``perierr demo``, ``perierr run STAR_FILE``, ``perierr screen TABLE``, ``perierr plan STAR_FILE``.
 
-The CLI only parses arguments, calls the API and prints or writes results.
+The CLI only parses arguments, calls the API and prints or writes results
+(stdout), and shows the progress of long runs on stderr when stderr is a
+terminal (``--quiet`` turns it off).
 """
 
 from __future__ import annotations
@@ -15,7 +17,7 @@ from ._version import __version__
 from .analysis import analyze
 from .demo import demo_path
 from .errors import InputError, PerierrError, PerierrWarning
-from .models import MODEL_NAMES, make_model
+from .models import DEFAULT_MODEL, MODEL_NAMES, make_model
 from .report import format_analysis, write_json
 from .star import read_star_file
 from .thresholds import DEFAULT_THRESHOLDS
@@ -59,12 +61,53 @@ def _count(text: str) -> int:
     return value
 
 
+def _horizon(text: str):
+    """``H`` (the window -H .. +H Myr) or ``T_MIN,T_MAX`` [Myr], for the orbit model's ``horizon_myr``."""
+    values = _floats(text)
+    if len(values) == 1:
+        return values[0]
+    if len(values) == 2:
+        return tuple(values)
+    raise argparse.ArgumentTypeError(f"expected H or T_MIN,T_MAX in Myr, got {text!r}")
+
+
 def _add_common_options(p: argparse.ArgumentParser, *, within_help: str, json_help: str) -> None:
-    """Options every analysing command shares: thresholds, seed, JSON output, model."""
+    """Options every analysing command shares: thresholds, seed, JSON output, model, horizon, quiet."""
     p.add_argument("--within", type=_strings, default=list(DEFAULT_THRESHOLDS), metavar="D,D", help=within_help)
     p.add_argument("--seed", type=int, default=None, metavar="S", help="random seed (default: a fresh one, printed)")
     p.add_argument("--json", type=Path, default=None, metavar="PATH", help=json_help)
-    p.add_argument("--model", default="straight_line", choices=MODEL_NAMES, help="forward model")
+    p.add_argument(
+        "--model",
+        default=DEFAULT_MODEL,
+        choices=MODEL_NAMES,
+        help=f"forward model (default {DEFAULT_MODEL}: orbits of the star and the Sun in a Milky Way potential; "
+        "straight_line: the linear motion approximation, fast but blind to the Galactic tide)",
+    )
+    p.add_argument(
+        "--horizon",
+        type=_horizon,
+        default=None,
+        metavar="H|T_MIN,T_MAX",
+        help="orbit model: search the perihelion within -H .. +H Myr, or T_MIN .. T_MAX (write --horizon=-5,30 "
+        "for a negative start; default: automatic, from the straight-line times, at most 100 Myr)",
+    )
+    p.add_argument("--quiet", action="store_true", help="no progress line on stderr (shown only on a terminal)")
+
+
+def _model(args):
+    """The forward model the options ask for (``--model``, ``--horizon``)."""
+    if args.horizon is None:
+        return make_model(args.model)
+    if args.model != "orbit":
+        raise InputError("--horizon", args.horizon, f"an option of the orbit model, not of --model {args.model}")
+    return make_model(args.model, horizon_myr=args.horizon)
+
+
+def _progress(args):
+    """The progress line on stderr, or None (``--quiet``, or stderr is not a terminal)."""
+    from .progress import terminal_progress
+
+    return terminal_progress(sys.stderr, quiet=args.quiet)
 
 
 def _add_analysis_options(p: argparse.ArgumentParser) -> None:
@@ -147,7 +190,7 @@ def _parser() -> argparse.ArgumentParser:
 
 def _analysis_kwargs(args) -> dict:
     return dict(
-        model=make_model(args.model),
+        model=_model(args),
         n_samples=args.samples,
         seed=args.seed,
         levels=args.levels,
@@ -159,6 +202,7 @@ def _analysis_kwargs(args) -> dict:
         parallax_offset=args.parallax_offset,
         error_inflation=args.inflate,
         focusing=args.focusing,
+        progress=_progress(args),
     )
 
 
@@ -270,7 +314,7 @@ def _plan(args, out) -> None:
     goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
     result = plan(
         star,
-        model=make_model(args.model),
+        model=_model(args),
         measure=measure,
         goals=goals,
         solve_for=args.solve_for,
@@ -282,6 +326,7 @@ def _plan(args, out) -> None:
         thresholds=args.within,
         curve_threshold=args.curve_within,
         n_points=args.points,
+        progress=_progress(args),
     )
     print(format_plan(result), file=out)
     if args.json is not None:

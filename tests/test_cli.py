@@ -79,6 +79,11 @@ def test_screen_keeps_every_row(capsys):
     for k in range(1, 7):
         assert f"Kestrel-{k}" in text
     assert "not computed: parallax = -0.4" in text
+    # screening keeps the straight line when runs default to orbits (issue 11), and says so: Kestrel-4 at the
+    # straight-line d_ph of its nominal inputs, 18,956 au (the linear-motion formulas, checked against galpy
+    # orbits and the formulas in test_model_difference.py), not the orbit's 20,652 au
+    assert "(straight-line model, nominal ± linear 1σ)" in text and "18,956" in text and "20,652" not in text
+    assert "perierr run follows Galactic orbits" in text
 
 
 @pytest.mark.parametrize("argv", [["run"], ["nonsense"]])

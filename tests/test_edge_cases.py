@@ -70,7 +70,7 @@ def test_head_on_nominal_path_has_no_distance_derivative_and_says_so():
     assert_allclose(lin.jacobian[0, 5], 0.9777922216807891 * d_pc / 20.0**2, rtol=1e-9)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        result = analyze(s, n_samples=2000, seed=1)
+        result = analyze(s, model="straight_line", n_samples=2000, seed=1)  # head-on is a straight-line kink
     assert any("not differentiable" in w for w in result.warnings)
 
 
@@ -127,7 +127,12 @@ def test_extra_levels_and_model_info_are_reported(tmp_path):
     assert main(argv, out=out) == 0
     assert "2.5 %:" in out.getvalue() and "97.5 %:" in out.getvalue()
     doc = json.loads(path.read_text())
-    assert doc["monte_carlo"]["model_info"]["model"] == "straight_line"
+    info = doc["monte_carlo"]["model_info"]
+    assert info["model"] == "orbit"  # the default model (issue 11)
+    # the diagnostics the report explains in words stay in the JSON, as numbers (ModelDiagnostics fields)
+    for key in ("window_myr", "map_error_au_max", "fallback_samples", "sparse_bin_samples", "n_outside_window"):
+        assert key in info, key
+    assert info["n_outside_window"] == 0 and len(info["window_myr"]) == 2
 
 
 @pytest.mark.slow  # about a second or more: left out of mutation runs (DEVELOPERS.md)

@@ -1,7 +1,8 @@
 """Fuzz corpus (issue 10, item 7): bad star files, odd stars and odd tables through the command line.
 
 Every case is written into ``tmp_path`` by the test and run through ``perierr.cli.main`` as ``run``
-(straight line and ``--model orbit``, 200 draws), ``plan`` (500 draws, 3 points per curve) and, for
+(``--model straight_line`` and ``--model orbit``, 200 draws), ``plan`` (straight line, 500 draws, 3 points per
+curve) and, for
 tables, ``screen``. For every run the same checks hold (see :func:`check_outcome`):
 
 * the exit status is one documented in ``perierr/cli.py`` (0 done, 2 bad input, 3 system, 4 memory,
@@ -417,12 +418,14 @@ def write_star(case: Case, tmp_path: Path) -> Path:
 
 
 def argv_for(mode: str, star: Path, json_path: Path | None, extra) -> list:
+    # the model is always named: "run" and "plan" are the straight line (plan with the orbit model takes
+    # minutes for the odd stars here until issue 11's faster engine), "orbit" the orbit model (the default)
     if mode == "plan":
         argv = ["plan", str(star), "--samples", "500", "--whatif-samples", "500", "--points", "3", "--seed", SEED]
+        argv += ["--model", "straight_line"]
     else:
         argv = ["run", str(star), "--samples", "200", "--seed", SEED]
-        if mode == "orbit":
-            argv += ["--model", "orbit"]
+        argv += ["--model", "orbit" if mode == "orbit" else "straight_line"]
     if json_path is not None:
         argv += ["--json", str(json_path)]
     return argv + list(extra)

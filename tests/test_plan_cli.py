@@ -8,7 +8,7 @@ import pytest
 
 from perierr.cli import main
 from perierr.demo import demo_path
-from perierr.models import StraightLine
+from perierr.models import StraightLine, make_model
 from perierr.plan import make_measurement, update_covariance, what_if
 from perierr.star import read_star_file
 
@@ -23,6 +23,7 @@ def test_plan_command_what_if_json_side_by_side(tmp_path):
     assert main(argv, out=out) == 0
     doc = json.loads(path.read_text())
     assert doc["kind"] == "plan" and doc["goals"] == [] and doc["gain_curves"] is None
+    assert doc["model"]["name"] == "orbit"  # the default model of plan (issue 11)
     w = doc["what_if"]
     assert set(w["current"]) == set(w["improved"]) == {"inputs", "monte_carlo", "linearized", "budget"}
     # improved rv error: inverse-variance combination of 0.60 and 0.15 km/s (Taylor 1997, Sect. 7.2)
@@ -30,7 +31,7 @@ def test_plan_command_what_if_json_side_by_side(tmp_path):
     assert w["improved"]["inputs"]["radial_velocity_error"] == pytest.approx(combined, rel=1e-12)
     # the JSON widths are q95 - q05 of the side-by-side summaries, same as the API on the same seed
     star = read_star_file(DEMO)
-    api = what_if(star, StraightLine(), [make_measurement("radial_velocity", 0.15)], n=20000, seed=3)
+    api = what_if(star, make_model(), [make_measurement("radial_velocity", 0.15)], n=20000, seed=3)
     a, b = api.width90("distance_pc")
     mc = w["improved"]["monte_carlo"]["distance_pc"]
     assert mc["q95"] - mc["q05"] == pytest.approx(b, rel=1e-12)
@@ -43,7 +44,7 @@ def test_plan_command_goal_form_reports_precision_or_floor(tmp_path):
     path = tmp_path / "goal.json"
     argv = ["plan", DEMO, "--goal-width", "d_ph=1700 au", "--goal-sigma", "d_ph=1e-4 pc",
             "--solve-for", "radial_velocity", "--no-curves", "--no-budget", "--samples", "5000",
-            "--seed", "1", "--json", str(path)]
+            "--seed", "1", "--json", str(path), "--model", "straight_line"]  # fed back below on straight lines
     assert main(argv, out=io.StringIO()) == 0
     goals = json.loads(path.read_text())["goals"]
     reach, floor = goals

@@ -11,23 +11,28 @@ from .diagnostics import FocusingDiagnostics, ModelDiagnostics
 from .straight import StraightLine
 
 __all__ = [
-    "FocusingDiagnostics", "ForwardModel", "ModelDiagnostics", "Perihelion", "StraightLine", "MODEL_NAMES",
-    "make_model",
+    "DEFAULT_MODEL", "FocusingDiagnostics", "ForwardModel", "ModelDiagnostics", "Perihelion", "StraightLine",
+    "MODEL_NAMES", "make_model",
 ]  # fmt: skip
 
 #: Names accepted by :func:`make_model` (and the CLI's ``--model``).
 MODEL_NAMES = ("straight_line", "orbit")
 
+#: The model every face uses unless told otherwise (``analyze``, ``plan``, the CLI's ``--model``): the
+#: Galactic orbit. The straight line is one option away; catalogue screening uses it.
+DEFAULT_MODEL = "orbit"
 
-def make_model(name: str = "straight_line", **options) -> ForwardModel:
+
+def make_model(name: str = DEFAULT_MODEL, **options) -> ForwardModel:
     """Build a forward model by name.
 
     Parameters
     ----------
     name : str
-        One of :data:`MODEL_NAMES`: "straight_line" (no options) or "orbit"
-        (options of :class:`perierr.models.orbit.OrbitModel`, e.g.
-        ``potential="MWPotential2014"``, ``sun="bovy2015"``, ``horizon_myr=20``).
+        One of :data:`MODEL_NAMES`: "orbit" (the default; options of
+        :class:`perierr.models.orbit.OrbitModel`, e.g.
+        ``potential="MWPotential2014"``, ``sun="bovy2015"``, ``horizon_myr=20``)
+        or "straight_line" (no options).
     **options
         Passed to the model's constructor, except ``star_mass_msun`` and
         ``star_mass_error_msun``: if ``star_mass_msun`` is given the model is

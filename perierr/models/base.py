@@ -10,6 +10,8 @@ interface only, so a new model is a new small file.
 from __future__ import annotations
 
 import abc
+import inspect
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,7 +19,7 @@ import numpy as np
 from ..units import OUTPUTS
 from .diagnostics import ModelDiagnostics
 
-__all__ = ["ForwardModel", "ModelDiagnostics", "Nuisance", "Perihelion"]
+__all__ = ["ForwardModel", "ModelDiagnostics", "Nuisance", "Perihelion", "accepts_progress", "with_progress"]
 
 
 @dataclass(frozen=True)
@@ -122,8 +124,13 @@ class Perihelion:
         if self.flags is not None:
             flags = np.zeros(valid.shape, dtype=bool)
             flags[valid] = self.flags
-        return Perihelion(spread(self.time_myr), spread(self.distance_pc), spread(self.speed_kms), flags,
-                          diagnostics=self.diagnostics.aligned(valid))
+        return Perihelion(
+            spread(self.time_myr),
+            spread(self.distance_pc),
+            spread(self.speed_kms),
+            flags,
+            diagnostics=self.diagnostics.aligned(valid),
+        )
 
 
 class ForwardModel(abc.ABC):
@@ -143,13 +150,19 @@ class ForwardModel(abc.ABC):
       focusing) for a Monte Carlo batch; :meth:`evaluate` keeps them at their
       nominal values and :meth:`evaluate_nuisance` takes them as given
       standard-normal deviates.
+
+    ``progress``, where given, is a callable ``progress(done, total)`` the
+    model calls as rows finish (``done`` never decreasing, ``done == total``
+    last); it only reports, never changes what is computed. A model whose
+    ``evaluate`` does not take it still works: :func:`with_progress` then
+    reports the batch once, when it is done.
     """
 
     #: Short identifier written to the JSON ``model`` field.
     name: str = "abstract"
 
     @abc.abstractmethod
-    def evaluate(self, observables, *, reference=None) -> Perihelion:
+    def evaluate(self, observables, *, reference=None, progress=None) -> Perihelion:
         """Perihelion of every row of ``observables``, nuisance parameters at their nominal values.
 
         Parameters
@@ -162,9 +175,12 @@ class ForwardModel(abc.ABC):
             scatter around. Models that build a map around a nominal orbit
             use it (without it they evaluate every row on its own); others
             ignore it.
+        progress : callable, optional
+            ``progress(done, total)``, called as rows finish (at least once,
+            with ``done == total``, at the end).
         """
 
-    def evaluate_draws(self, observables, rng=None, *, reference=None) -> Perihelion:
+    def evaluate_draws(self, observables, rng=None, *, reference=None, progress=None) -> Perihelion:
         """Perihelion of a Monte Carlo batch: each row with its own draw of the nuisance parameters.
 
         Parameters
@@ -175,7 +191,7 @@ class ForwardModel(abc.ABC):
             Draws the model's nuisance parameters, one per row (the only
             randomness a model uses). None keeps them at their nominal values,
             as :meth:`evaluate` does.
-        reference : array_like, shape (6,), optional
+        reference, progress : optional
             As in :meth:`evaluate`.
 
         Notes
@@ -183,7 +199,7 @@ class ForwardModel(abc.ABC):
         The default (a model without nuisance parameters) is :meth:`evaluate`;
         a model with nuisance parameters overrides it.
         """
-        return self.evaluate(observables, reference=reference)
+        return with_progress(self.evaluate, observables, reference=reference, progress=progress)
 
     def jacobian(self, point) -> np.ndarray:
         """Derivatives of (t_ph, d_ph, v_ph) with respect to the observables.
@@ -222,6 +238,44 @@ class ForwardModel(abc.ABC):
         none and ignores ``deviates``.
         """
         return self.evaluate(observables, reference=reference)
+
+
+def accepts_progress(method: Callable) -> bool:
+    """Whether a model's ``evaluate`` or ``evaluate_draws`` names a ``progress`` parameter.
+
+    Only a parameter of that name counts: a ``**kwargs`` may be passed on to a method that does not take it.
+    """
+    try:
+        return "progress" in inspect.signature(method).parameters
+    except (TypeError, ValueError):  # a callable without an inspectable signature
+        return False
+
+
+def with_progress(method: Callable, observables, *args, progress=None, **kwargs) -> Perihelion:
+    """Call a model's ``evaluate`` or ``evaluate_draws``, with ``progress`` when it takes one.
+
+    A method without a ``progress`` keyword (a model written before it existed)
+    is called without it, and ``progress(n, n)`` reports the whole batch when
+    it returns, so a caller always sees ``done == total`` at the end.
+
+    Parameters
+    ----------
+    method : callable
+        A bound ``evaluate`` or ``evaluate_draws``.
+    observables : array_like, shape (n, 6)
+    *args, **kwargs
+        Passed on (``rng``, ``reference``).
+    progress : callable, optional
+        ``progress(done, total)``.
+    """
+    if progress is None:
+        return method(observables, *args, **kwargs)
+    if accepts_progress(method):
+        return method(observables, *args, progress=progress, **kwargs)
+    out = method(observables, *args, **kwargs)
+    n = int(np.size(out.time_myr))
+    progress(n, n)
+    return out
 
 
 def _fd_steps(point: np.ndarray) -> np.ndarray:

@@ -26,7 +26,7 @@ import numpy as np
 from scipy.stats import norm, truncnorm
 
 from ..errors import InputError
-from .base import ForwardModel, Nuisance, Perihelion
+from .base import ForwardModel, Nuisance, Perihelion, with_progress
 from .diagnostics import FocusingDiagnostics
 from .orbit.potentials import G_PC_KMS2_PER_MSUN
 
@@ -131,18 +131,21 @@ class Focused(ForwardModel):
             )  # fmt: skip
         return np.full(n, self.mass_msun)
 
-    def evaluate(self, observables, *, reference=None) -> Perihelion:
-        """Focused perihelion of every row at the nominal mass; see :meth:`ForwardModel.evaluate`."""
-        raw = self.base.evaluate(observables, reference=reference)
+    def evaluate(self, observables, *, reference=None, progress=None) -> Perihelion:
+        """Focused perihelion of every row at the nominal mass; see :meth:`ForwardModel.evaluate`.
+
+        ``progress`` goes to the wrapped model (the correction itself is a closed form).
+        """
+        raw = with_progress(self.base.evaluate, observables, reference=reference, progress=progress)
         return self.focus(raw, self._masses(raw.distance_pc.size, None))
 
-    def evaluate_draws(self, observables, rng=None, *, reference=None) -> Perihelion:
+    def evaluate_draws(self, observables, rng=None, *, reference=None, progress=None) -> Perihelion:
         """Focused perihelia with one mass per row drawn with ``rng`` (nominal masses when ``rng`` is None).
 
         The wrapped model's own draws (if it has nuisance parameters) come
-        first from the same generator.
+        first from the same generator; ``progress`` goes to the wrapped model.
         """
-        raw = self.base.evaluate_draws(observables, rng, reference=reference)
+        raw = with_progress(self.base.evaluate_draws, observables, rng, reference=reference, progress=progress)
         return self.focus(raw, self._masses(raw.distance_pc.size, rng))
 
     def focus(self, raw: Perihelion, masses) -> Perihelion:

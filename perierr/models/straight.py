@@ -46,8 +46,11 @@ class StraightLine(ForwardModel):
 
     name = "straight_line"
 
-    def evaluate(self, observables, *, reference=None) -> Perihelion:
-        """Perihelion of every row of ``observables`` (shape (n, 6)); see :class:`ForwardModel`."""
+    def evaluate(self, observables, *, reference=None, progress=None) -> Perihelion:
+        """Perihelion of every row of ``observables`` (shape (n, 6)); see :class:`ForwardModel`.
+
+        ``progress`` is called once, when every row is done (the formulas take milliseconds).
+        """
         obs = np.asarray(observables, dtype=float)
         if obs.ndim == 1:
             obs = obs[None, :]
@@ -69,6 +72,8 @@ class StraightLine(ForwardModel):
             d = np.where(at_rest, inv, d)
             speed = np.where(at_rest, 0.0, speed)
             flags = at_rest
+        if progress is not None:
+            progress(t.size, t.size)
         return Perihelion(t, d, speed, flags=flags, diagnostics=ModelDiagnostics(model=self.name))
 
     def jacobian(self, point) -> np.ndarray:

@@ -8,8 +8,9 @@ import numpy as np
 
 from .._version import __version__
 from ..budget import GlobalBudget, global_budget
-from ..cautions import HAZARD, linear_cautions, messages
-from ..models import ForwardModel, make_model
+from ..cautions import HAZARD, Reading, linear_cautions, messages, model_difference
+from ..comparison import is_straight_line, orbit_nominal_comparison, straight_line_comparison
+from ..models import DEFAULT_MODEL, ForwardModel, make_model
 from ..propagate.linear import linearize
 from ..star import ObservedStar
 from ..thresholds import DEFAULT_THRESHOLDS
@@ -17,7 +18,7 @@ from ..units import DEC, OBSERVABLES, PARALLAX
 from .curves import GainCurves, gain_curves
 from .required import required_precision
 from .update import make_measurement
-from .whatif import WhatIf, common_draws, what_if
+from .whatif import WhatIf, common_draws, scenario_monte_carlo, what_if
 
 __all__ = ["Plan", "plan"]
 
@@ -42,7 +43,14 @@ class Plan:
     settings : dict
     cautions : tuple of Caution
         The same cautions ``analyze`` gives for the star's linearization (biased parallax, head-on path,
-        d_ph within its sigma).
+        d_ph within its sigma), and its model-difference caution, judged on today's draws (the what-if's
+        when there is one, else the common draws).
+    comparison : dict
+        Models other than the straight line: the straight line on today's draws
+        (:func:`perierr.comparison.straight_line_comparison`).
+    orbit_comparison : dict
+        The straight line: the orbit model at the nominal inputs
+        (:func:`perierr.comparison.orbit_nominal_comparison`).
     """
 
     star: ObservedStar
@@ -54,10 +62,12 @@ class Plan:
     budget_improved: GlobalBudget | None = None
     settings: dict = field(default_factory=dict)
     cautions: tuple = ()
+    comparison: dict = field(default_factory=dict)
+    orbit_comparison: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         """The plan JSON: current and improved side by side; required precisions or reasons."""
-        return {
+        out = {
             "perierr_version": __version__,
             "kind": "plan",
             "model": self.model,
@@ -72,12 +82,17 @@ class Plan:
             "notes": list(self.star.notes),
             "caution": HAZARD,
         }
+        if self.comparison:
+            out["straight_line_comparison"] = self.comparison
+        if self.orbit_comparison:
+            out["orbit_nominal_comparison"] = self.orbit_comparison
+        return out
 
 
 def plan(
     star: ObservedStar,
     *,
-    model: ForwardModel | str = "straight_line",
+    model: ForwardModel | str = DEFAULT_MODEL,
     measure=None,
     goals=(),
     solve_for=None,
@@ -90,6 +105,7 @@ def plan(
     curve_threshold: str = "20000 au",
     n_points: int = 20,
     budget_options=None,
+    progress=None,
 ) -> Plan:
     """Plan re-observations of one star.
 
@@ -97,6 +113,8 @@ def plan(
     ----------
     star : ObservedStar
     model : ForwardModel or str
+        A model or a name (:func:`perierr.models.make_model`); the default is
+        the Galactic orbit model.
     measure : dict or sequence of Measurement, optional
         What-if measurements, e.g. ``{"radial_velocity": 0.1}`` (catalogue units).
     goals : sequence of Goal
@@ -119,6 +137,9 @@ def plan(
     n_points : int
     budget_options : dict, optional
         Passed to :func:`perierr.budget.global_budget`.
+    progress : callable, optional
+        ``progress(done, total)`` of the Monte Carlo runs of today's and the improved answer (see
+        :func:`perierr.propagate.monte_carlo`); it only reports.
     """
     from ..sampling.gaussian import resolve_seed
     from ..star.checks import require_motion, require_positive_parallax, require_uncertainty
@@ -135,7 +156,7 @@ def plan(
     if measure:
         items = measure.items() if isinstance(measure, dict) else None
         ms = [make_measurement(k, v, dec=dec) for k, v in items] if items is not None else list(measure)
-        wi = what_if(star, model, ms, n=n_whatif, seed=seed, thresholds=thresholds)
+        wi = what_if(star, model, ms, n=n_whatif, seed=seed, thresholds=thresholds, progress=progress)
     draws = common_draws(n, seed)
     names = solve_for or [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0]
     required = [required_precision(star, model, name, g, draws=draws) for g in goals for name in names]
@@ -145,5 +166,17 @@ def plan(
     if budget and wi is not None:
         gb1 = global_budget(wi.improved, model, seed=seed, **(budget_options or {}))
     settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
-    cautions = tuple(linear_cautions(star, linearize(star, model)))
-    return Plan(star, model.describe(), wi, required, gc, gb, gb1, settings, cautions)
+    today = wi.mc_current if wi is not None else scenario_monte_carlo(
+        star, model, draws, thresholds=thresholds, progress=progress
+    )  # fmt: skip
+    comparison, orbit_comparison = {}, {}
+    if is_straight_line(model):
+        orbit_comparison = orbit_nominal_comparison(star.mean, today)
+    else:
+        comparison = straight_line_comparison(today, model, star.mean)
+    cautions = linear_cautions(star, linearize(star, model))
+    differs = model_difference(Reading(star, None, today, False, comparison, orbit_comparison))
+    cautions += [] if differs is None else [differs]
+    return Plan(
+        star, model.describe(), wi, required, gc, gb, gb1, settings, tuple(cautions), comparison, orbit_comparison
+    )

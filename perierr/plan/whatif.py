@@ -27,7 +27,9 @@ from ..units import AU_PER_PC, OUTPUTS, PARALLAX
 from .metrics import PROBABILITY, Metric, MetricTable
 from .update import Measurement, updated_star
 
-__all__ = ["CommonDraws", "ScenarioMetrics", "WhatIf", "common_draws", "scenario_metrics", "what_if"]
+__all__ = [
+    "CommonDraws", "ScenarioMetrics", "WhatIf", "common_draws", "scenario_metrics", "scenario_monte_carlo", "what_if",
+]  # fmt: skip
 
 #: Statistics computed per output in every scenario.
 STATISTICS = ("width90", "std", "median")
@@ -172,6 +174,28 @@ def scenario_metrics(
     return ScenarioMetrics(MetricTable(values), probs, pcs, n, (~valid).sum(axis=1))
 
 
+def scenario_monte_carlo(
+    star: ObservedStar,
+    model: ForwardModel,
+    draws: CommonDraws,
+    *,
+    levels=DEFAULT_LEVELS,
+    thresholds=DEFAULT_THRESHOLDS,
+    progress=None,
+) -> MonteCarloResult:
+    """The Monte Carlo of one scenario (``star``'s mean and covariance) on the common draws.
+
+    The model's nuisance draws take :func:`~perierr.propagate.montecarlo.nuisance_rng` of the draws' seed,
+    so every scenario shares them too; ``levels``, ``thresholds`` and ``progress`` as in
+    :func:`perierr.propagate.monte_carlo`.
+    """
+    samples = Samples(draws.samples(star.mean, star.cov), seed=draws.seed, method="gaussian (common draws)")
+    return propagate_samples(
+        samples, model, reference=star.mean, rng=nuisance_rng(draws.seed), levels=levels, thresholds=thresholds,
+        progress=progress,
+    )  # fmt: skip
+
+
 @dataclass(frozen=True)
 class WhatIf:
     """Today's answer and the answer after hypothetical new measurements, side by side.
@@ -254,6 +278,7 @@ def what_if(
     draws: CommonDraws | None = None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
+    progress=None,
 ) -> WhatIf:
     """Recompute intervals, threshold probabilities and budget after new measurements.
 
@@ -269,8 +294,8 @@ def what_if(
         Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
         Shared draws, to compare with other scenarios.
-    levels, thresholds
-        As in :func:`perierr.propagate.monte_carlo`.
+    levels, thresholds, progress
+        As in :func:`perierr.propagate.monte_carlo` (each scenario is a pass of the progress).
 
     Notes
     -----
@@ -287,10 +312,7 @@ def what_if(
     improved = updated_star(star, measurements)
 
     def run(s):
-        samples = Samples(draws.samples(s.mean, s.cov), seed=draws.seed, method="gaussian (common draws)")
-        return propagate_samples(
-            samples, model, reference=s.mean, rng=nuisance_rng(draws.seed), levels=levels, thresholds=thresholds
-        )
+        return scenario_monte_carlo(s, model, draws, levels=levels, thresholds=thresholds, progress=progress)
 
     lin0, lin1 = linearize(star, model), linearize(improved, model)
     return WhatIf(

@@ -16,20 +16,27 @@ Randomness: the draws come from ``numpy.random.default_rng(seed)``; the
 model's nuisance parameters (the star's mass under focusing) from a stream of
 their own, :func:`nuisance_rng` of the same seed, handed to
 :meth:`~perierr.models.base.ForwardModel.evaluate_draws`.
+
+Progress: a ``progress(done, total)`` callable (e.g.
+:class:`perierr.progress.TerminalProgress`) is called with ``done = 0`` before
+the draws go through the model, then handed to the model, which calls it as
+chunks finish and with ``done == total`` at the end; ``total`` counts the
+evaluated draws (parallax > 0). The adaptive mode evaluates every draw again
+in each round, so each round is a pass of its own.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import InputError, PerierrWarning
-from ..models.base import ForwardModel, Perihelion
+from ..models.base import ForwardModel, Perihelion, with_progress
 from ..sampling.gaussian import Samples, draw_gaussian, require_draws, resolve_seed
 from ..star import ObservedStar
 from ..star.checks import require_motion, require_positive_parallax
@@ -149,7 +156,7 @@ def nuisance_rng(seed) -> np.random.Generator:
     return np.random.default_rng(None if seed is None else [seed, 1])
 
 
-def evaluate_aligned(model: ForwardModel, values, *, reference=None, rng=None) -> tuple:
+def evaluate_aligned(model: ForwardModel, values, *, reference=None, rng=None, progress=None) -> tuple:
     """The model on every draw with parallax > 0, aligned with the draws.
 
     Parameters
@@ -161,6 +168,8 @@ def evaluate_aligned(model: ForwardModel, values, *, reference=None, rng=None) -
         The point to linearize around (see :meth:`ForwardModel.evaluate`).
     rng : numpy.random.Generator, optional
         Draws of the model's nuisance parameters (see :meth:`ForwardModel.evaluate_draws`).
+    progress : callable, optional
+        ``progress(done, total)`` over the evaluated draws (module docstring).
 
     Returns
     -------
@@ -169,15 +178,15 @@ def evaluate_aligned(model: ForwardModel, values, *, reference=None, rng=None) -
     valid : ndarray of bool, shape (n,)
         True where the parallax is > 0.
     """
-    compact, valid = _evaluate_valid(model, values, reference, rng)
+    compact, valid = _evaluate_valid(model, values, reference, rng, progress)
     return (compact if valid.all() else compact.aligned(valid)), valid
 
 
-def _evaluate_valid(model, values, reference, rng) -> tuple:
+def _evaluate_valid(model, values, reference, rng, progress=None) -> tuple:
     """The model on the draws with parallax > 0 only (one row each, in order), and the mask of those draws."""
     valid = values[:, PARALLAX] > 0
     if valid.all():
-        return model.evaluate_draws(values, rng, reference=reference), valid
+        return _evaluate_draws(model, values, reference, rng, progress), valid
     # compress the (6, n) layout when the draws have it: about twice as fast as boolean indexing,
     # and it keeps each observable contiguous for the model
     rows = np.compress(valid, values.T, axis=1).T
@@ -188,7 +197,14 @@ def _evaluate_valid(model, values, reference, rng) -> tuple:
             "every sample has parallax <= 0 (this is the largest), so no perihelion can be computed by "
             "inverting parallaxes; use a distance prior",
         )
-    return model.evaluate_draws(rows, rng, reference=reference), valid
+    return _evaluate_draws(model, rows, reference, rng, progress), valid
+
+
+def _evaluate_draws(model, rows, reference, rng, progress) -> Perihelion:
+    """``model.evaluate_draws`` on the rows, reporting ``progress`` from 0 to every row (module docstring)."""
+    if progress is not None:
+        progress(0, rows.shape[0])
+    return with_progress(model.evaluate_draws, rows, rng, reference=reference, progress=progress)
 
 
 def _kept(x, valid, weights) -> tuple:
@@ -206,6 +222,7 @@ def propagate_samples(
     rng=None,
     levels=DEFAULT_LEVELS,
     thresholds=DEFAULT_THRESHOLDS,
+    progress: Callable[[int, int], None] | None = None,
 ) -> MonteCarloResult:
     """Push samples through a forward model and summarize the outputs.
 
@@ -223,8 +240,10 @@ def propagate_samples(
         Quantile levels to report (the defaults are always included).
     thresholds : sequence
         Distances for P(d_ph < D); see :func:`perierr.thresholds.parse_thresholds`.
+    progress : callable, optional
+        ``progress(done, total)``, called as the model finishes draws (module docstring).
     """
-    compact, valid = _evaluate_valid(model, samples.values, reference, rng)
+    compact, valid = _evaluate_valid(model, samples.values, reference, rng, progress)
     all_valid = bool(valid.all())
     w_all = samples.weights
     w = None if w_all is None or all_valid else w_all[valid]
@@ -253,6 +272,7 @@ def monte_carlo(
     thresholds: Sequence[str | float | Quantity] = DEFAULT_THRESHOLDS,
     target_error: float | None = None,
     max_samples: int = 10_000_000,
+    progress: Callable[[int, int], None] | None = None,
 ) -> MonteCarloResult:
     """Monte Carlo propagation of a star's Gaussian errors through a model.
 
@@ -273,6 +293,9 @@ def monte_carlo(
         error is below ``target_error`` times the output's (q84 - q16) / 2.
     max_samples : int
         Cap on the adaptive mode; a warning says when the target was not met.
+    progress : callable, optional
+        ``progress(done, total)``, called as the model finishes draws (module
+        docstring; each round of the adaptive mode is a pass of its own).
 
     Returns
     -------
@@ -291,8 +314,9 @@ def monte_carlo(
     nuisance = nuisance_rng(seed)  # one stream for every round of the adaptive mode
 
     def run(vals):
+        samples = Samples(vals, seed=seed)
         return propagate_samples(
-            Samples(vals, seed=seed), model, reference=star.mean, rng=nuisance, levels=levels, thresholds=thresholds
+            samples, model, reference=star.mean, rng=nuisance, levels=levels, thresholds=thresholds, progress=progress
         )
 
     result = run(values)

@@ -40,4 +40,8 @@ def format_screen(rows, table_name: str) -> str:
             f"  (σ_ϖ/ϖ > {100 * BIASED_PARALLAX_FRACTION:g} %: 1/parallax is a biased distance; "
             "see perierr run --distance-prior)"
         )
+    lines.append(
+        "  (straight lines are a first look: the Galactic tide can move d_ph by thousands of au within a Myr; "
+        "perierr run follows Galactic orbits)"
+    )
     return "\n".join(lines)

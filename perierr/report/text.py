@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 
-from ..cautions import HAZARD, messages
+from ..cautions import DIRECT_FRACTION, HAZARD, map_tolerance, messages
 from ..units import AU_PER_PC, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_TITLES, OUTPUTS
 from .shares import format_share, input_label
 
@@ -49,13 +49,15 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
     mc = a.monte_carlo
     lines = _header_lines(a) + [""] + _input_lines(a.star) + [""]
     lines += _perihelion_lines(a.linear, mc)
-    lines += _model_lines(mc.perihelion.diagnostics)
+    lines += _model_lines(mc.perihelion.diagnostics, a.model, mc.n_valid)
     lines += _monte_carlo_lines(mc) + [""]
     lines += _threshold_lines(mc)
     if a.budget is not None:
         lines += [""] + _budget_lines(a.budget)
     if a.comparison:
         lines += [""] + _comparison_lines(a.comparison)
+    if a.orbit_comparison:
+        lines += [""] + _orbit_comparison_lines(a.orbit_comparison)
     if a.prior is not None:
         lines += [""] + _prior_lines(a.prior)
     if a.calibration is not None and a.calibration.active:
@@ -171,7 +173,7 @@ def _budget_lines(b) -> list:
 
 
 def _comparison_lines(comparison) -> list:
-    """The comparison with straight-line motion on the same draws."""
+    """The comparison with straight-line motion on the same draws, probabilities included."""
     lines = ["Against straight-line motion on the same draws (this model minus straight line)"]
     for q in OUTPUTS:
         c = comparison[q]
@@ -182,6 +184,25 @@ def _comparison_lines(comparison) -> list:
                 f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
                 f"difference {c['difference_of_medians'] * au:+,.0f}"
             )
+    for t in comparison.get("thresholds", ()):
+        label, p, dp = f"P(< {t['label']})", t["probability"], 100 * t["difference"]
+        lines.append(f"  {label:<15} {p:.2%} on straight lines, difference {dp:+.2f} points")
+    return lines
+
+
+def _orbit_comparison_lines(comparison) -> list:
+    """The orbit model at the nominal inputs beside a straight-line run: what the Galactic tide changes."""
+    lines = ["The orbit model at the nominal inputs (what the Galactic tide changes; orbit minus straight line)"]
+    for q in OUTPUTS:
+        c = comparison[q]
+        lines.append(f"  {OUTPUT_TITLES[q]:<15} orbit {c['orbit']:.6g}, difference {c['difference']:+.4g}")
+        if q == "distance_pc":
+            lines.append(
+                f"  {'distance [au]':<15} orbit {c['orbit'] * AU_PER_PC:,.0f}, "
+                f"difference {c['difference'] * AU_PER_PC:+,.0f}"
+            )
+    if comparison.get("flagged"):
+        lines.append("  (the orbit model flagged this answer: its perihelion lies outside its search window)")
     return lines
 
 
@@ -198,27 +219,88 @@ def _dominant(budget, output: str) -> str:
     return "undefined" if name is None else input_label(name)
 
 
-def _model_lines(diag) -> list:
-    """How the model ran (methods other than the straight line) and what focusing changed."""
+def _model_lines(diag, description, n) -> list:
+    """How the model ran (methods other than the straight line), in words, and what focusing changed.
+
+    Parameters
+    ----------
+    diag : ModelDiagnostics
+    description : dict
+        ``describe()`` of the model (its map tolerance and method option).
+    n : int
+        Draws the model evaluated.
+    """
     out = []
     if diag.method and diag.model != "straight_line":
         parts = [f"method {diag.method}"]
-        for value, label in (
-            (diag.n_reference_orbits, "reference orbits"),
-            (diag.fallback_samples, "draws integrated directly"),
-            (diag.map_error_au_max, "largest map error in the check [au]"),
-        ):
-            if value is not None:
-                parts.append(f"{label} {value:.3g}" if isinstance(value, float) else f"{label} {value}")
-        if diag.fallback_reason:
-            parts.append(f"because {diag.fallback_reason}")
-        out.append("  model: " + "; ".join(parts))
+        if diag.n_reference_orbits is not None:
+            parts.append(f"{diag.n_reference_orbits} reference orbit{'' if diag.n_reference_orbits == 1 else 's'}")
+        if diag.window_myr is not None:
+            parts.append(f"search window {diag.window_myr[0]:+.4g} … {diag.window_myr[1]:+.4g} Myr")
+        out.append(f"  model: {diag.model} ({', '.join(parts)})")
+        out += [f"  {sentence}" for sentence in _diagnostic_sentences(diag, description, n)]
     focus = diag.focusing
     if focus is not None:
         out.append(
             f"  gravitational focusing ({focus.mass_msun:g} ± {focus.mass_error_msun:g} M_sun) moved d_ph by "
             f"{focus.median_delta_distance_pc * AU_PER_PC:+.3g} au and v_ph by "
             f"{focus.median_delta_speed_kms:+.3g} km/s (medians over the draws)"
+        )
+    return out
+
+
+def _diagnostic_sentences(diag, description, n) -> list:
+    """The orbit model's diagnostics in words, each with what it means and what to do."""
+    out = []
+    tolerance, method = map_tolerance(description)
+    worst = diag.map_error_au_max
+    if worst is not None and tolerance is not None:
+        checked = f"{diag.n_checked:,} " if diag.n_checked is not None else ""
+        head = f"map check: against direct integration of {checked}draws its largest error was {worst:.3g} au"
+        if not worst > tolerance:
+            out.append(f"{head}, within the tolerance of {tolerance:g} au")
+        elif method == "map":
+            out.append(
+                f'{head}, above the tolerance of {tolerance:g} au, and method "map" kept the mapped answers: '
+                'd_ph may be off by that much; use method "auto" (the default)'
+            )
+        else:
+            out.append(
+                f"{head}, above the tolerance of {tolerance:g} au: the map fits some draws poorly, so every draw "
+                "predicted above the tolerance was integrated directly; the answers hold to the tolerance"
+            )
+    fallback, sparse = int(diag.fallback_samples or 0), int(diag.sparse_bin_samples or 0)
+    if fallback + sparse:
+        why = []
+        if fallback:
+            why.append(f"{fallback:,} where the map could not be trusted or did not reach")
+        if sparse:
+            why.append(f"{sparse:,} in distance bins too sparse for a reference orbit")
+        text = (
+            f"direct integration: {fallback + sparse:,} draws ({(fallback + sparse) / max(n, 1):.1%}) were "
+            f"integrated directly instead of through the map ({'; '.join(why)}); this only costs time, the "
+            "answers are exact"
+        )
+        if fallback + sparse > DIRECT_FRACTION * n:
+            text += "; for speed use fewer draws (--samples) or, for a weak parallax, a distance prior"
+        out.append(text)
+    if diag.n_outside_window:
+        k = diag.n_outside_window
+        out.append(
+            f"search window: {k:,} draws ({k / max(n, 1):.1%}) have their perihelion beyond its edge: their "
+            "separation still shrinks there (going away from now), so their perihelion was extrapolated along a "
+            'straight line from the edge (flagged); pass a longer horizon (--horizon MYR, or make_model("orbit", '
+            "horizon_myr=...)) to find it"
+        )
+    if diag.n_not_converged:
+        out.append(
+            f"perihelion search: {diag.n_not_converged:,} draws did not converge (flagged); a smaller grid step "
+            '(grid_step_myr) or method "direct" may help'
+        )
+    if diag.n_beyond_potential:
+        out.append(
+            f"beyond the potential: {diag.n_beyond_potential:,} draws lie farther than {diag.max_distance_pc:g} pc "
+            "or move faster than any bound orbit; they take the straight-line answer (flagged)"
         )
     return out
 

@@ -465,9 +465,14 @@ def test_focused_evaluate_nuisance_maps_deviates_to_masses():
 
 
 def test_make_model_defaults_and_focusing_options():
-    # make_model docstring: the default is the straight line; the two focusing options are taken out of the
-    # options and given to Focused (mass error default 0); the same generator seed gives the same mass draws.
-    assert isinstance(make_model(), StraightLine) and not isinstance(make_model(), Focused)
+    # make_model docstring: the default is the orbit model (issue 11: the answer users quote must not be the
+    # approximation); the two focusing options are taken out of the options and given to Focused (mass error
+    # default 0); the same generator seed gives the same mass draws.
+    from perierr.models.orbit import OrbitModel
+
+    default = make_model()
+    assert isinstance(default, OrbitModel) and not isinstance(default, Focused)
+    assert default.describe() == OrbitModel().describe()  # the default options too
     plain = make_model("straight_line", star_mass_msun=0.6)
     assert isinstance(plain, Focused) and plain.mass_error_msun == 0.0 and plain.mass_msun == 0.6
     rows = _slow_close_rows()
