@@ -2,11 +2,10 @@
 
 Run
 ---
-From the checkout (here the worktree /work/wt11; for the main checkout put /work/main in both places)::
+From the checkout, with perierr installed (``pip install -e '.[test]'``)::
 
-    cd /work/wt11 && export PYTHONPATH=/work/wt11 OPENBLAS_NUM_THREADS=1
-    /work/main/.venv/bin/python benchmarks/bench_orbit.py            # N = 10^5, all classes
-    /work/main/.venv/bin/python benchmarks/bench_orbit.py --quick    # N = 10^4
+    python benchmarks/bench_orbit.py            # N = 10^5, all classes
+    python benchmarks/bench_orbit.py --quick    # N = 10^4
 
 ``--quick``: N = 10^4 draws only (a few minutes at most); the default is N = 10^5 (under about fifteen
 minutes). ``--n`` sets N, ``--classes well,weak,...`` picks classes, ``--seed`` the first seed.
@@ -29,7 +28,7 @@ star at 100 pc (t_ph ~ 4 Myr) for the comparison with galpy. For each, at N draw
    and P(d_ph < D) of those 500 draws by both; the reference itself is checked on 100 of them against rtol
    1e-13 and grid_travel_pc 1.5;
 3. peak memory of the orbit Monte Carlo (tracemalloc, in MB = 10^6 bytes; target <= 300 MB);
-4. the model's diagnostics: leaves (``n_reference_orbits``), ``fallback_samples``, ``sparse_bin_samples``,
+4. the model's diagnostics: leaves (``n_map_leaves``), ``fallback_samples``, ``sparse_samples``,
    ``multimodal_leaves``, ``n_outside_window``, ``n_not_converged``.
 
 Then, per draw, against galpy (a general-purpose Galactic-dynamics library) AT MATCHED ACCURACY, on the
@@ -330,8 +329,8 @@ def main():
         ok = "" if a["p99"] <= P99_TARGET_AU else "!"
         print(f"{r['cls'].key:9s} {a['p99']:11.3g}{ok:1s} {a['max']:12.3g} {a['n_over']:4d} {a['t_err_myr']:13.3g} "
               f"{a['ref_self_au']:12.2g} {dq:12.3g} {dp:9.4f} {'{}/{}/{}'.format(*a['flags']):>17s} | "
-              f"{info.get('n_reference_orbits', 0):6d} {info.get('fallback_samples', 0):8d} "
-              f"{info.get('sparse_bin_samples', 0):7d} {info.get('multimodal_leaves', 0):8d} "
+              f"{info.get('n_map_leaves', 0):6d} {info.get('fallback_samples', 0):8d} "
+              f"{info.get('sparse_samples', 0):7d} {info.get('multimodal_leaves', 0):8d} "
               f"{info.get('n_outside_window', 0):7d} {info.get('n_not_converged', 0):8d}")  # fmt: skip
     print("  dd, dt: orbit Monte Carlo minus reference on the same draws; >tol: draws with |dd| above the model's "
           f"map_tolerance_au ({OrbitModel().map_tolerance_au:g} au); 'ref self': the reference against rtol "
@@ -339,7 +338,7 @@ def main():
           "draws, dP: P(d_ph < D) for D = 0.5, 1, 2 pc, 20000, 100000 au and the reference median;\n  flags: "
           "draws flagged (outside the window or not converged) by the orbit MC / by the reference / by one only; "
           "! marks a missed target;\n  leaves ... not conv: the orbit model's diagnostics over all N draws "
-          "(n_reference_orbits, fallback_samples, sparse_bin_samples, multimodal_leaves, n_outside_window, "
+          "(n_map_leaves, fallback_samples, sparse_samples, multimodal_leaves, n_outside_window, "
           "n_not_converged)")  # fmt: skip
     print("\n  quantiles of d_ph [pc] and P(d_ph < D) on those draws, orbit MC / reference:")
     for r in rows.values():

@@ -325,13 +325,13 @@ def _large_mc_error(r: Reading) -> Caution | None:
 
 def _direct_integrations(r: Reading) -> Caution | None:
     diag = r.mc.perihelion.diagnostics
-    n_direct = int(diag.fallback_samples or 0) + int(diag.sparse_bin_samples or 0)
+    n_direct = int(diag.fallback_samples or 0) + int(diag.sparse_samples or 0)
     size = r.mc.n_valid
     if n_direct > DIRECT_FRACTION * max(size, 1):
         return Caution(
             "direct-integration",
-            f"{n_direct:,} draws ({n_direct / size:.0%}) needed direct orbit integration: the state-transition "
-            "map could not cover the spread of the draws; this only cost time, the answers are exact",
+            f"{n_direct:,} draws ({n_direct / size:.0%}) needed direct orbit integration: the maps of the draw "
+            "cloud could not cover its spread; this only cost time, the answers are exact",
             subject="model",
         )
     return None
@@ -381,7 +381,7 @@ def _map_error(r: Reading) -> Caution | None:
         return None
     return Caution(
         "map-error",
-        f"the state-transition map's check against direct integration found errors up to {worst:.3g} au, above "
+        f"the orbit maps' check against direct integration found errors up to {worst:.3g} au, above "
         f'its tolerance of {tolerance:g} au, and method "map" keeps the mapped answers: d_ph may be off by that '
         'much; use method "auto" (the default), which integrates such draws directly',
         subject="model",

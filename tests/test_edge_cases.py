@@ -130,7 +130,7 @@ def test_extra_levels_and_model_info_are_reported(tmp_path):
     info = doc["monte_carlo"]["model_info"]
     assert info["model"] == "orbit"  # the default model (issue 11)
     # the diagnostics the report explains in words stay in the JSON, as numbers (ModelDiagnostics fields)
-    for key in ("window_myr", "map_error_au_max", "fallback_samples", "sparse_bin_samples", "n_outside_window"):
+    for key in ("window_myr", "map_error_au_max", "fallback_samples", "sparse_samples", "n_outside_window"):
         assert key in info, key
     assert info["n_outside_window"] == 0 and len(info["window_myr"]) == 2
 

@@ -35,7 +35,8 @@ def star():
     )  # fmt: skip
 
 
-def run(model, n=200):
+def run(model, n=600):
+    # 600 draws: enough for a leaf map of their own (fewer are integrated directly)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)
         return analyze(star(), model=model, n_samples=n, seed=3)
@@ -54,7 +55,7 @@ def test_a_clean_orbit_run_says_its_map_held_and_nothing_else():
     diag = a.monte_carlo.perihelion.diagnostics
     lines = model_lines(format_analysis(a))
     w0, w1 = diag.window_myr
-    assert lines[0] == (f"  model: orbit (method state_transition_map, 1 reference orbit, search window {w0:+.4g} … "
+    assert lines[0] == (f"  model: orbit (method leaf_maps, 1 map leaf, search window {w0:+.4g} … "
                         f"{w1:+.4g} Myr)")  # fmt: skip
     assert lines[1] == (f"  map check: against direct integration of {diag.n_checked} draws its largest error was "
                         f"{diag.map_error_au_max:.3g} au, within the tolerance of 0.5 au")  # fmt: skip
@@ -64,7 +65,7 @@ def test_a_clean_orbit_run_says_its_map_held_and_nothing_else():
 
 def test_perihelia_beyond_the_window_are_explained_with_what_to_do():
     # a window of -0.1 .. +0.1 Myr cannot hold a perihelion 0.65 Myr ahead
-    a = run(make_model("orbit", horizon_myr=0.1))
+    a = run(make_model("orbit", horizon_myr=0.1), n=200)
     x = a.monte_carlo.samples.values
     r = 1000.0 / x[:, 2]
     vt = K_KMS * np.hypot(x[:, 3], x[:, 4]) * r / 1000.0
@@ -88,15 +89,15 @@ def test_a_map_error_above_the_tolerance_and_direct_integrations_are_explained()
     # a tolerance of 1e-9 au: the check finds the map above it, and the draws predicted above it are integrated
     a = run(make_model("orbit", map_tolerance_au=1e-9))
     diag = a.monte_carlo.perihelion.diagnostics
-    n_direct = diag.fallback_samples + diag.sparse_bin_samples
-    assert diag.map_error_au_max > 1e-9 and n_direct > 0.1 * 200
+    n_direct = diag.fallback_samples + diag.sparse_samples
+    assert diag.map_error_au_max > 1e-9 and n_direct > 0.1 * 600
     lines = model_lines(format_analysis(a))
     assert lines[1] == (
         f"  map check: against direct integration of {diag.n_checked} draws its largest error was "
         f"{diag.map_error_au_max:.3g} au, above the tolerance of 1e-09 au: the map fits some draws poorly, so every "
         "draw predicted above the tolerance was integrated directly; the answers hold to the tolerance"
     )
-    assert lines[2].startswith(f"  direct integration: {n_direct:,} draws ({n_direct / 200:.1%}) were integrated "
+    assert lines[2].startswith(f"  direct integration: {n_direct:,} draws ({n_direct / 600:.1%}) were integrated "
                                "directly instead of through the map (")  # fmt: skip
     assert lines[2].endswith("this only costs time, the answers are exact; for speed use fewer draws (--samples) "
                              "or, for a weak parallax, a distance prior")  # fmt: skip
@@ -112,7 +113,7 @@ def test_method_map_keeps_mapped_answers_above_the_tolerance_and_says_so():
             ) in format_analysis(a)  # fmt: skip
     (caution,) = [c for c in a.cautions if c.code == "map-error"]
     assert caution.message.startswith(
-        f"the state-transition map's check against direct integration found errors up to "
+        f"the orbit maps' check against direct integration found errors up to "
         f"{diag.map_error_au_max:.3g} au, above its tolerance of 1e-09 au"
     )
 

@@ -234,17 +234,17 @@ def test_orbit_map_diagnostics_keep_the_old_key_order():
 
     s = star(parallax=100.0, parallax_error=0.2, radial_velocity=-20.0, radial_velocity_error=0.5)
     x = np.random.default_rng(1).multivariate_normal(s.mean, s.cov, size=300)
-    ph = OrbitModel().evaluate(x, reference=s.mean)
-    # the order the orbit model has always written (the map path)
-    head = ["model", "window_myr", "grid_nodes", "n_reference_orbits", "n_checked", "map_error_au_max",
+    ph = OrbitModel().evaluate(x)
+    # the order the orbit model writes (the map path)
+    head = ["model", "window_myr", "grid_nodes", "n_map_leaves", "n_checked", "map_error_au_max",
             "map_error_time_myr_max", "map_error_model", "map_error_coefficient_max", "integration_scheme",
-            "integration_error_au", "map_span_myr", "beyond_span_samples", "fallback_samples"]
-    tail = ["sparse_bin_samples", "method", "n_outside_window", "n_not_converged", "straight_line",
+            "integration_error_au", "map_span_myr", "multimodal_leaves", "fallback_samples"]
+    tail = ["sparse_samples", "method", "n_outside_window", "n_not_converged", "straight_line",
             "model_difference_median"]
     keys = list(ph.info)
     assert keys[: len(head)] == head and keys[-len(tail):] == tail
     d = ph.diagnostics
-    assert d.method.startswith("state_transition_map") and d.n_reference_orbits >= 1
+    assert d.method.startswith("leaf_maps") and d.n_map_leaves >= 1
     # its straight-line block is the straight line of the same rows (Matthews 1994)
     np.testing.assert_allclose(d.straight_line["distance_pc"], lma(x)[:, 1], rtol=1e-9)
 

@@ -293,7 +293,10 @@ def test_the_star_does_not_depend_on_the_units_of_its_input(values, choice, as_t
 def test_the_analysis_does_not_depend_on_the_units_of_its_input(choice):
     # same seed, same star in other units (astropy conversions): the same linear and Monte Carlo results.
     # The inputs agree to ~1e-16; d_ph = 0.09 pc of a star at 21 pc is a difference of nearly equal
-    # vectors, which amplifies that by |x| / d_ph ~ 230 (and its sigma more), hence 1e-10.
+    # vectors, which amplifies that by |x| / d_ph ~ 230 (and its sigma more), hence 1e-10 for the linear
+    # results. The Monte Carlo goes through the orbit model's leaf maps, whose cuts and training draws may
+    # differ with the last bit of the draws: the quantiles then agree to the maps' accuracy (well within the
+    # 0.5 au tolerance of the OrbitModel docstring), 1e-6 relative here.
     values = dict(
         ra=201.37, dec=-27.62, parallax=48.0, parallax_error=0.03, pmra=0.71, pmra_error=0.035, pmdec=-1.2,
         pmdec_error=0.03, radial_velocity=-31.2, radial_velocity_error=0.6, ra_error=0.02, dec_error=0.02,
@@ -305,4 +308,4 @@ def test_the_analysis_does_not_depend_on_the_units_of_its_input(choice):
     for q in pu.OUTPUTS:
         sa, sb = a.monte_carlo.summaries[q], b.monte_carlo.summaries[q]
         assert_allclose([sb.quantiles[lv] for lv in (0.05, 0.5, 0.95)], [sa.quantiles[lv] for lv in (0.05, 0.5, 0.95)],
-                        rtol=1e-10, atol=0)
+                        rtol=1e-6, atol=0)

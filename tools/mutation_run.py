@@ -64,7 +64,7 @@ GROUPS = {
         ["perierr/models/orbit/*"],
         ["tests/models/orbit/test_potentials.py", "tests/models/orbit/test_orbit_model.py",
          "tests/models/orbit/test_orbit_transition.py",
-         "tests/models/orbit/test_orbit_fixed_step.py", "tests/models/orbit/test_orbit_search.py",
+         "tests/models/orbit/test_orbit_leaves.py", "tests/models/orbit/test_orbit_search.py",
          "tests/models/orbit/test_orbit_edges.py", "tests/models/orbit/test_orbit_physics_edges.py"],
         False,
     ),

@@ -142,9 +142,9 @@ class ForwardModel(abc.ABC):
 
     Two arguments, each with one meaning:
 
-    * ``reference`` is only the point to build a linearization around (the
-      orbit model's state-transition map); without one every row is
-      evaluated on its own. It never changes what is computed, only how.
+    * ``reference`` is only a hint of the point a model may build an
+      approximation around (the models here do not need it); it never
+      changes what is computed, only how.
     * randomness enters only through :meth:`evaluate_draws`, whose explicit
       ``rng`` draws the model's nuisance parameters (the star's mass under
       focusing) for a Monte Carlo batch; :meth:`evaluate` keeps them at their

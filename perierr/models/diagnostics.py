@@ -66,8 +66,9 @@ class ModelDiagnostics:
         Orbit model: search window [Myr].
     grid_nodes : int
         Orbit model: nodes of the tabulation grid.
-    n_reference_orbits, n_checked : int
-        Orbit model: reference orbits of the state-transition map, and draws checked against direct integration.
+    n_map_leaves, n_checked : int
+        Orbit model: leaves of the draw cloud whose polynomial maps answered draws, and their check draws
+        (compared with direct integration).
     map_error_au_max, map_error_time_myr_max : float
         Largest map error found by the check, in d_ph [au] and t_ph [Myr].
     map_error_model : str
@@ -75,24 +76,22 @@ class ModelDiagnostics:
     map_error_coefficient_max : float
         Largest coefficient of that prediction.
     integration_scheme : str
-        Integrator of the reference orbits and checks.
+        Integrator of the draws integrated directly (training, checks, fallback).
     integration_error_au : float
-        Estimated integration error added to every predicted map error [au].
+        Richardson's estimate of that integration's error [au].
     map_span_myr : list of float
-        Time span the map was tabulated over [Myr].
-    beyond_span_samples : int
-        Draws whose perihelion lies beyond the map's span (integrated directly).
+        Time span the maps were fitted over [Myr].
     fallback_samples : int
         Draws integrated directly because the map could not be trusted for them.
     fallback_reason : str
         Why they were.
-    sparse_bin_samples : int
+    sparse_samples : int
         Draws in parts of the cloud too sparse for a map of their own (integrated directly).
     multimodal_leaves : int
         Orbit model: leaves of the map whose draws may have several minima of the separation in their span
         (their search starts at each draw's smallest separation on the grid).
     method : str
-        Orbit model: ``"direct"``, ``"state_transition_map"``, ``"state_transition_map+direct_fallback"`` or
+        Orbit model: ``"direct"``, ``"leaf_maps"``, ``"leaf_maps+direct_fallback"`` or
         ``"straight line beyond the potential"``.
     n_outside_window, n_not_converged : int
         Perihelia outside the search window, and searches that did not converge (both flagged).
@@ -119,7 +118,7 @@ class ModelDiagnostics:
     model: str | None = None
     window_myr: list | None = None
     grid_nodes: int | None = None
-    n_reference_orbits: int | None = None
+    n_map_leaves: int | None = None
     n_checked: int | None = None
     map_error_au_max: float | None = None
     map_error_time_myr_max: float | None = None
@@ -128,10 +127,9 @@ class ModelDiagnostics:
     integration_scheme: str | None = None
     integration_error_au: float | None = None
     map_span_myr: list | None = None
-    beyond_span_samples: int | None = None
     fallback_samples: int | None = None
     fallback_reason: str | None = None
-    sparse_bin_samples: int | None = None
+    sparse_samples: int | None = None
     multimodal_leaves: int | None = None
     method: str | None = None
     n_outside_window: int | None = None

@@ -44,8 +44,12 @@ class LinearResult:
     def corr(self) -> np.ndarray:
         """Correlation matrix of the three outputs, shape (3, 3)."""
         s = self.sigma
-        safe = np.where(s > 0, s, 1.0)
-        out = self.cov / np.outer(safe, safe)
+        safe = np.where((s > 0) & np.isfinite(s), s, 1.0)
+        with np.errstate(invalid="ignore", over="ignore"):
+            out = self.cov / np.outer(safe, safe)
+        # an infinite or undefined variance (inputs beyond the float range) leaves its correlations undefined
+        out[~np.isfinite(s), :] = np.nan
+        out[:, ~np.isfinite(s)] = np.nan
         np.fill_diagonal(out, 1.0)
         return out
 
@@ -90,6 +94,9 @@ class LinearResult:
         }
         c = self.corr
         out["correlations"] = {f"{OUTPUTS[i]}|{OUTPUTS[j]}": float(c[i, j]) for i in range(3) for j in range(i + 1, 3)}
+        if not np.all(np.isfinite(c)):
+            out["correlations"]["note"] = ("undefined (NaN) where an output's linear variance is infinite or not "
+                                           "finite (inputs beyond the float range)")
         out["jacobian"] = {q: dict(zip(OBSERVABLES, row.tolist())) for q, row in zip(OUTPUTS, self.jacobian)}
         return out
 

@@ -233,8 +233,8 @@ def _model_lines(diag, description, n) -> list:
     out = []
     if diag.method and diag.model != "straight_line":
         parts = [f"method {diag.method}"]
-        if diag.n_reference_orbits is not None:
-            parts.append(f"{diag.n_reference_orbits} reference orbit{'' if diag.n_reference_orbits == 1 else 's'}")
+        if diag.n_map_leaves is not None:
+            parts.append(f"{diag.n_map_leaves} map " + ("leaf" if diag.n_map_leaves == 1 else "leaves"))
         if diag.window_myr is not None:
             parts.append(f"search window {diag.window_myr[0]:+.4g} … {diag.window_myr[1]:+.4g} Myr")
         out.append(f"  model: {diag.model} ({', '.join(parts)})")
@@ -269,13 +269,14 @@ def _diagnostic_sentences(diag, description, n) -> list:
                 f"{head}, above the tolerance of {tolerance:g} au: the map fits some draws poorly, so every draw "
                 "predicted above the tolerance was integrated directly; the answers hold to the tolerance"
             )
-    fallback, sparse = int(diag.fallback_samples or 0), int(diag.sparse_bin_samples or 0)
+    fallback, sparse = int(diag.fallback_samples or 0), int(diag.sparse_samples or 0)
     if fallback + sparse:
         why = []
         if fallback:
             why.append(f"{fallback:,} where the map could not be trusted or did not reach")
         if sparse:
-            why.append(f"{sparse:,} in distance bins too sparse for a reference orbit")
+            why.append(f"{sparse:,} in parts of the cloud too sparse for a map of their own, or much faster than "
+                       "the rest")
         text = (
             f"direct integration: {fallback + sparse:,} draws ({(fallback + sparse) / max(n, 1):.1%}) were "
             f"integrated directly instead of through the map ({'; '.join(why)}); this only costs time, the "

@@ -35,7 +35,7 @@ from .grid import rownorm, window_and_nodes
 from .integrate import grid_minimum_start, newton_perihelion, quintic_coefficients
 from .leaves import fit_leaf, leaf_features, make_leaf, n_features, partition, scaled_offsets
 
-__all__ = ["map_perihelia", "direct_rows", "direct_rk4"]
+__all__ = ["map_perihelia", "direct_rk4"]
 
 #: Rounds of cutting leaves finer where the check does not trust the map.
 _ROUNDS = 3
@@ -52,8 +52,11 @@ _ORDER_MARGIN = 0.2
 _RK4_FRACTION = 0.1
 #: Nodes added on each side of a leaf's span, and the span's widening relative to its time.
 _SPAN_PAD_NODES, _SPAN_PAD_FRACTION = 3, 0.05
-#: A valley of the probes' separations is searched when it comes within this factor of their closest approach.
-_VALLEY_FACTOR = 2.0
+#: Leaves whose draws are integrated in one call (bounds the memory of the tabulated states).
+_BATCH_LEAVES = 16
+#: In a leaf whose draws may have several minima, a draw is trusted only in a valley region where at least
+#: this many check draws have their own global minimum.
+_MIN_CHECKS_PER_REGION = 3
 
 
 def map_perihelia(model, rel_all, t_lin_all, progress=None):
@@ -98,13 +101,19 @@ def map_perihelia(model, rel_all, t_lin_all, progress=None):
         if not pending:
             break
         leaves = [make_leaf(rel_all, rows, t_lin_all, order=order, max_k=max_k) for rows in pending]
-        results = _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng, diag)
+        results = _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng)
         radius *= 0.5
         pending = []
-        for leaf, (found, bad) in zip(leaves, results, strict=True):
+        for leaf, (found, bad, stats) in zip(leaves, results, strict=True):
             if not last and bad.sum() > _REDO_FRACTION * leaf.rows.size:
-                pending += partition(u, leaf.rows, radius, min_size)  # cut finer, and again
+                # cut finer, and again: velocity offsets now count for what they move the star by over the
+                # leaf's whole span (a leaf can hold draws whose closest approach is far from the others')
+                t_far = max(abs(stats["span"][0]), abs(stats["span"][1])) + 1.0
+                u_leaf = scaled_offsets(rel_all[leaf.rows], leaf.center, np.full(leaf.rows.size, t_far - 1.0))
+                u[leaf.rows] = u_leaf
+                pending += partition(u, leaf.rows, radius, min_size)
                 continue
+            diag.leaf(stats)  # the leaves of the final cut (not those cut finer) enter the diagnostics
             out.put(leaf.rows, *found)
             if model.method == "map":  # checked, never replaced
                 bad = np.zeros_like(bad)
@@ -122,17 +131,6 @@ def map_perihelia(model, rel_all, t_lin_all, progress=None):
         diag.small += int(rows.size)
         out.put(rows, *f_grid.direct(rel_all[rows], report, diag))
     return out.t, out.state, out.outside, out.conv, diag.to_dict(model, n)
-
-
-def direct_rows(model, rel, progress=None):
-    """Rows integrated directly with RK4 over the model's window; t, state, outside, conv and diagnostics."""
-    window = model.window()
-    grid = _Grid(model, window, float(rownorm(rel[:, 3:]).max()))
-    diag = _Diagnostics(window)
-    diag.nodes = len(grid.nodes)
-    found = grid.direct(rel, _Progress(progress, rel.shape[0]), diag)
-    return (*found, {"window_myr": list(window), "grid_nodes": diag.nodes,
-                     "integration_scheme": diag.scheme(), "integration_error_au": diag.int_err})
 
 
 class _Grid:
@@ -216,8 +214,14 @@ class _Diagnostics:
         self.window = window
         self.span_lo, self.span_hi = np.inf, -np.inf
 
-    def span(self, lo, hi):
-        self.span_lo, self.span_hi = min(self.span_lo, lo), max(self.span_hi, hi)
+    def leaf(self, stats):
+        """Count a leaf whose map is used, with its check's statistics."""
+        self.leaves += 1
+        self.checked += stats["checked"]
+        self.multimodal += int(stats["multimodal"])
+        self.err_au, self.err_t = max(self.err_au, stats["err_au"]), max(self.err_t, stats["err_t"])
+        self.coef, self.int_err = max(self.coef, stats["coef"]), max(self.int_err, stats["int_err"])
+        self.span_lo, self.span_hi = min(self.span_lo, stats["span"][0]), max(self.span_hi, stats["span"][1])
 
     @staticmethod
     def scheme() -> str:
@@ -228,7 +232,7 @@ class _Diagnostics:
         diag = {
             "window_myr": [float(self.window[0]), float(self.window[1])],
             "grid_nodes": self.nodes,
-            "n_reference_orbits": self.leaves,
+            "n_map_leaves": self.leaves,
             "n_checked": self.checked,
             "map_error_au_max": self.err_au,
             "map_error_time_myr_max": self.err_t,
@@ -240,9 +244,9 @@ class _Diagnostics:
             "integration_scheme": self.scheme(),
             "integration_error_au": self.int_err,
             "map_span_myr": [float(self.span_lo * _C), float(self.span_hi * _C)] if self.leaves else [],
-            "fallback_samples": self.fallback,
-            "sparse_bin_samples": self.small,
             "multimodal_leaves": self.multimodal,
+            "fallback_samples": self.fallback,
+            "sparse_samples": self.small,
         }
         if self.fallback or self.small:
             diag["fallback_reason"] = (
@@ -253,8 +257,19 @@ class _Diagnostics:
         return diag
 
 
-def _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng, diag):
-    """Fit and apply the maps of ``leaves``; per leaf ((t, state, outside, conv), mask of draws not trusted)."""
+def _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng):
+    """Fit and apply the maps of ``leaves``, a batch at a time (bounded memory).
+
+    Returns per leaf ((t, state, outside, conv), mask of draws not trusted, its check statistics).
+    """
+    results = []
+    for lo in range(0, len(leaves), _BATCH_LEAVES):  # loop over batches of leaves
+        results += _map_batch(model, grid, rel_all, t_lin_all, leaves[lo : lo + _BATCH_LEAVES], n_train, rng)
+    return results
+
+
+def _map_batch(model, grid, rel_all, t_lin_all, leaves, n_train, rng):
+    """:func:`_map_round` for one batch of leaves: their integrations in one call each."""
     nodes, zero = grid.nodes, grid.coarse.zero
     coords = [leaf.coordinates(rel_all[leaf.rows]) for leaf in leaves]
     picks = [_pick(x, n_train, model.n_check, rng) for x in coords]  # local (extremes, random, check)
@@ -269,14 +284,14 @@ def _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng, diag):
         spans.append(span)
         regions.append(reg)
         shifts.append(shift)
+    del p_states
     lo = np.array([min(a, zero) for a, _ in spans])
     hi = np.array([max(b, zero) for _, b in spans])
     # 2. RK4 sub-steps from each leaf's centre and farthest check draws over its span
     far = [np.vstack([leaf.center, rel_all[leaf.rows[ch[-2:]]]]) for leaf, (_, _, ch) in zip(leaves, picks,
                                                                                             strict=True)]
     sizes = [f.shape[0] for f in far]
-    s, err = grid.substeps(np.vstack(far), np.repeat(lo, sizes), np.repeat(hi, sizes))
-    diag.int_err = max(diag.int_err, err)
+    s, int_err = grid.substeps(np.vstack(far), np.repeat(lo, sizes), np.repeat(hi, sizes))
     # 3. training (extremes, random), check draws and centre of every leaf, from now over its span
     blocks = [np.vstack([rel_all[leaf.rows[np.concatenate([ex, tr])]], rel_all[leaf.rows[ch]], leaf.center])
               for leaf, (ex, tr, ch) in zip(leaves, picks, strict=True)]
@@ -287,20 +302,21 @@ def _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng, diag):
     for j, leaf in enumerate(leaves):  # loop over leaves, each vectorized over its draws
         a, b = spans[j]
         cols = slice(offsets[j], offsets[j + 1])
-        found, bad = _map_leaf(model, nodes[a : b + 1], states[a : b + 1, cols], derivs[a : b + 1, cols],
-                               t_lin_all[leaf.rows] + shifts[j], leaf, coords[j], picks[j], regions[j], diag)
+        found, bad, stats = _map_leaf(model, nodes[a : b + 1], states[a : b + 1, cols], derivs[a : b + 1, cols],
+                                      t_lin_all[leaf.rows] + shifts[j], leaf, coords[j], picks[j], regions[j])
         # a perihelion at a span edge inside the window lies beyond the span: not trusted
         t_l = found[0]
         bad |= ((t_l == nodes[a]) & (a > 0)) | ((t_l == nodes[b]) & (b < len(nodes) - 1))
-        diag.span(nodes[a], nodes[b])
-        results.append((found, bad))
+        stats.update(int_err=int_err, span=(nodes[a], nodes[b]))
+        results.append((found, bad, stats))
     return results
 
 
 def _span(nodes, states, leaf, t_lin):
     """A leaf's span (first, last node), its valley regions (None: one valley each) and its start shift.
 
-    ``states`` (m, P, 6): the leaf's probes (centre first) over the whole window. The span holds the
+    ``states`` (m, P, 6): the leaf's probes over the whole window: its centre, its extreme draws, its check
+    draws. The span holds the
     probes' valleys and the leaf's straight-line times shifted by the centre's orbit-minus-straight-line
     time, widened by ``_SPAN_PAD_NODES`` nodes and ``_SPAN_PAD_FRACTION`` of the time.
     """
@@ -310,11 +326,16 @@ def _span(nodes, states, leaf, t_lin):
     if m >= 3:
         valley[1:-1] = (d[1:-1] < d[:-2]) & (d[1:-1] <= d[2:])
         valley[0], valley[-1] = d[0] < d[1], d[-1] < d[-2]
-    # a valley matters when some probe (centre, extremes, random draws) comes there within twice the
-    # largest closest approach of the probes: a leaf draw's global minimum could lie there
+    # a valley matters when a draw of the leaf could come closer there than the probes' largest closest
+    # approach. A draw's position is, to first order, linear in its coordinates, so its projection on the
+    # centre's direction lies between the probes' (extremes and random draws) lowest and highest
+    # projections, widened by half their range; the distance is at least the projection
     lowest = np.argmin(d, axis=0)
     reach = float(d[lowest, np.arange(d.shape[1])].max())
-    relevant = np.flatnonzero(valley.any(axis=1) & (d.min(axis=1) <= _VALLEY_FACTOR * reach))
+    unit = states[:, :1, :3] / np.maximum(d[:, :1, None], 1e-300)
+    proj = np.sum(states[..., :3] * unit, axis=-1)  # (m, P)
+    bound = proj.min(axis=1) - 0.5 * (proj.max(axis=1) - proj.min(axis=1))
+    relevant = np.flatnonzero(valley.any(axis=1) & (bound <= reach))
     several = relevant.size > 1 and bool(np.any(np.diff(relevant) > 2 * _SPAN_PAD_NODES))
     w_c = leaf.center[3:]
     shift = float(nodes[lowest[0]]) + float(np.dot(leaf.center[:3], w_c)) / max(float(np.dot(w_c, w_c)), 1e-300)
@@ -339,12 +360,13 @@ def _span(nodes, states, leaf, t_lin):
     return (a, b), regions, shift
 
 
-def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions, diag):
-    """Fit and apply one leaf's map over its span; ((t, state, outside, conv) of its draws, draws not trusted).
+def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions):
+    """Fit and apply one leaf's map over its span.
 
     ``states``/``derivs`` (m, P, 6) hold the leaf's training draws, then its check draws, then its centre,
     integrated directly on ``nodes`` (the span); ``regions``: node ranges of the span where the draws'
-    searches start (None: at ``t_start``).
+    searches start (None: at ``t_start``). Returns ((t, state, outside, conv) of its draws, the mask of draws
+    not trusted, the check's statistics).
     """
     ex, tr, ch = pick
     train = np.concatenate([ex, tr])
@@ -365,7 +387,6 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions, dia
     if regions is None and _minimum_moves(leaf, x[train], t_start[train], states[:, :n_t], derivs[:, :n_t], nodes,
                                           cubics):
         regions = [(0, len(nodes) - 1)]
-    diag.multimodal += int(regions is not None)
     t_l, s_l, o_l, c_l = _apply(leaf, x, t_start, cubics, nodes, regions, coef)
     err = np.abs(rownorm(s_l[ch, :3]) - rownorm(s_c[:, :3])) * AU_PER_PC
     # error model: the largest check error, growing as the fit's remainder (score^(order+1)) beyond the
@@ -375,15 +396,28 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions, dia
     reach = float(score[ch].max(initial=0.0))
     p = leaf.order + 1
     c_leaf = floor / reach**p if reach > 0 else 0.0
-    diag.leaves += 1
-    diag.checked += int(ch.size)
-    diag.err_au = max(diag.err_au, floor)
-    diag.err_t = max(diag.err_t, float(np.max(np.abs(t_l[ch] - t_c), initial=0.0)) * _C)
-    diag.coef = max(diag.coef, c_leaf)
+    stats = {"err_au": floor, "err_t": float(np.max(np.abs(t_l[ch] - t_c), initial=0.0)) * _C, "coef": c_leaf,
+             "checked": int(ch.size), "multimodal": regions is not None}
     t_l[ch], s_l[ch], o_l[ch], c_l[ch] = t_c, s_c, o_c, c_c  # the check draws keep their direct answer
     bad = (np.maximum(floor, c_leaf * score**p) > model.map_tolerance_au) | ~c_l
+    if regions is not None and len(regions) > 1:
+        # the check speaks only for the valleys where enough of its draws have their minimum
+        region_of = _region_index(nodes, regions)
+        covered = np.bincount(region_of(t_c), minlength=len(regions)) >= _MIN_CHECKS_PER_REGION
+        bad |= ~covered[region_of(t_l)]
     bad[ch] = False
-    return (t_l, s_l, o_l, c_l), bad
+    return (t_l, s_l, o_l, c_l), bad, stats
+
+
+def _region_index(nodes, regions):
+    """``index(t)``: the valley region (node ranges of ``nodes``) holding each time, or the nearest."""
+    mids = np.array([0.5 * (nodes[a] + nodes[b]) for a, b in regions])
+    edges = 0.5 * (mids[1:] + mids[:-1])
+
+    def index(t):
+        return np.searchsorted(edges, t)
+
+    return index
 
 
 def _pick(x, n_train, n_check, rng):

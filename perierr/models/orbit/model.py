@@ -1,14 +1,12 @@
 """The orbit model: perihelion of a star integrated with the Sun in a Galactic potential.
 
-Monte Carlo samples of one star go through a second-order state-transition
-map of a few reference orbits (one per distance bin) built around the
-``reference`` point, which is checked against direct integration of the
-samples farthest from their reference; bins whose check fails, and all rows
-evaluated without a reference (no point to build the map around), are
-integrated directly (vectorized over samples). See
-:mod:`perierr.models.orbit.mapping` (the map's steps),
-:mod:`perierr.models.orbit.transition` and
-:mod:`perierr.models.orbit.integrate`.
+Many rows (the draws of a Monte Carlo run) go through polynomial maps fitted
+on leaves of the draw cloud, checked on random draws against direct
+integration, with direct integration wherever the check does not trust the map
+(:mod:`perierr.models.orbit.mapping`); few rows, and ``method="direct"``, are
+integrated directly with DOP853 (:mod:`perierr.models.orbit.integrate`). The
+Jacobian comes from the variational equations of the nominal orbit
+(:mod:`perierr.models.orbit.transition`).
 """
 
 from __future__ import annotations
@@ -27,7 +25,7 @@ from ..base import ForwardModel, Perihelion
 from ..diagnostics import ModelDiagnostics
 from .grid import rownorm, window_and_nodes
 from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
-from .mapping import direct_rows, map_perihelia
+from .mapping import map_perihelia
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
 from .sun import SolarParameters, get_solar_parameters
@@ -111,9 +109,9 @@ class OrbitModel(ForwardModel):
         random draws against direct integration, with automatic fallback to
         direct integration (fixed-step RK4) where the check does not trust the
         map (:mod:`~perierr.models.orbit.mapping`); rows fewer than
-        ``min_leaf_samples`` are integrated directly with RK4; "map": the same,
-        checked but never replaced; "direct": every row with scipy's adaptive
-        DOP853 at ``rtol``/``atol`` (the reference; slow).
+        ``min_leaf_samples`` are integrated directly like "direct"; "map": the
+        same, checked but never replaced; "direct": every row with scipy's
+        adaptive DOP853 at ``rtol``/``atol`` (the reference; slow for many rows).
     leaf_radius_pc : float, default 50
         Largest radius of a leaf of the draw cloud [pc] in the scaled offsets
         (position offset, and velocity offset times the straight-line time
@@ -277,15 +275,16 @@ class OrbitModel(ForwardModel):
         """Perihelion of every row; see :meth:`ForwardModel.evaluate`.
 
         ``diagnostics`` (a :class:`~perierr.models.diagnostics.ModelDiagnostics`;
-        ``info`` is its mapping) holds ``method`` ("state_transition_map",
-        "direct" or "state_transition_map+direct_fallback"), the window, the
-        number of reference orbits, the map errors found by the check [au, Myr],
+        ``info`` is its mapping) holds ``method`` ("leaf_maps",
+        "direct" or "leaf_maps+direct_fallback"), the window, the
+        number of map leaves, the map errors found by the check [au, Myr],
         the number of fallback samples with the reason, the number of perihelia
         outside the window (flagged), and the straight-line answer of the same
         rows (``straight_line``: arrays of time_myr, distance_pc, speed_kms) with
         the median orbit-minus-straight-line difference
-        (``model_difference_median``). Rows go through the map built around
-        ``reference``; without one they are integrated directly.
+        (``model_difference_median``). ``reference`` is accepted for the
+        interface and not needed: the maps are built from the rows themselves.
+        ``progress(done, total)`` is called as draws are done.
         """
         _, rel = self._relative(observables)
         v = rel[:, 3:]
@@ -296,24 +295,20 @@ class OrbitModel(ForwardModel):
         if far.any():
             return self._beyond_potential(observables, rel, t_lin, far, reference, progress)
         found = {"model": self.name}  # ModelDiagnostics fields, in the JSON's order
-        if self.method == "direct":
+        if self.method == "direct" or rel.shape[0] < self.min_leaf_samples:  # every row with DOP853
             window, nodes = self._grid(np.sqrt(vv.max()))
             found.update(window_myr=list(window), grid_nodes=len(nodes))
             t, state, outside, conv = self._direct(rel, nodes)
             found["method"] = "direct"
             if progress is not None:
                 progress(rel.shape[0], rel.shape[0])
-        elif rel.shape[0] < self.min_leaf_samples:  # too few rows for a map: RK4 over the window
-            t, state, outside, conv, diag = direct_rows(self, rel, progress)
-            found.update(diag)
-            found["method"] = "direct"
         else:
             t, state, outside, conv, diag = self._map(rel, t_lin, progress)
             found.update(diag)
             found["method"] = (
-                "state_transition_map+direct_fallback"
-                if diag["fallback_samples"] or diag["sparse_bin_samples"]
-                else "state_transition_map"
+                "leaf_maps+direct_fallback"
+                if diag["fallback_samples"] or diag["sparse_samples"]
+                else "leaf_maps"
             )  # fmt: skip
         x, w = state[:, :3], state[:, 3:]
         if outside.any():
@@ -366,7 +361,7 @@ class OrbitModel(ForwardModel):
         return Perihelion(t, d, v, flags=flags, diagnostics=diagnostics)
 
     def jacobian(self, point) -> np.ndarray:
-        """(3, 6) Jacobian from the first-order state-transition matrix at perihelion.
+        """(3, 6) Jacobian from the first-order variational equations (state-transition matrix) at perihelion.
 
         Uses ``s . w = 0`` at perihelion: ``dt = -(w . ds + s . dw) / (w.w + s.a)``,
         ``d d_ph = u . (ds + w dt)`` and ``d v_ph = (w/|w|) . (dw + a dt)``,
@@ -378,7 +373,7 @@ class OrbitModel(ForwardModel):
 
             return StraightLine().jacobian(obs[0])
         # the nominal perihelion over the whole window, then the variational equations around it
-        nominal = direct_rows(self, rel)
+        nominal = self._direct(rel, self._grid(np.linalg.norm(rel[0, 3:]))[1])
         t_ph = float(nominal[0][0]) * _C
         if nominal[2][0]:  # outside the window: central differences of the flagged (extrapolated) answer
             return self._jacobian_by_differences(obs[0])

@@ -8,8 +8,8 @@ Every component is a frozen dataclass evaluated on positions of shape
 pole). Potentials are in (km/s)^2, accelerations in (km/s)^2 / pc, Hessians in
 (km/s)^2 / pc^2 and third derivatives in (km/s)^2 / pc^3. Masses are in solar
 masses, with G taken from astropy. The orbit integrator needs the
-acceleration; the state-transition map needs the Hessian and the third
-derivatives (all analytic here).
+acceleration; the Jacobian's variational equations need the Hessian and the
+third derivatives (all analytic here).
 
 References
 ----------

@@ -347,8 +347,8 @@ def test_rows_beyond_the_potential_with_a_reference(reference, method):
     assert_matches_reference(ph, orbit_reference(obs[1:], (-3.0, 3.0)), rows=[1], map_path=True)
     assert ph.info["method"] == method
     assert ph.info["n_beyond_potential"] == 1
-    if method == "state_transition_map":
-        assert ph.info["n_reference_orbits"] == 1 and ph.info["fallback_samples"] == 0
+    if method == "leaf_maps":
+        assert ph.info["n_map_leaves"] == 1 and ph.info["fallback_samples"] == 0
 
 
 def test_the_limits_themselves_are_within_the_potential():
@@ -582,7 +582,7 @@ def test_perihelia_beyond_the_window_are_flagged_not_refitted(side):
     assert np.all(ref["edge"] == sign)
     assert_global_minimum_or_flagged(_rows(ph, 6), ref, (-3.0, 3.0), map_path=True)
     assert ph.flags.all() and ph.info["n_outside_window"] == draws.shape[0]
-    assert ph.info["fallback_samples"] == 0 and ph.info["method"] == "state_transition_map"
+    assert ph.info["fallback_samples"] == 0 and ph.info["method"] == "leaf_maps"
 
 
 def _rows(ph, n):

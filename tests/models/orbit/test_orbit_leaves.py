@@ -206,7 +206,7 @@ def test_check_diagnostics_count_the_leaves_and_their_check_draws():
     model = OrbitModel(leaf_radius_pc=1e3)  # one leaf
     ph = model.evaluate(_cloud(1500, 11))
     info = ph.info
-    assert info["n_reference_orbits"] == 1 and info["n_checked"] == model.n_check + 2
+    assert info["n_map_leaves"] == 1 and info["n_checked"] == model.n_check + 2
     assert info["fallback_samples"] == 0 and 0.0 <= info["map_error_au_max"] <= model.map_tolerance_au
     assert info["integration_error_au"] <= 0.1 * model.map_tolerance_au
     assert info["window_myr"] == [-100.0, 100.0]

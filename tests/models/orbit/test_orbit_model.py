@@ -183,7 +183,7 @@ def test_map_nominal_agrees_with_galpy(galpy_results):
         cloud = STARS[i] + rng.normal(size=(400, 6)) * [1e-6, 1e-6, 0.02, 0.02, 0.02, 0.2]
         cloud[0] = STARS[i]
         ph = model.evaluate(cloud)
-        assert ph.info["method"].startswith("state_transition_map")
+        assert ph.info["method"].startswith("leaf_maps")
         assert abs(ph.distance_pc[0] - dg[i]) < max(1.0 / AU_PER_PC, 1e-5 * dg[i])
         assert abs(ph.time_myr[0] - tg[i]) < 1e-5 * abs(tg[i])
 

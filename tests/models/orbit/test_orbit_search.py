@@ -232,7 +232,7 @@ def test_monte_carlo_path_finds_the_global_minimum(name):
     obs, ref = case_data(name)
     star, window, _ = CASES[name]
     ph = OrbitModel(horizon_myr=window).evaluate(np.vstack([obs, draws_for(star, seed=1, n=300)]))
-    assert ph.info["method"].startswith("state_transition_map") and ph.info["n_reference_orbits"] >= 1
+    assert ph.info["method"].startswith("leaf_maps") and ph.info["n_map_leaves"] >= 1
     assert_global_minimum_or_flagged(_first(ph, obs.shape[0]), ref, window, map_path=True)
 
 

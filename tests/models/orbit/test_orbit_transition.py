@@ -46,7 +46,7 @@ def test_map_monte_carlo_agrees_with_direct_integration(star, n, p99_au):
     nom, s = samples(star, n, seed=11)
     mapped = OrbitModel().evaluate(s)
     direct = OrbitModel(method="direct").evaluate(s)
-    assert mapped.info["method"].startswith("state_transition_map")
+    assert mapped.info["method"].startswith("leaf_maps")
     err = np.abs(mapped.distance_pc - direct.distance_pc) * AU_PER_PC
     assert np.percentile(err, 99) < p99_au
     assert np.max(np.abs(mapped.time_myr - direct.time_myr)) < 1e-5 * np.max(
@@ -70,7 +70,7 @@ def test_higher_degrees_are_needed_and_work():
     for order in (2, 4):
         ph = OrbitModel(map_order=order).evaluate(s)
         assert np.percentile(np.abs(ph.distance_pc - direct.distance_pc) * AU_PER_PC, 99) < 0.5
-        fallback[order] = ph.info["fallback_samples"] + ph.info["sparse_bin_samples"]
+        fallback[order] = ph.info["fallback_samples"] + ph.info["sparse_samples"]
     assert fallback[4] < 0.5 * fallback[2]
 
 
@@ -81,7 +81,7 @@ def test_fallback_is_automatic_and_reported():
     model = OrbitModel(map_tolerance_au=1e-12)
     ph = model.evaluate(s)
     direct = OrbitModel(method="direct").evaluate(s)
-    assert ph.info["method"] == "state_transition_map+direct_fallback"
+    assert ph.info["method"] == "leaf_maps+direct_fallback"
     assert ph.info["fallback_samples"] == s.shape[0] - model.n_check - 2
     assert "integrated directly" in ph.info["fallback_reason"]
     assert np.max(np.abs(ph.distance_pc - direct.distance_pc)) * AU_PER_PC < 1e-3
