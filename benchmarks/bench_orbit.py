@@ -401,11 +401,9 @@ def main():
                 for k, r in g_rows
             )
         )
-    here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     argv = " ".join(shlex.quote(a) for a in sys.argv[1:])
     print(f"\n{time.perf_counter() - t_start:.0f} s in all; load average {os.getloadavg()[0]:.2f} at the end. "
-          f"Reproduce:\n  cd {here} && PYTHONPATH={here} OPENBLAS_NUM_THREADS=1 {sys.executable} "
-          f"benchmarks/bench_orbit.py {argv}".rstrip())  # fmt: skip
+          f"Reproduce (from the checkout):\n  OPENBLAS_NUM_THREADS=1 python benchmarks/bench_orbit.py {argv}".rstrip())
 
 
 if __name__ == "__main__":

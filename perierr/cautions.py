@@ -331,7 +331,7 @@ def _direct_integrations(r: Reading) -> Caution | None:
         return Caution(
             "direct-integration",
             f"{n_direct:,} draws ({n_direct / size:.0%}) needed direct orbit integration: the maps of the draw "
-            "cloud could not cover its spread; this only cost time, the answers are exact",
+            "cloud could not cover its spread; this only cost time, those answers come from direct integration",
             subject="model",
         )
     return None

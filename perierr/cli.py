@@ -89,7 +89,7 @@ def _add_common_options(p: argparse.ArgumentParser, *, within_help: str, json_he
         default=None,
         metavar="H|T_MIN,T_MAX",
         help="orbit model: search the perihelion within -H .. +H Myr, or T_MIN .. T_MAX (write --horizon=-5,30 "
-        "for a negative start; default: automatic, from the straight-line times, at most 100 Myr)",
+        "for a negative start; default: -100 .. +100 Myr)",
     )
     p.add_argument("--quiet", action="store_true", help="no progress line on stderr (shown only on a terminal)")
 

@@ -95,11 +95,11 @@ def test_a_map_error_above_the_tolerance_and_direct_integrations_are_explained()
     assert lines[1] == (
         f"  map check: against direct integration of {diag.n_checked} draws its largest error was "
         f"{diag.map_error_au_max:.3g} au, above the tolerance of 1e-09 au: the map fits some draws poorly, so every "
-        "draw predicted above the tolerance was integrated directly; the answers hold to the tolerance"
+        "draw predicted above the tolerance (twice the check's largest error) was integrated directly"
     )
     assert lines[2].startswith(f"  direct integration: {n_direct:,} draws ({n_direct / 600:.1%}) were integrated "
                                "directly instead of through the map (")  # fmt: skip
-    assert lines[2].endswith("this only costs time, the answers are exact; for speed use fewer draws (--samples) "
+    assert lines[2].endswith("this only costs time, those answers come from direct integration; for speed use fewer draws (--samples) "
                              "or, for a weak parallax, a distance prior")  # fmt: skip
     assert not [w for w in a.warnings if "map's check" in w]  # "auto" kept no mapped answer above the tolerance
 

@@ -171,10 +171,9 @@ class ForwardModel(abc.ABC):
             Rows of (ra, dec, parallax, pmra, pmdec, radial_velocity) in
             internal units. Parallaxes must be positive.
         reference : array_like, shape (6,), optional
-            The point to linearize around: the nominal observables the rows
-            scatter around. Models that build a map around a nominal orbit
-            use it (without it they evaluate every row on its own); others
-            ignore it.
+            The nominal observables the rows scatter around: a hint a model
+            may build an approximation around (the models here do not need
+            it); it never changes what is computed.
         progress : callable, optional
             ``progress(done, total)``, called as rows finish (at least once,
             with ``done == total``, at the end).

@@ -267,7 +267,7 @@ def _diagnostic_sentences(diag, description, n) -> list:
         else:
             out.append(
                 f"{head}, above the tolerance of {tolerance:g} au: the map fits some draws poorly, so every draw "
-                "predicted above the tolerance was integrated directly; the answers hold to the tolerance"
+                "predicted above the tolerance (twice the check's largest error) was integrated directly"
             )
     fallback, sparse = int(diag.fallback_samples or 0), int(diag.sparse_samples or 0)
     if fallback + sparse:
@@ -279,8 +279,8 @@ def _diagnostic_sentences(diag, description, n) -> list:
                        "the rest")
         text = (
             f"direct integration: {fallback + sparse:,} draws ({(fallback + sparse) / max(n, 1):.1%}) were "
-            f"integrated directly instead of through the map ({'; '.join(why)}); this only costs time, the "
-            "answers are exact"
+            f"integrated directly instead of through the map ({'; '.join(why)}); this only costs time, those "
+            "answers come from direct integration"
         )
         if fallback + sparse > DIRECT_FRACTION * n:
             text += "; for speed use fewer draws (--samples) or, for a weak parallax, a distance prior"

@@ -10,9 +10,11 @@ coordinates). Time inside this module is in units of pc / (km/s)
 (0.9778 Myr), so positions stay in pc and velocities in km/s.
 
 The perihelion search works on a time grid: states and their time
-derivatives are tabulated at the grid nodes, the relative orbit between two
-nodes is the cubic Hermite interpolant, and Newton's method solves
-``s . w = 0`` (the minimum of |s|) to far below the grid step.
+derivatives are tabulated at the grid nodes, the relative position between
+two nodes is the quintic Hermite interpolant (positions, velocities and
+accelerations at both ends), and Newton's method solves ``s . w = 0`` (the
+minimum of |s|) to far below the grid step, from each of the few lowest
+valleys on the grid (the global minimum is the smallest of them).
 
 References
 ----------
@@ -33,6 +35,8 @@ __all__ = [
     "hermite",
     "newton_perihelion",
     "grid_minimum_start",
+    "valley_starts",
+    "global_perihelion",
     "quintic_coefficients",
 ]
 
@@ -155,6 +159,48 @@ def grid_minimum_start(nodes, states) -> np.ndarray:
     return nodes[np.argmin(d2, axis=0)]
 
 
+def valley_starts(nodes, states, count=3) -> np.ndarray:
+    """Grid times of the ``count`` lowest valleys of each star's separation, shape (count, n).
+
+    A valley: a node below both neighbours, or an end of the grid the separation falls towards. Two valleys
+    of nearly equal depth on the grid can swap once refined between the nodes, so the search refines each
+    of the lowest few (:func:`global_perihelion`). Rows with fewer valleys repeat their lowest.
+    """
+    d2 = np.sum(states[..., :3] ** 2, axis=-1)  # (m, n)
+    m = d2.shape[0]
+    valley = np.ones(d2.shape, dtype=bool)
+    if m >= 3:
+        valley[1:-1] = (d2[1:-1] < d2[:-2]) & (d2[1:-1] <= d2[2:])
+        valley[0], valley[-1] = d2[0] < d2[1], d2[-1] < d2[-2]
+    masked = np.where(valley, d2, np.inf)
+    lowest = np.argmin(d2, axis=0)
+    masked[lowest, np.arange(d2.shape[1])] = -np.inf  # the grid's global minimum always comes first
+    k = min(count, m)
+    order = np.argsort(masked, axis=0, kind="stable")[:k]  # (k, n)
+    picked = np.take_along_axis(masked, order, axis=0)
+    order = np.where(np.isfinite(picked) | (picked == -np.inf), order, lowest[None, :])
+    return nodes[order]
+
+
+def global_perihelion(nodes, node_values, starts, *, coefficients=False):
+    """Newton from each row of ``starts`` (k, n); per star the refined minimum with the smallest separation.
+
+    Returns t, state, outside, converged as :func:`newton_perihelion`.
+    """
+    best = None
+    for t0 in np.atleast_2d(starts):  # the few candidate valleys
+        res = newton_perihelion(nodes, node_values, t0, coefficients=coefficients)
+        if best is None:
+            best = [np.array(r, copy=True) for r in res]
+            continue
+        d_new = np.einsum("ij,ij->i", res[1][:, :3], res[1][:, :3])
+        d_old = np.einsum("ij,ij->i", best[1][:, :3], best[1][:, :3])
+        better = d_new < d_old
+        for b, r in zip(best, res, strict=True):
+            b[better] = r[better]
+    return tuple(best)
+
+
 def _cubic(t0, t1, p0, m0, p1, m1):
     """Power-basis coefficients of the Hermite cubic in u = (t - t0) / h."""
     h = (t1 - t0)[:, None]
@@ -181,7 +227,7 @@ def quintic_coefficients(h, p0, v0, a0, p1, v1, a1):
 
 
 def newton_perihelion(nodes, node_values, t_start, *, max_iter=30, tol=1e-7, coefficients=False):
-    """Refine the time of minimum separation with Newton's method on Hermite cubics.
+    """Refine the time of minimum separation with Newton's method on Hermite interpolants.
 
     Parameters
     ----------

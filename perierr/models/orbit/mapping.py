@@ -12,12 +12,12 @@ The steps of the orbit model's map (:class:`~perierr.models.orbit.model.OrbitMod
    every draw's global minimum, and, when a probe has more than one valley, the regions each draw's search
    must look at;
 3. integrate the leaf's training draws (extremes and random draws) and check draws from now over its span,
-   with RK4 steps halved until Richardson's estimate of their error is small (:func:`_substeps`);
+   with RK4 steps halved until Richardson's estimate of their error is small (``_Grid.substeps``);
 4. fit the leaf's polynomial map of the states at every node of its span (:func:`.leaves.fit_leaf`, the
    lowest degree the check trusts), apply it to every draw of the leaf and refine each perihelion with
    Newton's method on the quintic Hermite interpolants (:func:`.integrate.newton_perihelion`), started at the
-   straight-line time shifted by the centre's, or, for leaves with several valleys, at the draw's smallest
-   separation over the valley regions;
+   straight-line time shifted by the centre's, or, for leaves with several valleys, from each of the lowest
+   valleys of the draw's mapped separation over the whole span (the smallest refined minimum wins);
 5. compare map and direct integration on the check draws; the error, modelled per leaf as growing with the
    distance from the leaf's centre, decides: a leaf with more than a few draws it does not trust is cut
    finer and done again (up to ``_ROUNDS`` times); the draws still not trusted, and those whose search ends
@@ -32,7 +32,7 @@ from ...units import AU_PER_PC
 from ...units import MYR_PER_PC_PER_KMS as _C
 from .draws import SunOrbit, integrate_draws
 from .grid import rownorm, window_and_nodes
-from .integrate import grid_minimum_start, newton_perihelion, quintic_coefficients
+from .integrate import global_perihelion, newton_perihelion, quintic_coefficients, valley_starts
 from .leaves import fit_leaf, leaf_features, make_leaf, n_features, partition, scaled_offsets
 
 __all__ = ["map_perihelia", "direct_rk4"]
@@ -52,11 +52,12 @@ _ORDER_MARGIN = 0.2
 _RK4_FRACTION = 0.1
 #: Nodes added on each side of a leaf's span, and the span's widening relative to its time.
 _SPAN_PAD_NODES, _SPAN_PAD_FRACTION = 3, 0.05
-#: Leaves whose draws are integrated in one call (bounds the memory of the tabulated states).
-_BATCH_LEAVES = 16
-#: In a leaf whose draws may have several minima, a draw is trusted only in a valley region where at least
-#: this many check draws have their own global minimum.
-_MIN_CHECKS_PER_REGION = 3
+#: Floats of tabulated states a batch of leaves may hold (about 200 MB for states and derivatives).
+_BATCH_FLOATS = 12_500_000
+#: Floats of mapped positions a multi-valley scan may hold at once (about 100 MB).
+_SCAN_FLOATS = 12_500_000
+#: The map's predicted error is this factor times the largest error its check found.
+_ERROR_SAFETY = 2.0
 
 
 def map_perihelia(model, rel_all, t_lin_all, progress=None):
@@ -78,7 +79,7 @@ def map_perihelia(model, rel_all, t_lin_all, progress=None):
     report = _Progress(progress, n)
     order, max_k = model.map_order, 6 if model.map_order <= 2 else 4
     n_train = (3 * n_features(max_k, order)) // 2 + 8
-    min_size = max(model.min_leaf_samples, 2 * (n_train + model.n_check + 2))
+    min_size = smallest_leaf(model)
     window = model.window()
     speed_all = rownorm(rel_all[:, 3:])
     sub = speed_all[:: max(1, n // _QUANTILE_SAMPLE)]  # a systematic subsample is enough for a quantile
@@ -105,7 +106,7 @@ def map_perihelia(model, rel_all, t_lin_all, progress=None):
         radius *= 0.5
         pending = []
         for leaf, (found, bad, stats) in zip(leaves, results, strict=True):
-            if not last and bad.sum() > _REDO_FRACTION * leaf.rows.size:
+            if not last and bad.sum() > _REDO_FRACTION * leaf.rows.size and leaf.rows.size >= 2 * min_size:
                 # cut finer, and again: velocity offsets now count for what they move the star by over the
                 # leaf's whole span (a leaf can hold draws whose closest approach is far from the others')
                 t_far = max(abs(stats["span"][0]), abs(stats["span"][1])) + 1.0
@@ -182,6 +183,13 @@ def _valid_mask(nodes, n, lo, hi):
     return (idx >= np.minimum(lo, hi)[None, :]) & (idx <= np.maximum(lo, hi)[None, :])
 
 
+def smallest_leaf(model) -> int:
+    """Fewest draws a leaf map is built for (fewer rows are integrated directly)."""
+    order, max_k = model.map_order, 6 if model.map_order <= 2 else 4
+    n_train = (3 * n_features(max_k, order)) // 2 + 8
+    return max(model.min_leaf_samples, 2 * (n_train + model.n_check + 2))
+
+
 class _Results:
     """Per-draw perihelion arrays, filled leaf by leaf."""
 
@@ -236,10 +244,10 @@ class _Diagnostics:
             "n_checked": self.checked,
             "map_error_au_max": self.err_au,
             "map_error_time_myr_max": self.err_t,
-            "map_error_model": (f"error_au <= max(e_check, c * r^{model.map_order + 1}) per leaf of the cloud: "
-                                "e_check the largest error on random check draws and the two farthest from the "
-                                "centre, r a draw's scaled distance from the centre, c = e_check at the "
-                                "farthest check draw"),
+            "map_error_model": (f"error_au <= max(e, c * r^{model.map_order + 1}) per leaf of the cloud: e twice the "
+                                "largest error (in d_ph, and in position at any node) on random check draws and "
+                                "the two farthest from the centre, r a draw's largest principal coordinate, "
+                                "c = e / r_check^(order + 1) with r_check the farthest check draw's"),
             "map_error_coefficient_max": self.coef,
             "integration_scheme": self.scheme(),
             "integration_error_au": self.int_err,
@@ -262,9 +270,11 @@ def _map_round(model, grid, rel_all, t_lin_all, leaves, n_train, rng):
 
     Returns per leaf ((t, state, outside, conv), mask of draws not trusted, its check statistics).
     """
+    per_leaf = 12 * len(grid.nodes) * (n_train + model.n_check + 3)  # floats of one leaf's integrations
+    batch = max(1, _BATCH_FLOATS // per_leaf)
     results = []
-    for lo in range(0, len(leaves), _BATCH_LEAVES):  # loop over batches of leaves
-        results += _map_batch(model, grid, rel_all, t_lin_all, leaves[lo : lo + _BATCH_LEAVES], n_train, rng)
+    for lo in range(0, len(leaves), batch):  # loop over batches of leaves
+        results += _map_batch(model, grid, rel_all, t_lin_all, leaves[lo : lo + batch], n_train, rng)
     return results
 
 
@@ -384,15 +394,22 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions):
         err = np.abs(rownorm(s_m[:, :3]) - rownorm(s_c[:, :3])) * AU_PER_PC
         if err.max(initial=0.0) <= _ORDER_MARGIN * model.map_tolerance_au:
             break
-    if regions is None and _minimum_moves(leaf, x[train], t_start[train], states[:, :n_t], derivs[:, :n_t], nodes,
-                                          cubics):
-        regions = [(0, len(nodes) - 1)]
+    if regions is not None or _minimum_moves(leaf, x[train], t_start[train], states[:, :n_t], derivs[:, :n_t],
+                                             nodes, cubics):
+        regions = [(0, len(nodes) - 1)]  # several minima: every draw scans the whole span
     t_l, s_l, o_l, c_l = _apply(leaf, x, t_start, cubics, nodes, regions, coef)
     err = np.abs(rownorm(s_l[ch, :3]) - rownorm(s_c[:, :3])) * AU_PER_PC
-    # error model: the largest check error, growing as the fit's remainder (score^(order+1)) beyond the
-    # farthest check draw
+    err_nodes = 0.0
+    if regions is not None:
+        # several minima: the fit's position error at every node of the span on the check draws decides
+        # between valleys
+        pos = np.einsum("nf,fmc->mnc", leaf_features(x[ch], leaf.k, leaf.order), coef[:, :, :3])
+        err_nodes = float(np.max(rownorm((pos - states[:, n_t:-1, :3]).reshape(-1, 3)), initial=0.0)) * AU_PER_PC
+    # error model: the largest check error (at perihelion, or at any node for several minima), with a safety
+    # factor, growing as
+    # the fit's remainder (score^(order+1)) beyond the farthest check draw
     score = np.max(np.abs(x), axis=1)
-    floor = float(err.max(initial=0.0))
+    floor = _ERROR_SAFETY * max(float(err.max(initial=0.0)), err_nodes)
     reach = float(score[ch].max(initial=0.0))
     p = leaf.order + 1
     c_leaf = floor / reach**p if reach > 0 else 0.0
@@ -400,24 +417,8 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions):
              "checked": int(ch.size), "multimodal": regions is not None}
     t_l[ch], s_l[ch], o_l[ch], c_l[ch] = t_c, s_c, o_c, c_c  # the check draws keep their direct answer
     bad = (np.maximum(floor, c_leaf * score**p) > model.map_tolerance_au) | ~c_l
-    if regions is not None and len(regions) > 1:
-        # the check speaks only for the valleys where enough of its draws have their minimum
-        region_of = _region_index(nodes, regions)
-        covered = np.bincount(region_of(t_c), minlength=len(regions)) >= _MIN_CHECKS_PER_REGION
-        bad |= ~covered[region_of(t_l)]
     bad[ch] = False
     return (t_l, s_l, o_l, c_l), bad, stats
-
-
-def _region_index(nodes, regions):
-    """``index(t)``: the valley region (node ranges of ``nodes``) holding each time, or the nearest."""
-    mids = np.array([0.5 * (nodes[a] + nodes[b]) for a, b in regions])
-    edges = 0.5 * (mids[1:] + mids[:-1])
-
-    def index(t):
-        return np.searchsorted(edges, t)
-
-    return index
 
 
 def _pick(x, n_train, n_check, rng):
@@ -473,26 +474,24 @@ def _cubic_source(cubics, feats):
 def _apply(leaf, x, t_start, cubics, nodes, regions, coef):
     """Perihelia of draws with principal coordinates ``x`` through the leaf's map, in chunks.
 
-    Newton starts at ``t_start`` or, with valley ``regions`` (node ranges), at each draw's smallest
-    separation over the nodes of those regions (leaves whose draws may have several minima).
-    Returns t, state, outside, conv.
+    Newton starts at ``t_start`` or, with valley ``regions`` (leaves whose draws may have several minima),
+    from each of the lowest valleys of the draw's mapped separation over every node of the span (the global
+    minimum is the smallest). Returns t, state, outside, conv.
     """
     n = x.shape[0]
     t, state = np.empty(n), np.empty((n, 6))
     outside, conv = np.empty(n, dtype=bool), np.empty(n, dtype=bool)
-    if regions is not None:
-        at = np.unique(np.concatenate([np.arange(a, b + 1) for a, b in regions]))
-        pos_coef = np.ascontiguousarray(coef[:, at, :3])
-    for lo in range(0, n, _APPLY_CHUNK):  # loop over chunks of draws, bounding the features' memory
-        sl = slice(lo, min(n, lo + _APPLY_CHUNK))
+    chunk = _APPLY_CHUNK if regions is None else max(256, _SCAN_FLOATS // (3 * len(nodes)))
+    for lo in range(0, n, chunk):  # loop over chunks of draws, bounding the features' memory
+        sl = slice(lo, min(n, lo + chunk))
         feats = leaf_features(x[sl], leaf.k, leaf.order)
+        source = _cubic_source(cubics, feats)
         if regions is not None:
-            t0 = grid_minimum_start(nodes[at], np.einsum("nf,fmc->mnc", feats, pos_coef))
+            starts = valley_starts(nodes, np.einsum("nf,fmc->mnc", feats, coef[:, :, :3]))
+            t[sl], state[sl], outside[sl], conv[sl] = global_perihelion(nodes, source, starts, coefficients=True)
         else:
             t0 = np.clip(t_start[sl], nodes[0], nodes[-1])
-        t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(
-            nodes, _cubic_source(cubics, feats), t0, coefficients=True
-        )
+            t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, source, t0, coefficients=True)
     return t, state, outside, conv
 
 
@@ -507,12 +506,12 @@ def _minimum_moves(leaf, x, t_start, st, de, nodes, cubics):
 
 
 def _direct_perihelia(nodes, states, derivs):
-    """Perihelia from directly integrated states and derivatives (m, n, 6): global grid minimum, then Newton."""
+    """Perihelia from directly integrated states and derivatives (m, n, 6): Newton from the lowest valleys."""
 
     def values(k, rows):
         return states[k, rows], derivs[k, rows], states[k + 1, rows], derivs[k + 1, rows]
 
-    return newton_perihelion(nodes, values, grid_minimum_start(nodes, states))
+    return global_perihelion(nodes, values, valley_starts(nodes, states))
 
 
 def direct_rk4(track, rel, report=None):

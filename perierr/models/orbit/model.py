@@ -24,8 +24,15 @@ from ...units import PARALLAX
 from ..base import ForwardModel, Perihelion
 from ..diagnostics import ModelDiagnostics
 from .grid import rownorm, window_and_nodes
-from .integrate import grid_minimum_start, hermite, integrate_relative, newton_perihelion
-from .mapping import map_perihelia
+from .integrate import (
+    global_perihelion,
+    grid_minimum_start,
+    hermite,
+    integrate_relative,
+    newton_perihelion,
+    valley_starts,
+)
+from .mapping import map_perihelia, smallest_leaf
 from .potentials import Potential
 from .presets import PotentialPreset, get_potential
 from .sun import SolarParameters, get_solar_parameters
@@ -262,8 +269,7 @@ class OrbitModel(ForwardModel):
             def values(k, rows, states=states, derivs=derivs):
                 return states[k, rows], derivs[k, rows], states[k + 1, rows], derivs[k + 1, rows]
 
-            t0 = grid_minimum_start(nodes, states)
-            t[sl], state[sl], outside[sl], conv[sl] = newton_perihelion(nodes, values, t0)
+            t[sl], state[sl], outside[sl], conv[sl] = global_perihelion(nodes, values, valley_starts(nodes, states))
         return t, state, outside, conv
 
     def _map(self, rel_all, t_lin_all, progress=None):
@@ -295,7 +301,7 @@ class OrbitModel(ForwardModel):
         if far.any():
             return self._beyond_potential(observables, rel, t_lin, far, reference, progress)
         found = {"model": self.name}  # ModelDiagnostics fields, in the JSON's order
-        if self.method == "direct" or rel.shape[0] < self.min_leaf_samples:  # every row with DOP853
+        if self.method == "direct" or rel.shape[0] < smallest_leaf(self):  # every row with DOP853
             window, nodes = self._grid(np.sqrt(vv.max()))
             found.update(window_myr=list(window), grid_nodes=len(nodes))
             t, state, outside, conv = self._direct(rel, nodes)
@@ -349,7 +355,7 @@ class OrbitModel(ForwardModel):
             if ref_rel is not None and (rownorm(ref_rel[:, :3])[0] > MAX_DISTANCE_PC
                                         or rownorm(ref_rel[:, 3:])[0] > MAX_SPEED_KMS):
                 near_ref = None
-            inner = self.evaluate(obs[~far], reference=near_ref, progress=progress)
+            inner = self.evaluate(obs[~far], reference=near_ref)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
             flags[~far] = inner.flags if inner.flags is not None else False
             # the straight-line block has one entry per row: the far rows' answer is the straight line itself
@@ -358,6 +364,8 @@ class OrbitModel(ForwardModel):
                 straight[key][~far] = arr
             diagnostics = replace(inner.diagnostics, straight_line=straight)
         diagnostics = replace(diagnostics, n_beyond_potential=int(far.sum()), max_distance_pc=MAX_DISTANCE_PC)
+        if progress is not None:
+            progress(obs.shape[0], obs.shape[0])
         return Perihelion(t, d, v, flags=flags, diagnostics=diagnostics)
 
     def jacobian(self, point) -> np.ndarray:

@@ -210,3 +210,51 @@ def test_check_diagnostics_count_the_leaves_and_their_check_draws():
     assert info["fallback_samples"] == 0 and 0.0 <= info["map_error_au_max"] <= model.map_tolerance_au
     assert info["integration_error_au"] <= 0.1 * model.map_tolerance_au
     assert info["window_myr"] == [-100.0, 100.0]
+
+
+# ------------------------------------------------------------------------- cases an independent review found
+def _reference(rows):
+    """scipy DOP853 at rtol 1e-12 over the same window, every valley refined (the converged answer)."""
+    return OrbitModel(method="direct", rtol=1e-12, atol=1e-12).evaluate(rows)
+
+
+def test_two_nearly_equal_valleys_give_the_deeper_one():
+    # an invented slow star whose separation has two valleys 1.4e-3 pc apart in depth (24.4 and 55.2 Myr):
+    # every method refines both and keeps the deeper, as a 50 times finer grid does
+    row = np.array([[60.0, 40.0, 10.0, 0.5, 0.2, -2.0084]])
+    fine = OrbitModel(method="direct", grid_step_myr=0.02).evaluate(row)
+    assert fine.time_myr[0] == pytest.approx(24.37, abs=0.01)
+    for model in (OrbitModel(), OrbitModel(method="direct")):
+        ph = model.evaluate(row)
+        assert not ph.flags[0] and abs(ph.distance_pc[0] - fine.distance_pc[0]) * AU_PER_PC < 0.01
+
+
+@pytest.mark.slow  # 1,200 draws integrated by DOP853 as the reference
+@pytest.mark.parametrize(
+    ("mean", "sigma", "seed"),
+    [
+        # invented slow stars with wide errors: leaves with several valleys, and a fit whose worst errors lie
+        # inside the leaf
+        ((166.977, -44.498, 21.158, -0.0700, 1.3504, -1.5862), (1e-7, 1e-7, 4.419, 0.408, 0.809, 1.018), 6),
+        ((100.0, 10.0, 5.0, 0.5, 0.5, -2.0), (1e-7, 1e-7, 1.0, 0.5, 0.5, 2.0), 1),
+    ],
+)
+def test_slow_wide_clouds_stay_within_the_tolerance_unflagged(mean, sigma, seed):
+    # against converged DOP853 (scipy): no unflagged draw beyond the 0.5 au tolerance, wherever its global
+    # minimum lies in the +-100 Myr window
+    rows = np.asarray(mean) + np.random.default_rng(seed).normal(size=(1200, 6)) * np.asarray(sigma)
+    rows = rows[rows[:, 2] > 0]
+    ph, ref = OrbitModel().evaluate(rows), _reference(rows)
+    ok = ~(ph.flags | ref.flags)
+    assert ok.mean() > 0.95
+    assert np.max(np.abs(ph.distance_pc[ok] - ref.distance_pc[ok])) * AU_PER_PC < 0.5
+
+
+def test_progress_reaches_the_total_with_rows_beyond_the_potential():
+    # ForwardModel.evaluate docstring: the last call has done == total, also when some rows (here 5, at
+    # 2e4 km/s) get the straight line beyond the potential
+    rows = _cloud(400, 12)
+    rows[:5, 5] = 2e4
+    calls = []
+    OrbitModel().evaluate(rows, progress=lambda done, total: calls.append((done, total)))
+    assert calls[-1] == (400, 400)

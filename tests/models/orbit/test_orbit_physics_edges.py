@@ -338,33 +338,6 @@ def test_variational_tables_of_harmonic_motion_match_the_closed_form():
     assert no_extra.extra is None
 
 
-def _rk4_matrix(h):
-    """Classical RK4 on y' = A y: y1 = R(hA) y0 with R(z) = 1 + z + z^2/2 + z^3/6 + z^4/24 (Hairer et al. 1993,
-    Sect. IV.2), and the embedded estimate h/6 (k4 - f(y1)) = ((hA)^4/72 - (hA)^5/144) y0 (its definition in
-    fixed_step.py worked out for a linear system)."""
-    z = h * _A
-    z2 = z @ z
-    z4 = z2 @ z2
-    return np.eye(6) + z + z2 / 2 + z2 @ z / 6 + z4 / 24, z4 / 72 - z4 @ z / 144
-
-
-def _rk4_expected(y0, nodes, sub):
-    """States on the nodes and summed |error estimate| per component for RK4 with `sub` steps per interval."""
-    zero = int(np.flatnonzero(nodes == 0.0)[0])
-    out = np.empty((len(nodes), 6))
-    out[zero] = y0
-    err = np.zeros(6)
-    for sel in (range(zero + 1, len(nodes)), range(zero - 1, -1, -1)):
-        y, t = y0, 0.0
-        for i in sel:
-            rmat, emat = _rk4_matrix((nodes[i] - t) / sub)
-            for _ in range(sub):
-                err += np.abs(emat @ y)
-                y = rmat @ y
-            out[i], t = y, nodes[i]
-    return out, err
-
-
 def test_derivatives_keep_batch_shapes():
     # documented shapes: the Sun's derivative is (..., 6) = (velocity, acceleration) for a batch of Suns too
     pot = _Harmonic(OMEGA)
