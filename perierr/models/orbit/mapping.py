@@ -409,11 +409,12 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions):
     # factor, growing as
     # the fit's remainder (score^(order+1)) beyond the farthest check draw
     score = np.max(np.abs(x), axis=1)
-    floor = _ERROR_SAFETY * max(float(err.max(initial=0.0)), err_nodes)
+    found_err = max(float(err.max(initial=0.0)), err_nodes)  # what the check found (reported)
+    floor = _ERROR_SAFETY * found_err
     reach = float(score[ch].max(initial=0.0))
     p = leaf.order + 1
     c_leaf = floor / reach**p if reach > 0 else 0.0
-    stats = {"err_au": floor, "err_t": float(np.max(np.abs(t_l[ch] - t_c), initial=0.0)) * _C, "coef": c_leaf,
+    stats = {"err_au": found_err, "err_t": float(np.max(np.abs(t_l[ch] - t_c), initial=0.0)) * _C, "coef": c_leaf,
              "checked": int(ch.size), "multimodal": regions is not None}
     t_l[ch], s_l[ch], o_l[ch], c_l[ch] = t_c, s_c, o_c, c_c  # the check draws keep their direct answer
     bad = (np.maximum(floor, c_leaf * score**p) > model.map_tolerance_au) | ~c_l
