@@ -99,8 +99,8 @@ def test_a_map_error_above_the_tolerance_and_direct_integrations_are_explained()
     )
     assert lines[2].startswith(f"  direct integration: {n_direct:,} draws ({n_direct / 600:.1%}) were integrated "
                                "directly instead of through the map (")  # fmt: skip
-    assert lines[2].endswith("this only costs time, those answers come from direct integration; for speed use fewer draws (--samples) "
-                             "or, for a weak parallax, a distance prior")  # fmt: skip
+    assert lines[2].endswith("this only costs time, those answers come from direct integration; for speed use "
+                             "fewer draws (--samples) or, for a weak parallax, a distance prior")  # fmt: skip
     assert not [w for w in a.warnings if "map's check" in w]  # "auto" kept no mapped answer above the tolerance
 
 
