@@ -156,13 +156,16 @@ class _Grid:
         The error of ``s`` sub-steps is estimated from the probes integrated with ``s`` and ``2 s``:
         ``|y_s - y_2s| * 16 / 15`` (RK4 is fourth order). Returns (s, estimate [au]).
         """
-        st_c, _ = integrate_draws(self.track(1), probes, lo, hi)
-        valid = _valid_mask(self.nodes, probes.shape[0], lo, hi)
+        valid = _valid_mask(self.nodes, probes.shape[0], lo, hi)[..., None]  # entries integrated to
+
+        def positions(track):
+            # entries outside each probe's range are left undefined by integrate_draws: zero them
+            return np.where(valid, integrate_draws(track, probes, lo, hi)[0][..., :3], 0.0)
+
+        st_c = positions(self.track(1))
         for s in (1, 2, 4, 8):
-            st_f, _ = integrate_draws(self.track(2 * s), probes, lo, hi)
-            diff = np.where(valid, rownorm(st_c[..., :3].reshape(-1, 3) - st_f[..., :3].reshape(-1, 3)).reshape(
-                valid.shape), 0.0)
-            err = float(diff.max(initial=0.0)) * AU_PER_PC * 16.0 / 15.0
+            st_f = positions(self.track(2 * s))
+            err = float(np.max(rownorm((st_c - st_f).reshape(-1, 3)), initial=0.0)) * AU_PER_PC * 16.0 / 15.0
             if err <= self.tolerance_au or s == 8:
                 return s, err
             st_c = st_f
@@ -176,11 +179,12 @@ class _Grid:
 
 
 def _valid_mask(nodes, n, lo, hi):
-    """(m, n) True at the nodes each draw was integrated to."""
-    idx = np.arange(len(nodes))[:, None]
+    """(m, n) True at the nodes each draw was integrated to (from now to ``lo`` and to ``hi``)."""
     if lo is None:
         return np.ones((len(nodes), n), dtype=bool)
-    return (idx >= np.minimum(lo, hi)[None, :]) & (idx <= np.maximum(lo, hi)[None, :])
+    idx = np.arange(len(nodes))[:, None]
+    zero = int(np.flatnonzero(nodes == 0.0)[0])
+    return (idx >= np.minimum(lo, zero)[None, :]) & (idx <= np.maximum(hi, zero)[None, :])
 
 
 def smallest_leaf(model) -> int:
