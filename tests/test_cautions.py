@@ -22,6 +22,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 from scipy import integrate, optimize, stats
+from straight_line_reference import InfiniteDistance, lma
 
 from perierr import ObservedStar, analyze
 from perierr.errors import PerierrWarning
@@ -37,19 +38,6 @@ DEFAULT_LEVELS = (0.05, 0.16, 0.5, 0.84, 0.95)
 
 
 # ---------------------------------------------------------------------------------------------- helpers
-def lma(values):
-    """Straight-line perihelion (t [Myr], d [pc], v [km/s]) of observables (n, 6).
-
-    Linear motion approximation, Matthews 1994 (QJRAS 35, 1): t = -r v_r / v^2, d = r v_t / v, v = |v|,
-    with r = 1000 / parallax and v_t = k mu r / 1000 (k from astropy).
-    """
-    x = np.atleast_2d(np.asarray(values, dtype=float))
-    r = 1000.0 / x[:, 2]
-    vt = K_KMS * np.hypot(x[:, 3], x[:, 4]) * r / 1000.0
-    v = np.hypot(x[:, 5], vt)
-    return np.stack([-C_MYR * r * x[:, 5] / v**2, r * vt / v, v], axis=-1)
-
-
 def linear_sigma(star):
     """First-order sigma of (t, d, v): central finite differences of :func:`lma`, then J Sigma J^T."""
     mean, sig = np.array(star.mean), np.sqrt(np.diag(star.cov))
@@ -155,25 +143,6 @@ class WithInfo(ForwardModel):
         out = lma(observables)
         info = {"model": self.name, **(self.extra if reference is not None else {})}
         return Perihelion(out[:, 0], out[:, 1], out[:, 2], info=info)
-
-
-class InfiniteDistance(ForwardModel):
-    """Test model: the straight line, but the first ``fraction`` of the Monte Carlo draws never come close (inf)."""
-
-    name = "infinite_distance_test"
-
-    def __init__(self, fraction):
-        self.fraction = fraction
-
-    def evaluate(self, observables, *, reference=None):
-        out = lma(observables)
-        d = out[:, 1].copy()
-        if reference is not None:
-            d[: int(self.fraction * d.size)] = np.inf
-        return Perihelion(out[:, 0], d, out[:, 2], info={"model": self.name})
-
-    def jacobian(self, point):
-        return StraightLine().jacobian(point)
 
 
 # ------------------------------------------------------------------------------------------ clean star

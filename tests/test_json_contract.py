@@ -25,6 +25,7 @@ import numpy as np
 import pytest
 from brute_force import mean_over_orderings
 from scipy import stats
+from straight_line_reference import lma
 
 from perierr import ObservedStar, analyze, read_star_file
 from perierr.cli import main
@@ -82,15 +83,6 @@ def run(tmp_path_factory):
     assert [str(w.message).split(":")[0] for w in caught] == ["the Galactic tide matters for this star"]
     api_doc = json.loads(to_json(result.to_dict()))
     return result, api_doc, cli_doc
-
-
-def lma(values):
-    """Straight-line (t [Myr], d [pc], v [km/s]) of observables (n, 6): t = -r v_r / v^2, d = r v_t / v."""
-    x = np.atleast_2d(np.asarray(values, dtype=float))
-    r = 1000.0 / x[:, 2]
-    vt = K_KMS * np.hypot(x[:, 3], x[:, 4]) * r / 1000.0
-    v = np.hypot(x[:, 5], vt)
-    return np.stack([-C_MYR * r * x[:, 5] / v**2, r * vt / v, v], axis=-1)
 
 
 def corr_pair(name):

@@ -21,6 +21,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 from orbit_reference import perihelia
+from straight_line_reference import InfiniteDistance, lma
 
 from perierr import ObservedStar, analyze, read_star_file
 from perierr.cautions import MODEL_MEDIAN_FRACTION, MODEL_PROBABILITY_CHANGE, reading_cautions
@@ -35,15 +36,6 @@ K_KMS = (1.0 * u.au / u.yr).to_value(u.km / u.s)  # astropy: 1 au/yr in km/s
 C_MYR = (1.0 * u.pc / (u.km / u.s)).to_value(u.Myr)  # astropy: Myr per pc/(km/s)
 AU = (1.0 * u.pc).to_value(u.au)
 N, SEED = 1000, 1
-
-
-def lma(values):
-    """Straight-line (t [Myr], d [pc], v [km/s]) of observables (n, 6): t = -r v_r / v^2, d = r v_t / v."""
-    x = np.atleast_2d(np.asarray(values, dtype=float))
-    r = 1000.0 / x[:, 2]
-    vt = K_KMS * np.hypot(x[:, 3], x[:, 4]) * r / 1000.0
-    v = np.hypot(x[:, 5], vt)
-    return np.stack([-C_MYR * r * x[:, 5] / v**2, r * vt / v, v], axis=-1)
 
 
 def hazen(x, p):
@@ -214,25 +206,6 @@ class Shifted(ForwardModel):
         return StraightLine().jacobian(point)
 
 
-class NeverClose(ForwardModel):
-    """Test model: the straight line, but the first ``fraction`` of the Monte Carlo draws never come close (inf)."""
-
-    name = "never_close_test"
-
-    def __init__(self, fraction):
-        self.fraction = fraction
-
-    def evaluate(self, observables, *, reference=None):
-        out = lma(observables)
-        d = out[:, 1].copy()
-        if reference is not None:
-            d[: int(self.fraction * d.size)] = np.inf
-        return Perihelion(out[:, 0], d, out[:, 2], info={"model": self.name})
-
-    def jacobian(self, point):
-        return StraightLine().jacobian(point)
-
-
 @pytest.mark.parametrize("fraction, fires", [(0.26, True), (0.24, False)])
 def test_median_threshold(fraction, fires):
     # a constant shift of d_ph by `fraction` half-widths: it moves the median by exactly that, not the width;
@@ -256,7 +229,7 @@ def test_probability_threshold(fraction, fires):
     # line passes within 1 pc), while the median moves to the straight line's 0.5 / (1 - fraction) quantile,
     # below the median threshold
     star = fast_star()
-    a = run(star, model=NeverClose(fraction), thresholds=("1 pc",))
+    a = run(star, model=InfiniteDistance(fraction), thresholds=("1 pc",))
     d = lma(a.monte_carlo.samples.values)[:, 1]
     assert np.all(d < 1.0)
     moved = abs(hazen(d, 0.5 / (1 - fraction)) - hazen(d, 0.5)) / half_width(d)
@@ -266,7 +239,7 @@ def test_probability_threshold(fraction, fires):
     if fires:
         assert found[0].endswith(
             f"P(d_ph < 1 pc) = 100.0% instead of {100 * (1 - fraction):.1f}%. The Galactic tide matters here: "
-            "quote the never_close_test model's answer, not a straight-line one (screens included)"
+            "quote the infinite_distance_test model's answer, not a straight-line one (screens included)"
         )
         assert "median d_ph" not in found[0]
 
