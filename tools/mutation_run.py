@@ -72,7 +72,8 @@ GROUPS = {
         ["perierr/priors/*", "perierr/sampling/reweight.py", "perierr/sampling/mcmc.py",
          "perierr/sampling/posterior.py", "perierr/calibration.py"],
         ["tests/priors/test_priors_densities.py", "tests/sampling/test_priors_sampling.py", "tests/test_calibration.py",
-         "tests/test_priors_cli.py", "tests/priors/test_priors_edges.py"],
+         "tests/test_priors_cli.py", "tests/priors/test_priors_edges.py", "tests/priors/test_priors_mutation_edges.py",
+         "tests/sampling/test_sampling_mutation_edges.py", "tests/test_calibration_mutation_edges.py"],
         True,
     ),
     "plan_update": (
@@ -84,7 +85,8 @@ GROUPS = {
     "units": (
         ["perierr/units.py"],
         ["tests/test_units.py", "tests/star/test_star.py", "tests/test_frames.py", "tests/plan/test_plan_update.py",
-         "tests/plan/test_plan_update_edges.py", "tests/test_calibration.py", "tests/test_units_mutation_edges.py"],
+         "tests/plan/test_plan_update_edges.py", "tests/test_calibration.py", "tests/test_units_mutation_edges.py",
+         "tests/test_units_declination_edges.py"],
         False,
     ),
 }
