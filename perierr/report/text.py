@@ -175,32 +175,31 @@ def _budget_lines(b) -> list:
 def _comparison_lines(comparison) -> list:
     """The comparison with straight-line motion on the same draws, probabilities included."""
     lines = ["Against straight-line motion on the same draws (this model minus straight line)"]
-    for q in OUTPUTS:
-        c = comparison[q]
-        lines.append(f"  {OUTPUT_TITLES[q]:<15} median {c['median']:.6g}, difference {c['difference_of_medians']:+.4g}")
-        if q == "distance_pc":
-            au = AU_PER_PC
-            lines.append(
-                f"  {'distance [au]':<15} median {c['median'] * au:,.0f}, "
-                f"difference {c['difference_of_medians'] * au:+,.0f}"
-            )
+    lines += _difference_lines(comparison, "median", "difference_of_medians")
     for t in comparison.get("thresholds", ()):
         label, p, dp = f"P(< {t['label']})", t["probability"], 100 * t["difference"]
         lines.append(f"  {label:<15} {p:.2%} on straight lines, difference {dp:+.2f} points")
     return lines
 
 
+def _difference_lines(comparison, value_key, difference_key) -> list:
+    """One line per output (and d_ph in au): its value under ``value_key`` and the difference beside it."""
+    lines = []
+    for q in OUTPUTS:
+        c = comparison[q]
+        lines.append(f"  {OUTPUT_TITLES[q]:<15} {value_key} {c[value_key]:.6g}, difference {c[difference_key]:+.4g}")
+        if q == "distance_pc":
+            lines.append(
+                f"  {'distance [au]':<15} {value_key} {c[value_key] * AU_PER_PC:,.0f}, "
+                f"difference {c[difference_key] * AU_PER_PC:+,.0f}"
+            )
+    return lines
+
+
 def _orbit_comparison_lines(comparison) -> list:
     """The orbit model at the nominal inputs beside a straight-line run: what the Galactic tide changes."""
     lines = ["The orbit model at the nominal inputs (what the Galactic tide changes; orbit minus straight line)"]
-    for q in OUTPUTS:
-        c = comparison[q]
-        lines.append(f"  {OUTPUT_TITLES[q]:<15} orbit {c['orbit']:.6g}, difference {c['difference']:+.4g}")
-        if q == "distance_pc":
-            lines.append(
-                f"  {'distance [au]':<15} orbit {c['orbit'] * AU_PER_PC:,.0f}, "
-                f"difference {c['difference'] * AU_PER_PC:+,.0f}"
-            )
+    lines += _difference_lines(comparison, "orbit", "difference")
     if comparison.get("flagged"):
         lines.append("  (the orbit model flagged this answer: its perihelion lies outside its search window)")
     return lines

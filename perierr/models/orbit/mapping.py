@@ -393,15 +393,15 @@ def _map_leaf(model, nodes, states, derivs, t_start, leaf, x, pick, regions):
     for order in range(1, model.map_order + 1):  # loop over the few degrees
         leaf.order = order
         coef = fit_leaf(leaf, x[train], targets).reshape(-1, len(nodes), 12)
-        cubics = _interval_cubics(coef, nodes)
-        t_m, s_m, _, _ = _apply(leaf, x[ch], t_start[ch], cubics, nodes, regions, coef)
+        quintics = _interval_quintics(coef, nodes)
+        t_m, s_m, _, _ = _apply(leaf, x[ch], t_start[ch], quintics, nodes, regions, coef)
         err = np.abs(rownorm(s_m[:, :3]) - rownorm(s_c[:, :3])) * AU_PER_PC
         if err.max(initial=0.0) <= _ORDER_MARGIN * model.map_tolerance_au:
             break
     if regions is not None or _minimum_moves(leaf, x[train], t_start[train], states[:, :n_t], derivs[:, :n_t],
-                                             nodes, cubics):
+                                             nodes, quintics):
         regions = [(0, len(nodes) - 1)]  # several minima: every draw scans the whole span
-    t_l, s_l, o_l, c_l = _apply(leaf, x, t_start, cubics, nodes, regions, coef)
+    t_l, s_l, o_l, c_l = _apply(leaf, x, t_start, quintics, nodes, regions, coef)
     err = np.abs(rownorm(s_l[ch, :3]) - rownorm(s_c[:, :3])) * AU_PER_PC
     err_nodes = 0.0
     if regions is not None:
@@ -447,7 +447,7 @@ def _pick(x, n_train, n_check, rng):
     return extremes, train, check
 
 
-def _interval_cubics(coef, nodes):
+def _interval_quintics(coef, nodes):
     """Per interval, the (18, F) map from features to the quintic Hermite coefficients (c0..c5) of the position.
 
     ``coef`` (F, m, 12) maps features to position, velocity, velocity and acceleration at each node.
@@ -459,24 +459,24 @@ def _interval_cubics(coef, nodes):
     return np.ascontiguousarray(np.transpose(c, (1, 2, 0)))  # (m-1, 18, F)
 
 
-def _cubic_source(cubics, feats):
+def _quintic_source(quintics, feats):
     """``cubic(k, rows) -> (18, len(rows))`` for :func:`newton_perihelion` (``coefficients=True``)."""
     feats_t = np.ascontiguousarray(feats.T)
 
     def cubic(k, rows):
-        out = np.empty((cubics.shape[1], rows.size))
+        out = np.empty((quintics.shape[1], rows.size))
         order = np.argsort(k, kind="stable")
         sk = k[order]
         cuts = np.flatnonzero(np.diff(sk)) + 1
         for lo, hi in zip(np.r_[0, cuts], np.r_[cuts, sk.size], strict=True):  # loop over grid intervals
             sel = order[lo:hi]
-            out[:, sel] = cubics[sk[lo]] @ feats_t[:, rows[sel]]
+            out[:, sel] = quintics[sk[lo]] @ feats_t[:, rows[sel]]
         return out
 
     return cubic
 
 
-def _apply(leaf, x, t_start, cubics, nodes, regions, coef):
+def _apply(leaf, x, t_start, quintics, nodes, regions, coef):
     """Perihelia of draws with principal coordinates ``x`` through the leaf's map, in chunks.
 
     Newton starts at ``t_start`` or, with valley ``regions`` (leaves whose draws may have several minima),
@@ -490,7 +490,7 @@ def _apply(leaf, x, t_start, cubics, nodes, regions, coef):
     for lo in range(0, n, chunk):  # loop over chunks of draws, bounding the features' memory
         sl = slice(lo, min(n, lo + chunk))
         feats = leaf_features(x[sl], leaf.k, leaf.order)
-        source = _cubic_source(cubics, feats)
+        source = _quintic_source(quintics, feats)
         if regions is not None:
             starts = valley_starts(nodes, np.einsum("nf,fmc->mnc", feats, coef[:, :, :3]))
             t[sl], state[sl], outside[sl], conv[sl] = global_perihelion(nodes, source, starts, coefficients=True)
@@ -500,12 +500,12 @@ def _apply(leaf, x, t_start, cubics, nodes, regions, coef):
     return t, state, outside, conv
 
 
-def _minimum_moves(leaf, x, t_start, st, de, nodes, cubics):
+def _minimum_moves(leaf, x, t_start, st, de, nodes, quintics):
     """True when Newton from the usual start misses the grid's global minimum for a training draw."""
     t_dir, _, _, _ = _direct_perihelia(nodes, st, de)
     feats = leaf_features(x, leaf.k, leaf.order)
     t0 = np.clip(t_start, nodes[0], nodes[-1])
-    t_map, _, _, _ = newton_perihelion(nodes, _cubic_source(cubics, feats), t0, coefficients=True)
+    t_map, _, _, _ = newton_perihelion(nodes, _quintic_source(quintics, feats), t0, coefficients=True)
     h = np.max(np.diff(nodes)) if nodes.size > 1 else 0.0
     return bool(np.any(np.abs(t_map - t_dir) > h))
 
