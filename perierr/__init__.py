@@ -31,12 +31,13 @@ _LAZY = {
     "get_solar_parameters": "perierr.models.orbit",
     "global_budget": "perierr.budget",
     "rank_measurements": "perierr.plan",
+    "run_catalogue": "perierr.catalogue",
 }
 
 #: Subpackages reachable as attributes of ``perierr`` without importing them first.
 _SUBPACKAGES = (
-    "budget", "calibration", "comparison", "models", "plan", "priors", "progress", "propagate", "report", "sampling",
-    "star",
+    "budget", "calibration", "catalogue", "comparison", "models", "plan", "priors", "progress", "propagate", "report",
+    "sampling", "star",
 )  # fmt: skip
 
 __all__ = [
@@ -66,6 +67,7 @@ __all__ = [
     "rank_measurements",
     "read_catalogue",
     "read_star_file",
+    "run_catalogue",
 ]
 
 __getattr__, __dir__ = lazy_names(__name__, globals(), _LAZY, _SUBPACKAGES)

@@ -139,6 +139,7 @@ def analyze(
     error_inflation: float | str | Mapping[str, float] | None = None,
     focusing: bool = False,
     progress: Callable[[int, int], None] | None = None,
+    compare: bool = True,
 ) -> Analysis:
     """Perihelion of a star with linear and Monte Carlo intervals and a budget.
 
@@ -187,6 +188,10 @@ def analyze(
         ``progress(done, total)``, called as the Monte Carlo draws go through
         the model (e.g. :func:`perierr.progress.terminal_progress`); it only
         reports.
+    compare : bool
+        Put the other model beside the answer (``comparison`` or ``orbit_comparison``, and the
+        model-difference caution). Catalogue runs turn it off: for the straight line it costs an orbit
+        integration per star, more than the star's own Monte Carlo.
 
     Returns
     -------
@@ -256,7 +261,9 @@ def analyze(
         budget = None if linear is None else star_budget(star, linear, calibration=calibration)
     found = found + from_warnings(caught)
     comparison, orbit_comparison, described = {}, {}, model.describe()
-    if not is_straight_line(model):
+    if not compare:
+        pass
+    elif not is_straight_line(model):
         comparison = straight_line_comparison(mc, model, reference, linear=linear)
     elif reference[PARALLAX] > 0:
         orbit_comparison = orbit_nominal_comparison(reference, mc)

@@ -54,6 +54,14 @@ def parse_offset(value) -> tuple:
             unit = q.unit if q.unit != u.dimensionless_unscaled else None
         except (TypeError, ValueError):
             raise InputError("parallax_offset", value, "expected numbers in mas, e.g. '-0.017,0.005'") from None
+        for part in parts:  # each part a number or a quantity, so that an error quotes what the user wrote
+            if not _has_unit(part):
+                try:
+                    float(part)
+                except ValueError:
+                    raise InputError(
+                        "parallax_offset", value, f"expected numbers in mas, e.g. '-0.017,0.005' (not {part!r})"
+                    ) from None
         items = [p if (unit is None or _has_unit(p)) else f"{p} {unit}" for p in parts]
         pair = [_mas("parallax_offset", p) for p in items]
     elif isinstance(value, (tuple, list)):

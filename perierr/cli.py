@@ -1,4 +1,4 @@
-"""Command line: ``perierr demo``, ``perierr run STAR_FILE``, ``perierr screen TABLE``, ``perierr plan STAR_FILE``.
+"""Command line: ``perierr demo``, ``run STAR_FILE``, ``screen TABLE``, ``plan STAR_FILE``, ``catalogue TABLE``.
 
 The CLI only parses arguments, calls the API and prints or writes results
 (stdout), and shows the progress of long runs on stderr when stderr is a
@@ -179,13 +179,64 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True)
     demo = sub.add_parser("demo", help="run the whole job on the bundled (invented) demo survey")
     _add_analysis_options(demo)
-    run = sub.add_parser("run", help="analyse one star from a TOML star file")
+    run = sub.add_parser("run", help="analyse one star from a TOML star file (or one row of a table)")
     run.add_argument("star_file", type=Path, metavar="STAR_FILE")
+    _add_row_options(run)
     _add_analysis_options(run)
-    screen = sub.add_parser("screen", help="nominal perihelion and linear errors for every row of a table")
+    screen = sub.add_parser("screen", help="nominal perihelion and linear errors for every row of a small table, "
+                            "with each row's notes (catalogues: perierr catalogue)")  # fmt: skip
     screen.add_argument("table", type=Path, metavar="TABLE", help="ECSV/FITS/VOTable with catalogue columns")
     _add_plan_parser(sub)
+    _add_catalogue_parser(sub)
     return parser
+
+
+def _add_row_options(p: argparse.ArgumentParser) -> None:
+    g = p.add_argument_group("one row of a table as the star (STAR_FILE is then a CSV, ECSV, FITS, VOTable or "
+                             "Parquet table)")  # fmt: skip
+    pick = g.add_mutually_exclusive_group()
+    pick.add_argument("--row", type=int, default=None, metavar="N", help="the row number (0 is the first row)")
+    pick.add_argument("--source-id", default=None, metavar="ID", help="the row with this source_id")
+    g.add_argument("--columns", default=None, metavar="SPEC",
+                   help="column mapping: a preset (archive, vizier), a TOML file, or field=column,...")  # fmt: skip
+
+
+def _add_catalogue_parser(sub) -> None:
+    c = sub.add_parser(
+        "catalogue",
+        help="screen every row of a catalogue, analyse the candidates fully; resumable, parallel",
+        description="Stage 1 screens every row (straight line at the nominal inputs, linear sigmas, P(d_ph < D)); "
+        "the rows passing --cut get the full analysis (model, prior, Monte Carlo, budget) with a seed of their "
+        "own. Every input row is in the results once, with a status and a reason. Run the same command again "
+        "to resume an interrupted run.",
+    )
+    c.add_argument("table", type=Path, metavar="TABLE", help="CSV, ECSV, FITS, VOTable or Parquet")
+    c.add_argument("--out", type=Path, required=True, metavar="DIR", help="the run folder (results, parts)")
+    c.add_argument("--columns", default=None, metavar="SPEC",
+                   help="column mapping: a preset (archive, vizier), a TOML file ([columns] field = \"column\"), "
+                   "or field=column,... (default: detected from the column names)")  # fmt: skip
+    c.add_argument("--cut", default=None, metavar="EXPR",
+                   help="which screened rows are analysed fully, e.g. 'distance_pc < 5 pc or p_within_1pc > 0.01' "
+                   "(default 'distance_pc < 10 pc'; 'none': every row the screen computed)")  # fmt: skip
+    c.add_argument("--screen-only", action="store_true", help="stage 1 only")
+    c.add_argument("--samples", type=_count, default=10_000, metavar="N", help="Monte Carlo draws per star "
+                   "(default 10000)")  # fmt: skip
+    _add_common_options(
+        c,
+        within_help="distances for P(d_ph < D), with units (default '0.5pc,1pc,2pc,20000au,100000au'); the first "
+        "ranks the most probable encounters",
+        json_help="also write the run's summary (counts, top rows) as JSON",
+    )
+    c.add_argument("--focusing", action="store_true", help="add the gravitational focusing of the star's mass")
+    _add_prior_options(c)
+    g = c.add_argument_group("how the run is spread")
+    g.add_argument("--workers", type=_count, default=1, metavar="N", help="processes for stage 2 (default 1)")
+    g.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="a running Dask scheduler for stage 2 (e.g. tcp://10.0.0.5:8786)")  # fmt: skip
+    g.add_argument("--dask", action="store_true", help="start a local Dask cluster of --workers processes")
+    g.add_argument("--chunk-rows", type=_count, default=100_000, metavar="N", help="rows read at a time")
+    c.add_argument("--top", type=int, default=10, metavar="N", help="rows in each ranked list (default 10)")
+    c.add_argument("--no-ecsv", action="store_true", help="write results.parquet only")
 
 
 def _analysis_kwargs(args) -> dict:
@@ -206,11 +257,21 @@ def _analysis_kwargs(args) -> dict:
     )
 
 
-def _read_star(path):
-    """Read a star file; unit-slip warnings go to the report (star notes), not to stderr."""
+def _read_star(path, args=None):
+    """Read a star file, or one row of a table (``--row``, ``--source-id``); notes go to the report."""
+    row = getattr(args, "row", None)
+    source_id = getattr(args, "source_id", None)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)
-        return read_star_file(path)
+        if row is None and source_id is None:
+            if getattr(args, "columns", None) is not None:
+                raise InputError("--columns", args.columns, "maps the columns of a table: give --row or --source-id")
+            return read_star_file(path)
+        from .catalogue.reader import read_row
+        from .star import ObservedStar
+
+        mapping = read_row(path, row=row, source_id=source_id, columns=args.columns)
+        return ObservedStar.from_mapping(mapping, row=row, strict=False)
 
 
 def _run_star(star, args, out) -> None:
@@ -246,6 +307,7 @@ def _print_screen(rows, path, out) -> None:
 def _add_plan_parser(sub) -> None:
     p = sub.add_parser("plan", help="what to re-observe next, and how precisely (what-if, goals, gain curves)")
     p.add_argument("star_file", type=Path, metavar="STAR_FILE")
+    _add_row_options(p)
     p.add_argument(
         "--measure",
         action="append",
@@ -308,7 +370,7 @@ def _plan(args, out) -> None:
     from .plan import parse_goal, parse_measure, plan
     from .report.plan_text import format_plan
 
-    star = _read_star(args.star_file)
+    star = _read_star(args.star_file, args)
     measure = [parse_measure(text, dec=float(star.mean[1])) for text in args.measure]
     goals = [parse_goal("width90", t) for t in args.goal_width] + [parse_goal("sigma", t) for t in args.goal_sigma]
     goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
@@ -360,7 +422,7 @@ def _prepare_outputs(args) -> None:
                 print(f"perierr: {note}", file=sys.stderr)
 
 
-def _dispatch(args, out) -> None:
+def _dispatch(args, out) -> int:
     if args.command == "demo":
         survey = demo_path("kestrel_survey.ecsv")
         print("Demo on invented data: the Kestrel survey and its stars are fictional.\n", file=out)
@@ -368,11 +430,56 @@ def _dispatch(args, out) -> None:
         print("\nFull analysis of the closest pass:\n", file=out)
         _run_star(_read_star(demo_path("kestrel-4.toml")), args, out)
     elif args.command == "run":
-        _run_star(_read_star(args.star_file), args, out)
+        _run_star(_read_star(args.star_file, args), args, out)
     elif args.command == "screen":
         _screen(args.table, out)
     elif args.command == "plan":
         _plan(args, out)
+    elif args.command == "catalogue":
+        return _catalogue(args, out)
+    return 0
+
+
+#: Exit status of a catalogue run that finished with rows it could not compute (bad values, stage-2
+#: failures; rows without a radial velocity or with a parallax <= 0 do not count): every row is in the results.
+EXIT_ROWS = 5
+
+
+def _catalogue(args, out) -> int:
+    from .catalogue.output import format_ranking
+    from .catalogue.runner import DEFAULT_CUT, run_catalogue
+    from .catalogue.treatment import TreatmentOptions
+
+    if args.horizon is not None:
+        raise InputError("--horizon", args.horizon, "is an option of perierr run; catalogue runs use the model's "
+                         "default window")  # fmt: skip
+    treatment = None
+    if not args.screen_only:
+        treatment = TreatmentOptions(
+            model=args.model, n_samples=args.samples, thresholds=tuple(args.within),
+            distance_prior=args.distance_prior, prior_method=args.prior_method,
+            parallax_offset=args.parallax_offset, error_inflation=args.inflate, focusing=args.focusing,
+        )  # fmt: skip
+    from .progress import terminal_progress
+
+    def progress(label):
+        return terminal_progress(sys.stderr, quiet=args.quiet, label=label)
+
+    run = run_catalogue(
+        args.table, args.out, columns=args.columns, cut=DEFAULT_CUT if args.cut is None else args.cut,
+        thresholds=args.within, treatment=treatment, seed=args.seed, chunk_rows=args.chunk_rows,
+        workers=args.workers, scheduler=args.scheduler, dask=args.dask, ecsv=not args.no_ecsv, top=args.top,
+        progress=progress,
+    )  # fmt: skip
+    print(format_ranking(run, input_name=Path(args.table).name), file=out)
+    if args.json is not None:
+        write_json({"counts": run.counts, "n_rows": run.n_rows, "settings": run.settings,
+                    "closest": run.closest, "most_probable": run.most_probable}, args.json)  # fmt: skip
+        print(f"\nJSON written to {args.json}", file=out)
+    if run.n_problems:
+        return _fail(f"{run.n_problems:,} rows could not be computed; their status and reason are in the results",
+                     EXIT_ROWS)  # fmt: skip
+    return 0
 
 
 def _fail(message: str, status: int) -> int:
@@ -395,10 +502,13 @@ def main(argv=None, out=None) -> int:
     try:
         _prepare_outputs(args)
         _check_distances(args)
-        _dispatch(args, out)
+        return _dispatch(args, out)
     except PerierrError as exc:  # perierr's own refusals; a stray ValueError is a bug (the last resort below)
         return _fail(f"error: {exc}", EXIT_INPUT)
     except KeyboardInterrupt:
+        if args.command == "catalogue":
+            return _fail(f"interrupted (Ctrl-C); the finished parts are kept in {args.out}: run the same command "
+                         "to resume", EXIT_INTERRUPTED)  # fmt: skip
         return _fail("interrupted (Ctrl-C); no result was written", EXIT_INTERRUPTED)
     except MemoryError:
         return _fail(

@@ -65,11 +65,12 @@ def test_an_unreadable_zero_point_error_shows_an_example_in_micro_arcseconds(val
 
 def test_a_unit_written_once_applies_to_both_numbers_also_in_the_error():
     # parse_offset docstring: "-0.017+-0.005 mas" - a unit after the last number applies to the whole pair
-    # (astropy.units: 1 uas = 1e-3 mas); a first number that cannot be read is reported as it was read,
-    # with that unit
+    # (astropy.units: 1 uas = 1e-3 mas); a number that cannot be read is reported in the user's own words
+    # (the whole value, and the part that is not a number)
     assert parse_offset("-17,5 uas") == pytest.approx((-0.017, 0.005), abs=1e-15)
     assert parse_offset("-0.017 mas,5 uas") == pytest.approx((-0.017, 0.005), abs=1e-15)
     with pytest.raises(InputError) as err:
         parse_offset("abc,5 uas")
     assert err.value.field == "parallax_offset"
-    assert err.value.value == "abc uas"
+    assert err.value.value == "abc,5 uas"
+    assert "'abc'" in err.value.expected

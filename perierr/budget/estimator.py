@@ -181,6 +181,6 @@ def shapley_gaussian(
     confidence : float
         Level of the bootstrap percentile intervals.
     """
-    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(resolve_seed(seed))
+    rng = np.random.default_rng(resolve_seed(seed))
     stats = conditional_costs(func, mean, cov, n_outer=n_outer, n_inner=n_inner, rng=rng, statistic=statistic)
     return _estimate(stats, players, outputs, rng, n_boot, confidence)

@@ -165,15 +165,14 @@ class Focused(ForwardModel):
             flags = head_on if flags is None else (flags | head_on)
         dd, dv = q - raw.distance_pc, vq - raw.speed_kms
         finite = np.isfinite(dv)
+        passing = raw.distance_pc > 0  # a head-on row (d = 0) has no relative change: it counts as 0
+        relative = np.where(passing, dd / np.where(passing, raw.distance_pc, 1.0), 0.0)
         summary = FocusingDiagnostics(
             mass_msun=self.mass_msun,
             mass_error_msun=self.mass_error_msun,
             median_delta_distance_pc=float(np.median(dd)),
             max_abs_delta_distance_pc=float(np.max(np.abs(dd))),
-            median_relative_delta_distance=float(
-                np.median(np.divide(dd, raw.distance_pc, out=np.zeros_like(dd),
-                                    where=raw.distance_pc > 0))
-            ),
+            median_relative_delta_distance=float(np.median(relative)),
             median_delta_speed_kms=float(np.median(dv[finite])) if finite.any() else None,
             max_delta_speed_kms=float(np.max(dv[finite])) if finite.any() else None,
             n_head_on=int(head_on.sum()),

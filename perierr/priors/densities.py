@@ -156,7 +156,7 @@ class ExponentialDensity(DistancePrior):
         big_l = self.length_scale
         with np.errstate(divide="ignore", invalid="ignore"):
             out = 2.0 * np.log(r) - r / big_l - math.log(2.0) - 3.0 * math.log(big_l)
-        return np.where(r > 0, out, -np.inf)
+        return np.where((r > 0) & (r < math.inf), out, -np.inf)  # no density at r = +inf (inf - inf is NaN)
 
     def log_weight(self, r) -> np.ndarray:
         """``ln P(r) + 2 ln r`` for ``r > 0`` (one logarithm)."""
@@ -201,9 +201,9 @@ class GeneralizedGamma(DistancePrior):
     def log_density(self, r) -> np.ndarray:
         """Log prior density at ``r`` [pc]; ``-inf`` outside the support."""
         r = np.asarray(r, dtype=float)
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # (r/L)^alpha -> inf: density 0
             out = self._log_norm + self.beta * np.log(r) - (r / self.length_scale) ** self.alpha
-        return np.where(r > 0, out, -np.inf)
+        return np.where((r > 0) & (r < math.inf), out, -np.inf)  # no density at r = +inf (inf - inf is NaN)
 
     def log_weight(self, r) -> np.ndarray:
         """``ln P(r) + 2 ln r`` for ``r > 0`` (one logarithm)."""

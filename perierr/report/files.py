@@ -78,10 +78,20 @@ def atomic_path(path):
     tmp = Path(name)
     try:
         yield tmp
+        with open(tmp, "rb") as f:  # on disk before the rename, so that a crash leaves the old file or the new
+            os.fsync(f.fileno())
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes the file private (0600): give it the usual mode
         os.replace(tmp, path)
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
+
+
+def _umask() -> int:
+    """The process's file-creation mask (read by setting it and putting it back)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_text(path, text: str) -> Path:

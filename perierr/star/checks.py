@@ -52,15 +52,26 @@ def plausibility(values, row) -> list:
     # transverse speed 4.74047 km/s per (mas/yr) at 1 mas; the total speed must stay below c
     vt = KMS_PER_MASYR_AT_1MAS * math.hypot(values["pmra"], values["pmdec"]) / plx if plx > 0 else 0.0
     speed = math.hypot(vt, rv)
+    pm_field = "pmdec" if abs(values["pmdec"]) > abs(values["pmra"]) else "pmra"
     if values["parallax_error"] > 0 and plx < 5 * values["parallax_error"]:
-        return _plausibility_notes(values, row)  # a parallax within noise says nothing about the speed
+        # a parallax within noise says little about the speed, but a star faster than light even at the
+        # largest plausible parallax (parallax + 5 sigma) is impossible at any distance it may have
+        largest = plx + 5 * values["parallax_error"]
+        slowest = math.hypot(KMS_PER_MASYR_AT_1MAS * math.hypot(values["pmra"], values["pmdec"]) / largest, rv)
+        if largest > 0 and slowest >= SPEED_OF_LIGHT_KMS:
+            field, value = ("radial_velocity", rv) if abs(rv) >= SPEED_OF_LIGHT_KMS else (pm_field, values[pm_field])
+            raise InputError(
+                field, value, f"the star would move at {slowest:.3g} km/s or more (at parallax + 5 sigma = "
+                f"{largest:.3g} mas), faster than light ({SPEED_OF_LIGHT_KMS:,.0f} km/s); check the units", row
+            )
+        return _plausibility_notes(values, row)
     if 0 < speed < _SLOWEST_KMS:
         raise InputError(
             "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
             "perihelion within any meaningful time; give exact zeros for motions that were not measured", row
         )
     if speed >= SPEED_OF_LIGHT_KMS:
-        field, value = ("radial_velocity", rv) if abs(rv) >= SPEED_OF_LIGHT_KMS else ("pmra", values["pmra"])
+        field, value = ("radial_velocity", rv) if abs(rv) >= SPEED_OF_LIGHT_KMS else (pm_field, values[pm_field])
         raise InputError(
             field, value, f"the star would move at {speed:.3g} km/s, faster than light "
             f"({SPEED_OF_LIGHT_KMS:,.0f} km/s); check the units", row

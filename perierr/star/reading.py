@@ -119,7 +119,8 @@ def _read_meta(data, row) -> dict:
             if meta[key] < 0 or (key == "mass" and meta[key] == 0):
                 raise InputError(key, meta[key], "expected a positive mass in M_sun", row)
     epoch = data.get("ref_epoch")
-    meta["ref_epoch"] = None if _is_missing(epoch) else _to_float("ref_epoch", epoch, row, unit=None)
+    # a Julian year (2016.0); the archives' tables give it the unit yr
+    meta["ref_epoch"] = None if _is_missing(epoch) else _to_float("ref_epoch", epoch, row, unit=u.yr)
     name, source_id = data.get("name"), data.get("source_id")
     if _is_missing(name):
         name = str(source_id) if not _is_missing(source_id) else (f"row {row}" if row is not None else "star")

@@ -404,7 +404,7 @@ def test_parse_offset_plus_minus_forms_and_field_names():
     # the error names the user's text as given
     with pytest.raises(InputError) as err:
         parse_offset("abc,0.005")
-    assert err.value.value == "abc"
+    assert err.value.value == "abc,0.005" and "'abc'" in err.value.expected
 
 
 def test_parse_inflation_fields_and_zero_factor():

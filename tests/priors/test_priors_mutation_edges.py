@@ -103,3 +103,15 @@ def test_a_mapping_names_a_prior_and_its_parameters():
         resolve_prior({"name": "edsd"})
     assert err.value.value == "edsd"
     assert "missing parameter(s) L for edsd" in err.value.expected
+
+
+def test_edsd_and_generalized_gamma_have_no_density_at_infinite_distance():
+    # both densities fall as exp(-r/L) (Bailer-Jones 2015, eq. 18; Bailer-Jones et al. 2021, eq. 3), so their
+    # limit at r -> inf is 0 and the log density is -inf, not inf - inf = NaN
+    from perierr.priors.densities import ExponentialDensity, GeneralizedGamma
+
+    for prior in (ExponentialDensity(1350.0), GeneralizedGamma(1.5, 2.5, 900.0)):
+        got = prior.log_density(np.array([np.inf, 1.0e300, 100.0]))
+        assert got[0] == -np.inf
+        assert got[1] < -1e290 and np.isfinite(got[2])  # finite but vanishing far out, not NaN
+        assert prior.density(np.inf) == 0.0

@@ -252,7 +252,22 @@ class OrbitModel(ForwardModel):
                                 grid_step_myr=self.grid_step_myr, grid_travel_pc=self.grid_travel_pc)
 
     def _direct(self, rel, nodes):
-        """Direct integration of every row (chunked); returns t, state, outside, conv."""
+        """Direct integration of every row (chunked); returns t, state, outside, conv.
+
+        The answer for one row is remembered (the last one): a linearization asks for the nominal
+        perihelion twice (``evaluate`` and ``jacobian``), and it costs a whole integration each time.
+        """
+        if rel.shape[0] == 1:
+            key = (rel.tobytes(), nodes.tobytes())
+            last = getattr(self, "_last_nominal", None)
+            if last is not None and last[0] == key:
+                return tuple(x.copy() for x in last[1])
+            out = self._direct_rows(rel, nodes)
+            self._last_nominal = (key, tuple(x.copy() for x in out))
+            return out
+        return self._direct_rows(rel, nodes)
+
+    def _direct_rows(self, rel, nodes):
         n = rel.shape[0]
         t = np.empty(n)
         state = np.empty((n, 6))
