@@ -12,6 +12,8 @@ Which status a row gets
 The checks run in the order the single-star path makes them, and a row takes the status of
 the FIRST check it fails (the first error the single-star path would raise):
 
+0. a line in which every cell is unreadable (a malformed CSV line, a repeated header) is
+   ``unreadable_value`` with field ``row`` (the single-star path names its first field);
 1. each of ``ra, dec, parallax, pmra, pmdec, radial_velocity`` and then each error
    (``ra_error`` ... ``radial_velocity_error``), field by field: text that is not a number
    (``unreadable_value``); empty (``no_radial_velocity`` for the radial velocity and its
@@ -548,6 +550,13 @@ def _screen_block(chunk: Chunk, sl: slice, levels: list, out: dict) -> None:
     n = sl.stop - sl.start
     verdict = _Verdict(n)
     with np.errstate(all="ignore"):  # rows already refused may hold inf; their numbers are never used
+        flags = [np.asarray(chunk.unreadable[k])[sl] for k in chunk.values if k in chunk.unreadable]
+        if len(chunk.values) > 1 and len(flags) == len(chunk.values):  # a line that is no row of the table
+            verdict.fail(
+                np.logical_and.reduce(flags), UNREADABLE, "row", "every cell unreadable",
+                "the line could not be read as a row of the table (a wrong number of fields, or a repeated "
+                "header line)",
+            )  # fmt: skip
         obs, err = _read_measurements(chunk, sl, n, verdict)
         _plausibility(obs, err, verdict)
         corrs = _read_correlations(chunk, sl, n, verdict)

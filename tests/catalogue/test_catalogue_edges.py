@@ -146,3 +146,18 @@ def test_most_probable_leaves_out_rows_no_draw_brings_close_and_top_zero_lists_n
     assert main([*args, "--out", str(tmp_path / "b"), "--top", "0"]) == 0
     out = capsys.readouterr().out
     assert "Closest encounters" not in out and "No row passed the cut" not in out
+
+
+def test_a_malformed_csv_line_is_a_row_that_says_so(tmp_path):
+    table, _ = invented_catalogue(30, seed=9)
+    path = tmp_path / "kw.csv"
+    table.write(path)
+    lines = path.read_text().splitlines()
+    lines[6] = "1,2,3"  # the sixth data row (row 5): three fields where the header has many (invented damage)
+    path.write_text("\n".join(lines) + "\n")
+    run = run_catalogue(path, tmp_path / "out", cut="none", treatment=None, seed=1)
+    res = Table.read(run.results[0])
+    assert len(res) == 30 and res["row"][5] == 5
+    assert res["status"][5] == "unreadable_value"
+    assert res["reason"][5].startswith("row = every cell unreadable: the line could not be read")
+    assert res["status"][4] != "unreadable_value" and res["status"][6] != "unreadable_value"
