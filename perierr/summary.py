@@ -326,6 +326,19 @@ def _checked_levels(levels) -> tuple:
     return tuple(sorted({r for _, r in rounded} | {0.5}))
 
 
+def _checked_weights(weights, shape) -> np.ndarray:
+    """Weights as floats: one per draw, finite, not negative, not all zero (else an InputError)."""
+    w = np.asarray(weights, dtype=float)
+    if w.shape != shape:
+        raise InputError("weights", f"shape {w.shape}", f"expected one weight per draw, shape {shape}")
+    bad = np.flatnonzero(~np.isfinite(w) | (w < 0))
+    if bad.size:
+        raise InputError("weights", f"{w[bad[0]]} at draw {bad[0]}", "expected finite weights >= 0")
+    if not np.any(w > 0):
+        raise InputError("weights", "all zero", "expected at least one draw with a weight above 0")
+    return w
+
+
 def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> OutputSummary:
     """Summarize samples of one output.
 
@@ -345,7 +358,7 @@ def summarize(x, *, name="", unit="", levels=DEFAULT_LEVELS, weights=None) -> Ou
     if x.size == 0:
         raise ValueError(f"{name}: no samples to summarize")
     levels = _checked_levels(levels)
-    w = None if weights is None else np.asarray(weights, dtype=float)
+    w = None if weights is None else _checked_weights(weights, x.shape)
     n_eff, mean, m2, m3, m4 = _moments(x, w)
     std, skew, kurt, note = _shape(x, w, n_eff, mean, m2, m3, m4)
     spread = np.sqrt(np.asarray(levels) * (1 - np.asarray(levels)) / n_eff)

@@ -67,3 +67,51 @@ def test_a_level_exactly_one_tolerance_away_is_the_stored_level():
     assert s.quantile_error(2e-9) == s.quantile_error(1e-9)
     with pytest.raises(KeyError, match="was not computed"):
         s.quantile(2.000001e-9)
+
+
+
+def test_128_separate_quantile_levels_of_a_large_sample_are_numpys():
+    # 128 levels, each beyond the bracket of the one before (the large-sample path brackets a level with a
+    # 4.5-sigma binomial margin measured on a pilot of about 6 n^(2/3) draws, as its docstring says), give 128
+    # disjoint brackets: the region codes then reach 256 and need 16 bits. The lowest level sits just above its
+    # margin, so a lost count below the first bracket would shift that quantile without tripping the bracket
+    # check. Expected: numpy's method="hazen" (Hyndman & Fan 1996, definition 5), the documented definition.
+    from perierr.summary import weighted_quantiles
+
+    n = 6_000_000
+    pilot = len(range(0, n, max(1, n // max(2000, int(6.0 * n ** (2.0 / 3.0))))))  # the strided pilot's size
+
+    def margin(p):
+        return 4.5 * math.sqrt(max(p * (1 - p), 1 / pilot) / pilot) + 2 / pilot
+
+    levels = [1.6e-4]
+    while len(levels) < 128:
+        q = levels[-1]
+        levels.append(q + 1.15 * (margin(q) + margin(q + 2 * margin(q))))
+    levels = np.round(np.array(levels), 12)
+    assert levels[-1] < 1.0
+    x = np.random.default_rng(3).normal(size=n)  # invented draws
+    np.testing.assert_allclose(weighted_quantiles(x, levels), np.quantile(x, levels, method="hazen"), rtol=0,
+                               atol=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("weights", "said"),
+    [([0.0, 0.0, 0.0, 0.0], "all zero"), ([1.0, np.nan, 1.0, 1.0], "nan at draw 1"),
+     ([1.0, 1.0, -0.5, 1.0], "-0.5 at draw 2"), ([1.0, 1.0, 1.0], "shape (3,)")],
+)
+def test_weights_that_define_no_distribution_are_refused_naming_the_field(weights, said):
+    # a weighted sample needs finite weights >= 0 with a positive sum (common practice, no source): all-zero,
+    # NaN or negative weights gave NaN or meaningless summaries before
+    from perierr.errors import InputError
+
+    with pytest.raises(InputError, match="weights") as caught:
+        summarize([1.0, 2.0, 3.0, 4.0], name="d", weights=weights)
+    assert said in str(caught.value).lower()
+
+
+def test_zero_weights_on_some_draws_leave_them_out():
+    # draws of weight 0 count for nothing (common practice, no source): the summary of the rest
+    s = summarize([1.0, 2.0, 3.0, 100.0], name="d", weights=[1.0, 1.0, 1.0, 0.0])
+    assert s.mean == pytest.approx(2.0, rel=1e-12)
+    assert s.median == pytest.approx(2.0, rel=1e-12)

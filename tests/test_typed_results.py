@@ -339,5 +339,5 @@ def test_every_linear_budget_names_its_columns():
     shares = np.full((3, 6), 1 / 6)
     with pytest.raises(TypeError):
         LinearBudget(shares, shares, np.ones(3))
-    with pytest.raises(ValueError, match="6 columns names 7 inputs"):
+    with pytest.raises(ValueError, match=r"shape \(3, 6\) for 7 inputs"):
         LinearBudget(shares, shares, np.ones(3), tuple("abcdefg"))

@@ -40,6 +40,8 @@ import tomllib
 KILLED = {1: "killed", 3: "killed", 36: "timeout", 24: "timeout", -24: "timeout", 152: "timeout", 255: "timeout",
           -11: "segfault", -9: "segfault", 37: "caught by type check"}
 SURVIVED = {0: "survived", 5: "no tests", 33: "no tests", None: "not checked"}
+#: left out of a random sample (``tools/mutation_run.py --sample``): estimated from the sample, not counted
+UNSAMPLED = 34
 
 
 def module_of(name: str) -> str:
@@ -106,9 +108,49 @@ def save_snapshot(root: Path, out: Path) -> list:
             continue
         data[group] = {"digest": group_digest(root, group, work), "saved_at_commit": commit,
                        "date": datetime.date.today().isoformat(), "exit_codes": dict(sorted(codes.items()))}
+        if (work / "sample.json").exists():
+            record = json.loads((work / "sample.json").read_text(encoding="utf-8"))
+            data[group]["sample"] = {"seed": record["seed"], "size": len(record["sample"]),
+                                     "population": len(record["population"]), "names": record["sample"]}
         saved.append(group)
     out.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
     return saved
+
+
+def read_samples(root: Path, path: Path, live: set) -> dict:
+    """Group -> names of the mutants of its random sample (live runs first, then saved groups)."""
+    out = {}
+    for group in live:
+        record = root / ".mutation" / group / "sample.json"
+        if record.exists():
+            out[group] = set(json.loads(record.read_text(encoding="utf-8"))["sample"])
+    if path.exists():
+        for group, entry in json.loads(path.read_text(encoding="utf-8")).items():
+            if group not in live and "sample" in entry:
+                out[group] = set(entry["sample"]["names"])
+    return out
+
+
+def sampled_estimate(tested: Counter, sample: Counter, unsampled: int) -> tuple:
+    """Score of a group whose untested remainder is estimated from a uniform random sample.
+
+    ``tested`` counts killed/survived among every tested, non-equivalent mutant (the sample included);
+    ``sample`` the same among the sample's mutants only; ``unsampled`` is the number left out. The remainder's
+    kill rate p and non-equivalent fraction q are estimated by the sample's; the score is
+    (K + U p) / (N + U q), and its standard error is U * SE(p) / (N + U q) with the finite-population
+    corrected binomial SE(p) = sqrt(p (1 - p) / n * (P - n) / (P - 1)), P = n + U (a ratio estimator to first
+    order; Cochran, Sampling Techniques, ch. 2-3, from memory). Returns (score, standard error).
+    """
+    n = sample["killed"] + sample["survived"] + sample["equivalent"]
+    killed, counted = tested["killed"], tested["killed"] + tested["survived"]
+    if n == 0 or unsampled == 0:
+        return (killed / counted if counted else 1.0), 0.0
+    p = sample["killed"] / n
+    q = (sample["killed"] + sample["survived"]) / n
+    population = n + unsampled
+    se_p = (p * (1 - p) / n * (population - n) / max(population - 1, 1)) ** 0.5
+    denominator = counted + unsampled * q
+    return (killed + unsampled * p) / denominator, unsampled * se_p / denominator
 
 
 def read_snapshot(root: Path, path: Path, live: set) -> tuple:
@@ -122,7 +164,7 @@ def read_snapshot(root: Path, path: Path, live: set) -> tuple:
         if group not in _groups(root) or entry["digest"] != group_digest(root, group):
             stale.append(group)
             continue
-        out.update({name: (code, None) for name, code in entry["exit_codes"].items()})
+        out.update({name: (code, group) for name, code in entry["exit_codes"].items()})
     return out, stale
 
 
@@ -135,9 +177,9 @@ def read_equivalent(folder: Path) -> dict:
     return out
 
 
-def diff_of(name: str, group: Path) -> str:
+def diff_of(name: str, group) -> str:
     """The mutant's diff, as ``mutmut show`` prints it in its group's folder (only the changed lines)."""
-    if group is None:
+    if not isinstance(group, Path):
         return "(saved result: re-run the group to see the diff)"
     text = subprocess.run(["mutmut", "show", name], capture_output=True, text=True, check=False, cwd=group).stdout
     lines = [ln for ln in text.splitlines() if ln[:1] in "+-" and not ln.startswith(("+++", "---"))]
@@ -158,6 +200,7 @@ def main(argv=None) -> int:
         print(f"saved: {', '.join(save_snapshot(args.root, args.snapshot)) or 'no finished group'}")
     results = read_results(args.root)
     live = {g.name for g in {group for _, group in results.values()}}
+    samples = read_samples(args.root, args.snapshot, live)
     saved, stale_groups = read_snapshot(args.root, args.snapshot, live)
     results.update(saved)
     if not results:
@@ -166,12 +209,23 @@ def main(argv=None) -> int:
     equivalent = read_equivalent(args.equivalent)
     stale = sorted(set(equivalent) - set(results))
     # an entry whose mutant a test kills is wrong (or its number now names another mutant)
-    contradicted = sorted(n for n in equivalent if n in results and results[n][0] in KILLED)
+    # (a failing test, not a timeout: a time limit of CPU seconds says nothing about behaviour)
+    contradicted = sorted(n for n in equivalent if n in results and results[n][0] in (1, 3))
     per = defaultdict(Counter)
     survivors = defaultdict(list)
+    by_group = defaultdict(Counter)  # tested mutants of each group
+    by_sample = defaultdict(Counter)  # those of its random sample
     for name, (code, group) in sorted(results.items()):
         mod = module_of(name)
-        if name in equivalent:
+        gname = group.name if isinstance(group, Path) else group
+        kind = ("unsampled" if code == UNSAMPLED else "equivalent" if name in equivalent
+                else "killed" if code in KILLED else "survived")
+        by_group[gname][kind] += 1
+        if name in samples.get(gname, ()):
+            by_sample[gname][kind] += 1
+        if code == UNSAMPLED:
+            per[mod]["unsampled"] += 1
+        elif name in equivalent:
             per[mod]["equivalent"] += 1
         elif code in KILLED:
             per[mod]["killed"] += 1
@@ -186,23 +240,43 @@ def main(argv=None) -> int:
         counted = c["killed"] + c["survived"]
         score = c["killed"] / counted if counted else 1.0
         rows.append(f"| `{mod}` | {sum(c.values())} | {c['equivalent']} | {c['killed']} | {c['survived']} | "
-                    f"{score:.1%} |")
+                    f"{c['unsampled']} | {score:.1%} |")
     counted = total["killed"] + total["survived"]
     overall = total["killed"] / counted if counted else 1.0
+    estimates = []
+    for gname in sorted(g for g in by_group if by_group[g]["unsampled"]):
+        score, se = sampled_estimate(by_group[gname], by_sample[gname], by_group[gname]["unsampled"])
+        n = sum(by_sample[gname].values())
+        counted_s = by_sample[gname]["killed"] + by_sample[gname]["survived"]
+        bound = ""
+        if by_sample[gname]["survived"] == 0 and counted_s:
+            # no survivor in the sample: the rule of three bounds the rest's survival rate (Hanley & Lippman-Hand
+            # 1983, JAMA 249, 1743; from memory)
+            bound = (f"; no survivor among the sample's {counted_s} non-equivalent mutants, so fewer than "
+                     f"{3 / counted_s:.1%} of the rest survive (95 %, rule of three)")
+        estimates.append(f"- {gname}: {by_group[gname]['unsampled']} mutants not tested, estimated from a seeded "
+                         f"random sample of {n}: group score {score:.1%} ± {se:.1%} (one standard error); "
+                         f"exact over the tested ones "
+                         f"{sampled_estimate(by_group[gname], Counter(), 0)[0]:.1%}{bound}")
     lines = [
         "# Mutation report of the numerical core",
         "",
         "Written by `python tools/mutation_report.py` after `python tools/mutation_run.py` (see DEVELOPERS.md).",
         "Score = killed / (mutants - equivalent); a mutant no test reaches counts as a survivor.",
         "",
-        f"**Overall: {overall:.1%}** ({total['killed']} killed, {total['survived']} survived, "
-        f"{total['equivalent']} equivalent, {sum(total.values())} mutants)",
+        f"**Overall: {overall:.1%}** of the tested mutants ({total['killed']} killed, {total['survived']} "
+        f"survived, {total['equivalent']} equivalent, {total['unsampled']} left out of a random sample, "
+        f"{sum(total.values())} mutants)",
         "",
-        "| module | mutants | equivalent | killed | survived | score |",
-        "|---|---|---|---|---|---|",
+        "| module | mutants | equivalent | killed | survived | not sampled | score |",
+        "|---|---|---|---|---|---|---|",
         *rows,
         "",
     ]
+    if estimates:
+        lines += ["Groups tested on a random sample of their remaining mutants (`tools/mutation_run.py --sample`): "
+                  "the survivors of the sample are triaged like any other; the score of the untested rest is "
+                  "estimated from the sample.", "", *estimates, ""]
     if contradicted:
         lines += ["Listed as equivalent but killed by a test (the entry is wrong, or its number now names another "
                   "mutant; re-check it):", ""]

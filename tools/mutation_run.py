@@ -14,6 +14,8 @@ Run (from the repository root; ``pip install mutmut``)::
     python tools/mutation_run.py budget orbit
     python tools/mutation_run.py --fresh orbit       # forget the last run and re-test every mutant
     python tools/mutation_run.py --survivors priors  # after adding tests: re-test the last run's survivors
+    python tools/mutation_run.py --sample 500 orbit  # test a seeded random sample of the untested mutants
+    python tools/mutation_run.py --unsample orbit    # later: test the ones left out of the sample too
     python tools/mutation_report.py         # the score and the survivors
 
 Wall times on the 2-core development machine are in DEVELOPERS.md.
@@ -52,7 +54,8 @@ GROUPS = {
          "perierr/models/diagnostics.py", "perierr/models/__init__.py"],
         ["tests/test_frames.py", "tests/models/test_straight_line.py", "tests/models/test_focusing.py",
          "tests/budget/test_budget_inputs.py", "tests/test_json_contract.py", "tests/models/test_models_edges.py",
-         "tests/test_typed_results.py", "tests/models/test_models_mutation_edges.py"],
+         "tests/test_typed_results.py", "tests/models/test_models_mutation_edges.py",
+         "tests/models/test_models_base_mutation_edges.py"],
         False,
     ),
     "propagate": (
@@ -60,7 +63,7 @@ GROUPS = {
         ["tests/propagate/test_propagation.py", "tests/test_edge_cases.py", "tests/test_json_contract.py",
          "tests/test_cautions.py", "tests/propagate/test_propagate_edges.py", "tests/test_typed_results.py",
          "tests/propagate/test_linear_correlated.py", "tests/propagate/test_propagate_mutation_edges.py",
-         "tests/test_seeds.py"],
+         "tests/test_seeds.py", "tests/propagate/test_propagate_survivors_edges.py"],
         False,
     ),
     "orbit": (
@@ -68,7 +71,13 @@ GROUPS = {
         ["tests/models/orbit/test_potentials.py", "tests/models/orbit/test_orbit_model.py",
          "tests/models/orbit/test_orbit_transition.py",
          "tests/models/orbit/test_orbit_leaves.py", "tests/models/orbit/test_orbit_search.py",
-         "tests/models/orbit/test_orbit_edges.py", "tests/models/orbit/test_orbit_physics_edges.py"],
+         "tests/models/orbit/test_orbit_edges.py", "tests/models/orbit/test_orbit_physics_edges.py",
+         "tests/models/orbit/test_orbit_map_mutation_edges.py",
+         "tests/models/orbit/test_orbit_map_parts_mutation_edges.py",
+         "tests/models/orbit/test_orbit_numerics_mutation_edges.py",
+         "tests/models/orbit/test_orbit_model_mutation_edges.py",
+         "tests/models/orbit/test_orbit_sample_mutation_edges.py",
+         "tests/models/orbit/test_orbit_sample2_mutation_edges.py"],
         False,
     ),
     "priors": (
@@ -143,23 +152,106 @@ def run(group: str, children: int) -> float:
 #: mutmut exit codes of a mutant no test killed (survived; no test reached it).
 _SURVIVOR_CODES = (0, 5, 33)
 
+#: mutmut's exit code "skipped": here, a mutant left out of a random sample (``--sample``); mutmut does not
+#: test a mutant that has an exit code, and re-tests it (code reset) when its function changes.
+SKIPPED = 34
+
+
+def _metas(group: str):
+    """(path, data) of every mutmut result file of the group."""
+    for meta in sorted((WORK / group / "mutants").rglob("*.meta")):
+        yield meta, json.loads(meta.read_text(encoding="utf-8"))
+
+
+def sample_untested(group: str, size: int, seed: int) -> dict:
+    """Leave a seeded random sample of ``size`` of the group's untested mutants to test; mark the rest skipped.
+
+    The sample is drawn without replacement, uniformly, from the mutants with no result yet, those left out
+    of an earlier sample included (the population); both are recorded in ``.mutation/<group>/sample.json``
+    (replacing an earlier record: the earlier sample's mutants are tested, so they join the exactly known
+    part) so that the report can estimate the score of the untested remainder from the sample
+    (``tools/mutation_report.py``). Mutants already tested keep their results. A sample drawn after tests
+    were written for an earlier sample's survivors estimates the suite as it is now; the earlier sample,
+    once triaged, would not (its survivors were killed one by one). Returns the record.
+    """
+    import random
+
+    population = sorted(k for _, data in _metas(group) for k, code in data.get("exit_code_by_key", {}).items()
+                        if code is None or code == SKIPPED)
+    chosen = set(random.Random(seed).sample(population, min(size, len(population))))
+    for meta, data in _metas(group):
+        codes = data.get("exit_code_by_key", {})
+        untested = [k for k, code in codes.items() if code is None or code == SKIPPED]
+        if untested:
+            codes.update({k: (None if k in chosen else SKIPPED) for k in untested})
+            meta.write_text(json.dumps(data, indent=4), encoding="utf-8")
+    record = {"seed": seed, "population": population, "sample": sorted(chosen)}
+    (WORK / group / "sample.json").write_text(json.dumps(record, indent=1), encoding="utf-8")
+    return record
+
+
+def unsample(group: str) -> int:
+    """Mark the mutants left out of the group's sample as untested again; returns their number."""
+    count = 0
+    for meta, data in _metas(group):
+        codes = data.get("exit_code_by_key", {})
+        hit = [k for k, code in codes.items() if code == SKIPPED]
+        if hit:
+            codes.update(dict.fromkeys(hit))
+            meta.write_text(json.dumps(data, indent=4), encoding="utf-8")
+            count += len(hit)
+    (WORK / group / "sample.json").unlink(missing_ok=True)
+    return count
+
+
+def _equivalent() -> set:
+    """Names of the mutants listed as equivalent in ``tests/mutation/equivalent*.toml``."""
+    import tomllib
+
+    return {name for path in (ROOT / "tests" / "mutation").glob("equivalent*.toml")
+            for name in tomllib.loads(path.read_text(encoding="utf-8")).get("equivalent", {})}
+
 
 def reset_survivors(group: str) -> int:
     """Mark the survivors of the group's last run as untested, so that the next run tests them again.
+
+    Survivors listed as equivalent are left as they are (no test can kill them).
 
     New tests can only kill more mutants: a killed mutant stays killed (mutmut itself re-tests every mutant
     of a function whose source changed). Returns the number of mutants reset.
     """
     count = 0
-    for meta in (WORK / group / "mutants").rglob("*.meta"):
-        data = json.loads(meta.read_text(encoding="utf-8"))
+    equivalent = _equivalent()
+    for meta, data in _metas(group):
         codes = data.get("exit_code_by_key", {})
-        hit = [k for k, code in codes.items() if code in _SURVIVOR_CODES]
+        hit = [k for k, code in codes.items() if code in _SURVIVOR_CODES and k not in equivalent]
         if hit:
             codes.update(dict.fromkeys(hit))
             meta.write_text(json.dumps(data, indent=4), encoding="utf-8")
             count += len(hit)
     return count
+
+
+def keep_verdicts_for_added_tests(group: str) -> bool:
+    """Tell mutmut that the group's test selection changed only by added tests, so its verdicts stand.
+
+    mutmut forgets every result when the test selection of its settings changes (it cannot know whether tests
+    were removed). Adding tests can only kill more mutants, so after ``prepare`` with a longer list this writes
+    the new selection's fingerprint into mutmut's stats file: mutmut then collects coverage for the new tests
+    only and keeps the verdicts, and ``--survivors`` re-tests the survivors with the new tests. Returns whether
+    a stats file was updated.
+    """
+    stats = WORK / group / "mutants" / "mutmut-stats.json"
+    if not stats.exists():
+        return False
+    probe = ("import json; from mutmut.configuration import config; "
+             "print(json.dumps(config().config_fingerprint()))")
+    done = subprocess.run([sys.executable, "-c", probe], cwd=WORK / group, capture_output=True, text=True,
+                          check=True)
+    data = json.loads(stats.read_text(encoding="utf-8"))
+    data["config_fingerprint"] = json.loads(done.stdout)
+    stats.write_text(json.dumps(data, indent=4), encoding="utf-8")
+    return True
 
 
 def main(argv=None) -> int:
@@ -173,9 +265,19 @@ def main(argv=None) -> int:
     parser.add_argument("--survivors", action="store_true",
                         help="re-test only the survivors of the groups' last run (after adding tests; "
                              "much faster than --fresh, which re-tests every mutant)")
+    parser.add_argument("--sample", type=int, metavar="N",
+                        help="test only a seeded random sample of N of the mutants not tested yet (the report "
+                             "estimates the rest from it, with its standard error)")
+    parser.add_argument("--seed", type=int, default=20261202, help="seed of --sample (default 20261202)")
+    parser.add_argument("--unsample", action="store_true",
+                        help="test the mutants a previous --sample left out as well")
     args = parser.parse_args(argv)
     if args.fresh and args.survivors:
         parser.error("--fresh re-tests every mutant and --survivors only the survivors: choose one")
+    if args.sample is not None and args.sample < 1:
+        parser.error(f"--sample: expected a number of mutants >= 1, got {args.sample}")
+    if args.sample is not None and args.unsample:
+        parser.error("--sample leaves mutants out and --unsample brings them back: choose one")
     unknown = [g for g in args.groups if g not in GROUPS]
     if unknown:
         parser.error(f"unknown group(s) {', '.join(unknown)}; expected some of {', '.join(GROUPS)}")
@@ -183,7 +285,19 @@ def main(argv=None) -> int:
         if args.fresh:
             shutil.rmtree(WORK / group, ignore_errors=True)
         if args.survivors:
+            prepare(group)
+            keep_verdicts_for_added_tests(group)
             print(f"{group}: {reset_survivors(group)} survivors to re-test", flush=True)
+        if args.unsample:
+            print(f"{group}: {unsample(group)} mutants left out of the sample to test", flush=True)
+        if args.sample is not None:
+            if not (WORK / group / "mutants").is_dir():
+                parser.error(f"--sample {group}: the group has not run yet; run it once (it can be stopped "
+                             "after its first mutants) so that its mutants exist")
+            prepare(group)
+            record = sample_untested(group, args.sample, args.seed)
+            print(f"{group}: testing a random sample of {len(record['sample'])} of the "
+                  f"{len(record['population'])} untested mutants (seed {args.seed})", flush=True)
         seconds = run(group, args.max_children)
         print(f"{group}: {seconds / 60:.1f} min (log: .mutation/{group}/mutmut.log)", flush=True)
     return 0

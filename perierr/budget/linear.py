@@ -71,8 +71,11 @@ class LinearBudget:
 
     def __post_init__(self):
         object.__setattr__(self, "inputs", tuple(self.inputs))
-        if np.shape(self.shapley)[-1] != len(self.inputs):
-            raise ValueError(f"a budget of {np.shape(self.shapley)[-1]} columns names {len(self.inputs)} inputs")
+        for name in ("shapley", "covariance"):
+            shape = np.shape(getattr(self, name))
+            if shape != (len(OUTPUTS), len(self.inputs)):
+                raise ValueError(f"{name}: a budget table of shape {shape} for {len(self.inputs)} inputs; expected "
+                                 f"({len(OUTPUTS)}, {len(self.inputs)}), a row per output and a column per input")
 
     def share(self, output: str, kind: str = "shapley") -> dict:
         """Shares of one output as ``{input: share}``; ``kind`` is "shapley" or "covariance"."""

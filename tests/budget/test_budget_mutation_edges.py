@@ -146,9 +146,9 @@ def test_linear_budget_names_its_columns_as_a_tuple_and_checks_their_count():
     assert budget.inputs == ("parallax", "radial_velocity")
     assert isinstance(budget.inputs, tuple)
     assert budget.share("distance_pc") == {"parallax": 0.5, "radial_velocity": 0.5}
-    with pytest.raises(ValueError, match="a budget of 2 columns names 3 inputs"):
+    with pytest.raises(ValueError, match=r"shapley: a budget table of shape \(3, 2\) for 3 inputs"):
         LinearBudget(shares, shares, np.ones(3), ["a", "b", "c"])
-    with pytest.raises(ValueError, match="a budget of 2 columns names 1 inputs"):
+    with pytest.raises(ValueError, match=r"shapley: a budget table of shape \(3, 2\) for 1 inputs"):
         LinearBudget(shares, shares, np.ones(3), ("a",))
 
 
@@ -161,3 +161,34 @@ def test_every_subset_mask_has_its_players():
     for mask, row in enumerate(inside):
         assert [i for i in range(k) if row[i]] == [i for i in range(k) if mask >> i & 1]
     assert sum(1 for _ in itertools.product([0, 1], repeat=k)) == inside.shape[0]
+
+
+def test_explained_variance_of_a_two_level_batch_equals_the_one_star_values():
+    # the documented shapes are (..., m, k) and (..., k, k): a (2, 5) batch of stars with k = 3 inputs gives,
+    # for each star, b_w^T R_ww^+ b_w computed here with numpy.linalg.pinv on the subset (Song, Nelson & Staum
+    # 2016, Theorem 1: the explained variance of a linear model of Gaussian inputs)
+    rng = np.random.default_rng(11)
+    k, m = 3, 2
+    corr = np.stack([np.stack([_random_corr(rng, k) for _ in range(5)]) for _ in range(2)])
+    grad = rng.normal(size=(2, 5, m, k))
+    got = explained_variance(grad, corr)
+    assert got.shape == (2, 5, 2**k, m)
+    for a, b in itertools.product(range(2), range(5)):
+        r, g = corr[a, b], grad[a, b]
+        bvec = r @ g.T
+        for mask in range(1, 2**k):
+            w = [i for i in range(k) if mask >> i & 1]
+            expect = np.einsum("im,ij,jm->m", bvec[w], np.linalg.pinv(r[np.ix_(w, w)]), bvec[w])
+            assert_allclose(got[a, b, mask], expect, rtol=1e-10, atol=1e-12)
+
+
+@pytest.mark.parametrize("shape", [(3,), (2, 3), (3, 2), (1, 3, 3)])
+def test_a_budget_table_of_the_wrong_shape_is_refused_with_the_shape_expected(shape):
+    # the documented layout: a row per output (t_ph, d_ph, v_ph) and a column per input (common practice, no
+    # source); a one-dimensional table used to be accepted and failed later in share()
+    inputs = ("parallax", "pmra", "pmdec")
+    good = np.full((3, 3), 1 / 3)
+    with pytest.raises(ValueError, match=r"expected \(3, 3\)"):
+        LinearBudget(np.ones(shape), good, np.ones(3), inputs)
+    with pytest.raises(ValueError, match=r"covariance: .*expected \(3, 3\)"):
+        LinearBudget(good, np.ones(shape), np.ones(3), inputs)

@@ -506,8 +506,10 @@ def _minimum_moves(leaf, x, t_start, st, de, nodes, quintics):
     feats = leaf_features(x, leaf.k, leaf.order)
     t0 = np.clip(t_start, nodes[0], nodes[-1])
     t_map, _, _, _ = newton_perihelion(nodes, _quintic_source(quintics, feats), t0, coefficients=True)
-    h = np.max(np.diff(nodes)) if nodes.size > 1 else 0.0
-    return bool(np.any(np.abs(t_map - t_dir) > h))
+    if nodes.size < 2:
+        return False  # one node: both stay on it
+    # a miss of one whole step (opposite ends of a two-node span) is a miss
+    return bool(np.any(np.abs(t_map - t_dir) >= np.max(np.diff(nodes))))
 
 
 def _direct_perihelia(nodes, states, derivs):

@@ -139,7 +139,7 @@ class OrbitModel(ForwardModel):
         DOP853 tolerances of ``method="direct"`` and of the Jacobian's
         reference orbit (state in pc and km/s). The RK4 integrations of the
         map halve their steps until Richardson's estimate of their error is
-        below a tenth of ``map_tolerance_au``.
+        at most a tenth of ``map_tolerance_au``.
     chunk_size : int, default 20000
         Samples per direct-integration call (bounds memory; smaller for long
         windows so that the tabulated states stay below ~250 MB).
@@ -365,12 +365,7 @@ class OrbitModel(ForwardModel):
         diagnostics = ModelDiagnostics(model=self.name, method="straight line beyond the potential",
                                        n_outside_window=0, n_not_converged=0)
         if (~far).any():
-            near_ref = None if reference is None or far[0] and obs.shape[0] == 1 else reference
-            ref_rel = self._relative(near_ref)[1] if near_ref is not None else None
-            if ref_rel is not None and (rownorm(ref_rel[:, :3])[0] > MAX_DISTANCE_PC
-                                        or rownorm(ref_rel[:, 3:])[0] > MAX_SPEED_KMS):
-                near_ref = None
-            inner = self.evaluate(obs[~far], reference=near_ref)
+            inner = self.evaluate(obs[~far])  # the reference is never needed (evaluate's docstring)
             t[~far], d[~far], v[~far] = inner.time_myr, inner.distance_pc, inner.speed_kms
             flags[~far] = inner.flags if inner.flags is not None else False
             # the straight-line block has one entry per row: the far rows' answer is the straight line itself
