@@ -363,7 +363,7 @@ def _add_plan_parser(sub) -> None:
     _add_common_options(
         p, within_help="distances for P(d_ph < D) in the what-if summaries", json_help="also write the plan as JSON"
     )
-    p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves (needs matplotlib)")
+    p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves")
 
 
 def _plan(args, out) -> None:

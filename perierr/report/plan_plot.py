@@ -1,4 +1,4 @@
-"""Plot of gain curves (matplotlib, optional: ``pip install 'perierr[plot]'``)."""
+"""Plot of gain curves (matplotlib, installed with perierr)."""
 
 from __future__ import annotations
 
@@ -37,7 +37,7 @@ def plot_gain_curves(curves, path=None):
             matplotlib.use("Agg", force=False)
         import matplotlib.pyplot as plt
     except ImportError:
-        raise ImportError("plotting needs matplotlib: pip install 'perierr[plot]'") from None
+        raise ImportError("plotting needs matplotlib, a dependency of perierr: reinstall perierr") from None
     fig, axes = plt.subplots(1, 3, figsize=(13, 4), constrained_layout=True)
     for ax, (key, label, scale) in zip(axes, _PANELS):
         key = key or curves.probability

@@ -8,8 +8,11 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ..cautions import DIRECT_FRACTION, HAZARD, map_tolerance, messages
 from ..units import AU_PER_PC, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_TITLES, OUTPUTS
+from .rounding import round_interval
 from .shares import format_share, input_label
 
 __all__ = ["format_analysis", "format_value"]
@@ -100,10 +103,31 @@ def _perihelion_lines(lin, mc) -> list:
         lines.append(_row(OUTPUT_TITLES[q], nominal, sigma, mc.summaries[q], signed=q == "time_myr"))
         if q == "distance_pc":
             lines.append(_row("distance [au]", nominal, sigma, mc.summaries[q], scale=AU_PER_PC))
+    notes = {}  # each note once, with the outputs it concerns
     for q in OUTPUTS:
         if mc.summaries[q].note:
-            lines.append(f"  {OUTPUT_TITLES[q]}: {mc.summaries[q].note}")
-    return lines + _extra_quantile_lines(mc)
+            notes.setdefault(mc.summaries[q].note, []).append(OUTPUT_TITLES[q])
+    lines += [f"  {', '.join(titles)}: {note}" for note, titles in notes.items()]
+    return lines + _side_lines(mc) + _extra_quantile_lines(mc)
+
+
+#: Share of the draws on the other side of now below which the report does not mention it.
+SIDE_FRACTION = 0.001
+
+
+def _side_lines(mc) -> list:
+    """The share of draws whose perihelion is on the other side of now than the median's, when not negligible."""
+    t = np.asarray(mc.perihelion.time_myr, dtype=float)[mc.valid]
+    if t.size == 0:
+        return []
+    w = None if mc.samples.weights is None else np.asarray(mc.samples.weights, dtype=float)[mc.valid]
+    past = float(np.average(t < 0, weights=w))
+    future = mc.summaries["time_myr"].median >= 0
+    other = past if future else 1.0 - past
+    if other < SIDE_FRACTION:
+        return []
+    side, rest = ("past", "future") if future else ("future", "past")
+    return [f"  {other:.1%} of the draws have their perihelion in the {side} (the rest in the {rest})"]
 
 
 def _extra_quantile_lines(mc) -> list:
@@ -112,13 +136,16 @@ def _extra_quantile_lines(mc) -> list:
     if not extra:
         return []
     lines = ["  other quantiles (MC error in brackets):"]
-    for q in OUTPUTS:
+    rows = [(q, OUTPUT_TITLES[q], 1.0) for q in OUTPUTS]
+    rows.insert(OUTPUTS.index("distance_pc") + 1, ("distance_pc", "distance [au]", AU_PER_PC))
+    for q, title, scale in rows:
         s = mc.summaries[q]
-        err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) / 10
+        err = 0.5 * (s.quantile(0.84) - s.quantile(0.16)) * scale / 10
         cells = ", ".join(
-            f"{100 * lv:g} %: {format_value(s.quantile(lv), err)} ({s.quantile_error(lv):.2g})" for lv in extra
+            f"{100 * lv:g} %: {format_value(s.quantile(lv) * scale, err)} ({s.quantile_error(lv) * scale:.2g})"
+            for lv in extra
         )
-        lines.append(f"    {OUTPUT_TITLES[q]:<15}{cells}")
+        lines.append(f"    {title:<15}{cells}")
     return lines
 
 
@@ -147,9 +174,21 @@ def _threshold_lines(mc) -> list:
         elif t.count == mc.n:
             text = f"  > {t.lower95:.4%} (95 % bound; every draw passed)"
         else:
-            text = f"{t.probability:8.2%} ± {t.se:.2%}"
+            text = _probability(t, mc)
         lines.append(f"  {t.label:<12} {text}")
     return lines
+
+
+def _probability(t, mc) -> str:
+    """``15.21% ± 0.11%``: the probability to the place its Monte Carlo error supports (PDG rounding).
+
+    The count of draws follows when few passed or few did not (the error is then rough).
+    """
+    r = round_interval(100 * t.probability, 100 * t.se)
+    text = f"{r.value:>7}% ± {r.plus}%"
+    if mc.samples.weights is None and min(t.count, mc.n - t.count) < 100:
+        text += f" ({t.count:,} of {mc.n:,} draws)"
+    return text
 
 
 def _budget_lines(b) -> list:
