@@ -118,6 +118,11 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
         json_help="also write the full result as JSON",
     )
     p.add_argument("--levels", type=_floats, default=(), metavar="Q,Q", help="extra quantile levels, e.g. 0.025,0.975")
+    p.add_argument("--paper-table", type=Path, default=None, metavar="PATH",
+                   help="also write a table row for papers: PATH ending in .ecsv (units, provenance), .csv or .tex "
+                        "(LaTeX, rounded by the Particle Data Group rule)")
+    p.add_argument("--interval", choices=("68", "90"), default="68",
+                   help="central interval of --paper-table: 68 (16-84 %%, the default) or 90 (5-95 %%)")
     p.add_argument(
         "--target-error",
         type=float,
@@ -282,6 +287,11 @@ def _run_star(star, args, out) -> None:
     if args.json is not None:
         write_json(result.to_dict(), args.json)
         print(f"\nJSON written to {args.json}", file=out)
+    if args.paper_table is not None:
+        from .report.tables import write_table
+
+        write_table(result, args.paper_table, interval=args.interval)
+        print(f"table written to {args.paper_table}", file=out)
 
 
 def _screen(path, out) -> None:
@@ -412,12 +422,15 @@ def _prepare_outputs(args) -> None:
     from .report.files import prepare_output
 
     inputs = [p for p in (getattr(args, "star_file", None), getattr(args, "table", None)) if p is not None]
-    for option in ("json", "plot"):
+    for option in ("json", "plot", "paper_table"):
         path = getattr(args, option, None)
+        flag = "--" + option.replace("_", "-")
         if path is not None:
             if any(Path(path).exists() and Path(i).exists() and os.path.samefile(path, i) for i in inputs):
-                raise InputError(f"--{option}", str(path), "is the input file itself; give another file name")
-            note = prepare_output(path, option=f"--{option}")
+                raise InputError(flag, str(path), "is the input file itself; give another file name")
+            if option == "paper_table" and Path(path).suffix.lower() not in (".ecsv", ".csv", ".tex"):
+                raise InputError(flag, str(path), "expected a file name ending in .ecsv, .csv or .tex")
+            note = prepare_output(path, option=flag)
             if note:
                 print(f"perierr: {note}", file=sys.stderr)
 
