@@ -72,9 +72,11 @@ def test_an_asymmetric_interval_takes_the_place_of_its_narrower_side():
 def test_rounded_numbers_obey_the_rule(value, error):
     r = round_interval(value, error)
     shown = Decimal(r.plus)
-    # one or two significant digits (three for the "1000" of the 950-999 case is still two: 1.0e3)
-    digits = len(shown.normalize().as_tuple().digits)
-    assert 1 <= digits <= 2
+    # the number of significant digits the rule asks for, from the three highest-order digits of the error
+    # written out here: 100-354 -> 2, 355-949 -> 1, 950-999 -> 2 (of the rounded-up 1000)
+    leading = int(f"{error:.15e}".replace(".", "")[:3])
+    expected = 1 if 355 <= leading <= 949 else 2
+    assert shown.adjusted() - r.place + 1 == expected  # digits from the first one to the place kept
     # the printed uncertainty is the rule's: within half a unit of the last place, or rounded up to 10^(k+1)
     unit = 10.0**r.place
     assert abs(float(shown) - error) <= 0.5 * unit * (1 + 1e-9) or float(shown) == pytest.approx(10 * unit)
