@@ -311,6 +311,12 @@ CASES = [
     Case("goal-garbage", star_fields(), {"*": refused("goal", "d_ph")}, modes=("plan",),
          extra=("--goal-width", "d_ph")),
     Case("points-zero", star_fields(), {"*": refused("--points", "0")}, modes=("plan",), extra=("--points", "0")),
+    # found by the wide fuzz tier: a speed of 4e-208 km/s (its square underflows) with a parallax within its
+    # noise skipped the slowest-speed check and gave NaN derivatives
+    Case("speed-square-underflows", star_fields(pmra=0.0, pmdec=-8.757082497908126e-209,
+                                                radial_velocity=-8.757082497908126e-209, parallax=1.0,
+                                                parallax_error=1.0),
+         {"*": refused("radial_velocity", "4.24e-208", "meaningful time")}),
 ]  # END OF CASES
 
 

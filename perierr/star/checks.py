@@ -10,7 +10,16 @@ import math
 
 from ..cautions import Caution
 from ..errors import InputError
-from ..units import AU_PER_PC, KMS_PER_MASYR_AT_1MAS, MAS_PC, PMDEC, PMRA, RADIAL_VELOCITY, SPEED_OF_LIGHT_KMS
+from ..units import (
+    AU_PER_PC,
+    KMS_PER_MASYR_AT_1MAS,
+    MAS_PC,
+    PARALLAX,
+    PMDEC,
+    PMRA,
+    RADIAL_VELOCITY,
+    SPEED_OF_LIGHT_KMS,
+)
 
 __all__ = ["plausibility", "require_motion", "require_positive_parallax", "require_uncertainty", "unit_slips"]
 
@@ -66,10 +75,7 @@ def plausibility(values, row) -> list:
             )
         return _plausibility_notes(values, row)
     if 0 < speed < _SLOWEST_KMS:
-        raise InputError(
-            "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
-            "perihelion within any meaningful time; give exact zeros for motions that were not measured", row
-        )
+        _refuse_slow(rv, speed, row)
     if speed >= SPEED_OF_LIGHT_KMS:
         field, value = ("radial_velocity", rv) if abs(rv) >= SPEED_OF_LIGHT_KMS else (pm_field, values[pm_field])
         raise InputError(
@@ -133,7 +139,11 @@ def require_positive_parallax(parallax: float, *, method: str) -> None:
 
 
 def require_motion(mean) -> None:
-    """Refuse a star with no measured motion relative to the Sun (no perihelion exists)."""
+    """Refuse a star with no measured motion relative to the Sun (no perihelion exists).
+
+    A speed below ``_SLOWEST_KMS`` at the nominal parallax counts as none (the rule the reading checks apply;
+    below about 1e-154 km/s the perihelion time -(r.v)/|v|^2 is not even defined in floating point).
+    """
     if mean[PMRA] == 0 and mean[PMDEC] == 0 and mean[RADIAL_VELOCITY] == 0:
         raise InputError(
             "radial_velocity",
@@ -141,6 +151,19 @@ def require_motion(mean) -> None:
             "with pmra = pmdec = 0 as well the star does not move relative to the Sun, so it has no "
             "perihelion; check the input (a zero proper motion or radial velocity is usually a missing value)",
         )
+    parallax = float(mean[PARALLAX])
+    tangential = KMS_PER_MASYR_AT_1MAS * math.hypot(mean[PMRA], mean[PMDEC]) / parallax if parallax > 0 else 0.0
+    speed = math.hypot(tangential, mean[RADIAL_VELOCITY])
+    if 0 < speed < _SLOWEST_KMS:  # also when the parallax is within its noise (the reading checks skip it then)
+        _refuse_slow(float(mean[RADIAL_VELOCITY]), speed)
+
+
+def _refuse_slow(rv: float, speed: float, row=None) -> None:
+    """The one refusal of a star slower than ``_SLOWEST_KMS`` (no perihelion within any meaningful time)."""
+    raise InputError(
+        "radial_velocity", rv, f"the star moves at {speed:.3g} km/s (below {_SLOWEST_KMS:g}): it has no "
+        "perihelion within any meaningful time; give exact zeros for motions that were not measured", row
+    )
 
 
 def require_uncertainty(sigma) -> None:
