@@ -34,14 +34,16 @@ def _pyplot():
     return plt
 
 
-def _save(fig, path):
-    if path is None:
-        return
-    suffix = Path(path).suffix.lower()
-    if suffix not in _FORMATS:
+def _check_path(path) -> None:
+    """Refuse a file name whose format the figures cannot be written in (before any drawing)."""
+    if path is not None and Path(path).suffix.lower() not in _FORMATS:
         raise InputError("figure", str(path), "expected a file name ending in .png or .pdf")
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, dpi=150, format=suffix.lstrip("."))
+
+
+def _save(fig, path):
+    if path is not None:
+        with atomic_path(path) as tmp:
+            fig.savefig(tmp, dpi=150, format=Path(path).suffix.lower().lstrip("."))
 
 
 def distance_figure(analysis, path=None, *, unit: str = "au"):
@@ -60,8 +62,7 @@ def distance_figure(analysis, path=None, *, unit: str = "au"):
     """
     if unit not in ("au", "pc"):
         raise InputError("unit", unit, "expected 'au' or 'pc'")
-    if path is not None and Path(path).suffix.lower() not in _FORMATS:
-        raise InputError("figure", str(path), "expected a file name ending in .png or .pdf")
+    _check_path(path)
     plt = _pyplot()
     mc = analysis.monte_carlo
     scale = AU_PER_PC if unit == "au" else 1.0
@@ -107,8 +108,7 @@ def budget_figure(analysis, path=None, *, output: str = "distance_pc"):
     """
     if analysis.budget is None:
         raise InputError("budget", "none", "an analysis with a linear budget (the linearization failed or was off)")
-    if path is not None and Path(path).suffix.lower() not in _FORMATS:
-        raise InputError("figure", str(path), "expected a file name ending in .png or .pdf")
+    _check_path(path)
     shares = analysis.budget.share(output)
     plt = _pyplot()
     names = list(shares)
