@@ -123,6 +123,12 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
                         "(LaTeX, rounded by the Particle Data Group rule)")
     p.add_argument("--interval", choices=("68", "90"), default="68",
                    help="central interval of --paper-table: 68 (16-84 %%, the default) or 90 (5-95 %%)")
+    p.add_argument("--figures", type=Path, default=None, metavar="PATH",
+                   help="also draw the figures: PATH ending in .png or .pdf is the pattern, e.g. figs/k4.png writes "
+                        "figs/k4-distance.png, -corner, -separation and -budget")
+    p.add_argument("--page", type=Path, default=None, metavar="PATH",
+                   help="also write the one-page report: PATH ending in .html (self-contained) or .pdf (printed by "
+                        "a headless Chromium, which must be installed)")
     p.add_argument(
         "--target-error",
         type=float,
@@ -292,6 +298,40 @@ def _run_star(star, args, out) -> None:
 
         write_table(result, args.paper_table, interval=args.interval)
         print(f"table written to {args.paper_table}", file=out)
+    if args.figures is not None:
+        from .report.figures import write_figures
+
+        for path in write_figures(result, args.figures, seed=result.monte_carlo.samples.seed, option="--figures"):
+            print(f"figure written to {path}", file=out)
+    if args.page is not None:
+        from .report.html import write_page
+
+        write_page(result, args.page, plan=_page_plan(result, args))
+        print(f"one-page report written to {args.page}", file=out)
+
+
+def _page_plan(result, args):
+    """The one-page report's plan: the what-if of halving the error that dominates d_ph.
+
+    None when the planner cannot take this analysis: a distance prior, an uncertain parallax zero-point,
+    focusing, or no linear budget. The planner starts from the star as analysed (zero-point and error
+    inflation applied).
+    """
+    uncertain_zero_point = result.calibration is not None and result.calibration.zero_point_error_mas > 0
+    if result.budget is None or result.prior is not None or uncertain_zero_point or args.focusing:
+        return None
+    from .plan import plan
+    from .plan.update import to_catalogue
+    from .units import DEC, INDEX
+
+    name = result.budget.dominant("distance_pc")
+    dec = float(result.star.mean[DEC])
+    half = float(to_catalogue(name, result.star.sigma[INDEX[name]], dec=dec)) / 2
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        return plan(result.star, model=_model(args), measure={name: half}, curves=False, budget=False,
+                    n_whatif=min(args.samples, 20_000), seed=result.monte_carlo.samples.seed,
+                    thresholds=args.within, progress=None)  # fmt: skip
 
 
 def _screen(path, out) -> None:
@@ -422,14 +462,26 @@ def _prepare_outputs(args) -> None:
     from .report.files import prepare_output
 
     inputs = [p for p in (getattr(args, "star_file", None), getattr(args, "table", None)) if p is not None]
-    for option in ("json", "plot", "paper_table"):
-        path = getattr(args, option, None)
+    outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "page")]
+    if getattr(args, "figures", None) is not None:
+        from .report.figures import figure_paths
+
+        outputs += [("figures", p) for p in figure_paths(args.figures, option="--figures")]
+    for option, path in outputs:
         flag = "--" + option.replace("_", "-")
         if path is not None:
             if any(Path(path).exists() and Path(i).exists() and os.path.samefile(path, i) for i in inputs):
                 raise InputError(flag, str(path), "is the input file itself; give another file name")
             if option == "paper_table" and Path(path).suffix.lower() not in (".ecsv", ".csv", ".tex"):
                 raise InputError(flag, str(path), "expected a file name ending in .ecsv, .csv or .tex")
+            if option == "page" and Path(path).suffix.lower() not in (".html", ".htm", ".pdf"):
+                raise InputError(flag, str(path), "expected a file name ending in .html (.htm) or .pdf")
+            if option == "page" and Path(path).suffix.lower() == ".pdf":
+                from .report.html import find_browser
+
+                if find_browser() is None:
+                    raise InputError(flag, str(path), "a PDF needs Chromium (not found on PATH); give a .html "
+                                     "file name for the self-contained page")  # fmt: skip
             note = prepare_output(path, option=flag)
             if note:
                 print(f"perierr: {note}", file=sys.stderr)

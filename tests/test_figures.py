@@ -78,3 +78,45 @@ def test_the_budget_bars_are_the_shares(analysis, tmp_path):
     shares = analysis.budget.share("distance_pc")
     assert sorted(b.get_width() for b in bars) == pytest.approx(sorted(100 * v for v in shares.values()), rel=1e-12)
     assert (tmp_path / "b.png").stat().st_size > 10_000
+
+
+def test_linear_and_global_budgets_side_by_side(analysis, tmp_path):
+    # the global budget's own numbers are the reference: its variance shares, their bootstrap interval ends and
+    # the closed-form linear shares over the same inputs (perierr.budget.global_mc)
+    from perierr.budget.global_mc import global_budget
+    from perierr.models import StraightLine
+
+    g = global_budget(analysis.star, StraightLine(), n_outer=500, width=False, n_boot=100, seed=2)
+    path = tmp_path / "bg.png"
+    fig = budget_figure(analysis, path, output="distance_pc", global_budget=g)
+    ax = fig.axes[0]
+    names = dict(zip(ax.get_yticks(), (t.get_text() for t in ax.get_yticklabels())))
+
+    def name_of(y):
+        return names[min(names, key=lambda tick: abs(tick - y))]
+
+    linear, globl = [c for c in ax.containers if c.__class__.__name__ == "BarContainer"]
+    assert "linearized" in linear.get_label() and "global" in globl.get_label()
+    j = g.variance.outputs.index("distance_pc")
+    for bar in linear:
+        i = g.inputs.index(name_of(bar.get_y() + bar.get_height() / 2))
+        assert abs(bar.get_width() / 100 - g.linear_variance[j, i]) < 1e-9
+        assert bar.get_hatch() == "///"
+    for bar in globl:
+        i = g.inputs.index(name_of(bar.get_y() + bar.get_height() / 2))
+        assert abs(bar.get_width() / 100 - g.variance.shares[j, i]) < 1e-9
+        assert not bar.get_hatch()
+    assert len(linear) == len(globl) == 6
+    # the error bars run from each global share's interval low end to its high end
+    (errors,) = [c for c in ax.containers if c.__class__.__name__ == "ErrorbarContainer"]
+    segments = errors.lines[2][0].get_segments()
+    assert len(segments) == 6
+    for seg in segments:
+        (x0, y0), (x1, _) = seg
+        i = g.inputs.index(name_of(y0))
+        assert abs(x0 / 100 - g.variance.low[j, i]) < 1e-9 and abs(x1 / 100 - g.variance.high[j, i]) < 1e-9
+    assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    budget_figure(analysis, tmp_path / "bg.pdf", output="time_myr", global_budget=g)
+    assert (tmp_path / "bg.pdf").read_bytes()[:5] == b"%PDF-"
+    with pytest.raises(InputError, match="output"):
+        budget_figure(analysis, output="speed_kms", global_budget=g)  # the global budget has t_ph and d_ph only

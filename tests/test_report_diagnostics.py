@@ -86,15 +86,16 @@ def test_perihelia_beyond_the_window_are_explained_with_what_to_do():
 
 
 def test_a_map_error_above_the_tolerance_and_direct_integrations_are_explained():
-    # a tolerance of 1e-9 au: the check finds the map above it, and the draws predicted above it are integrated
-    a = run(make_model("orbit", map_tolerance_au=1e-9))
+    # a tolerance of 1e-11 au (the demo's map error is ~1e-9 au, and its third digit moves with the numpy/scipy
+    # build): the check finds the map above it, and the draws predicted above it are integrated
+    a = run(make_model("orbit", map_tolerance_au=1e-11))
     diag = a.monte_carlo.perihelion.diagnostics
     n_direct = diag.fallback_samples + diag.sparse_samples
-    assert diag.map_error_au_max > 1e-9 and n_direct > 0.1 * 600
+    assert diag.map_error_au_max > 1e-11 and n_direct > 0.1 * 600
     lines = model_lines(format_analysis(a))
     assert lines[1] == (
         f"  map check: against direct integration of {diag.n_checked} draws its largest error was "
-        f"{diag.map_error_au_max:.3g} au, above the tolerance of 1e-09 au: the map fits some draws poorly, so every "
+        f"{diag.map_error_au_max:.3g} au, above the tolerance of 1e-11 au: the map fits some draws poorly, so every "
         "draw predicted above the tolerance (twice the check's largest error) was integrated directly"
     )
     assert lines[2].startswith(f"  direct integration: {n_direct:,} draws ({n_direct / 600:.1%}) were integrated "
@@ -105,16 +106,16 @@ def test_a_map_error_above_the_tolerance_and_direct_integrations_are_explained()
 
 
 def test_method_map_keeps_mapped_answers_above_the_tolerance_and_says_so():
-    a = run(make_model("orbit", method="map", map_tolerance_au=1e-9))
+    a = run(make_model("orbit", method="map", map_tolerance_au=1e-11))
     diag = a.monte_carlo.perihelion.diagnostics
-    assert diag.map_error_au_max > 1e-9
-    assert (f"its largest error was {diag.map_error_au_max:.3g} au, above the tolerance of 1e-09 au, and method "
+    assert diag.map_error_au_max > 1e-11
+    assert (f"its largest error was {diag.map_error_au_max:.3g} au, above the tolerance of 1e-11 au, and method "
             '"map" kept the mapped answers: d_ph may be off by that much; use method "auto" (the default)'
             ) in format_analysis(a)  # fmt: skip
     (caution,) = [c for c in a.cautions if c.code == "map-error"]
     assert caution.message.startswith(
         f"the orbit maps' check against direct integration found errors up to "
-        f"{diag.map_error_au_max:.3g} au, above its tolerance of 1e-09 au"
+        f"{diag.map_error_au_max:.3g} au, above its tolerance of 1e-11 au"
     )
 
 

@@ -1,0 +1,82 @@
+"""The paper faces from the command line: figures and the one-page report, checked before the work."""
+
+import contextlib
+import io
+import warnings
+
+import matplotlib.image as mpimg
+import numpy as np
+import pytest
+
+from perierr import analyze
+from perierr.cli import EXIT_INPUT, main
+from perierr.demo import demo_path
+from perierr.errors import PerierrWarning
+from perierr.report.rounding import round_interval
+from perierr.star import read_star_file
+
+STAR = str(demo_path("kestrel-4.toml"))
+BASE = ["run", STAR, "--model", "straight_line", "--samples", "4000", "--seed", "3", "--quiet"]
+
+
+def _run(argv):
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stderr(err):
+        status = main(argv, out=out)
+    return status, out.getvalue(), err.getvalue()
+
+
+def test_figures_and_page_are_written_from_one_run(tmp_path):
+    status, out, _ = _run(BASE + ["--figures", str(tmp_path / "k4.png"), "--page", str(tmp_path / "k4.html")])
+    assert status == 0
+    names = ("distance", "corner", "separation", "budget")
+    for name in names:
+        path = tmp_path / f"k4-{name}.png"
+        assert f"figure written to {path}" in out
+        image = mpimg.imread(path)  # matplotlib's PNG reader is the reference decoder
+        # a figure, not an empty canvas: at least 2 % of the pixels are not white
+        assert image.shape[0] > 300 and image.shape[1] > 300
+        assert np.mean(image[..., :3].min(axis=2) < 0.9) > 0.02, name
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([f"k4-{n}.png" for n in names] + ["k4.html"])
+    page = (tmp_path / "k4.html").read_text(encoding="utf-8")
+    assert page.startswith("<!DOCTYPE html>") and "Kestrel-4 (invented)" in page
+    # the page quotes the same rounded median as the API with the same star, model, draws and seed
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        a = analyze(read_star_file(STAR), model="straight_line", n_samples=4000, seed=3)
+    s = a.monte_carlo.summaries["speed_kms"]
+    r = round_interval(s.median, s.median - s.quantile(0.16), s.quantile(0.84) - s.median)
+    assert f"{r.value}" in page
+    # the page's plan: the what-if of halving the error that dominates d_ph (the demo star on straight lines:
+    # its pmdec, 0.029 mas/yr in the star file), on the run's seed
+    assert a.budget.dominant("distance_pc") == "pmdec"
+    assert 'id="plan"' in page and "Measure pmdec to 0.0145 mas/yr" in page
+
+
+def test_a_page_without_a_plan_when_the_planner_cannot_follow(tmp_path):
+    # a parallax zero-point is not a planner input yet: the page says what dominates the error instead
+    status, _, _ = _run(BASE + ["--parallax-offset=-0.017,0.005", "--page", str(tmp_path / "k4.html")])
+    assert status == 0
+    page = (tmp_path / "k4.html").read_text(encoding="utf-8")
+    assert 'id="plan"' not in page and 'id="dominates"' in page
+
+
+def test_pdf_figures_are_pdf(tmp_path):
+    status, out, _ = _run(BASE + ["--figures", str(tmp_path / "k4.pdf")])
+    assert status == 0
+    for name in ("distance", "corner", "separation", "budget"):
+        assert (tmp_path / f"k4-{name}.pdf").read_bytes()[:5] == b"%PDF-"  # the PDF header (ISO 32000-1, 7.5.2)
+
+
+@pytest.mark.parametrize(("option", "value", "expected"), [
+    ("--figures", "k4.svg", "ending in .png or .pdf"),
+    ("--figures", "missing/k4.png", "does not exist"),
+    ("--page", "k4.txt", "ending in .html (.htm) or .pdf"),
+    ("--page", "missing/k4.html", "does not exist"),
+])  # fmt: skip
+def test_bad_output_names_are_refused_before_the_work(tmp_path, option, value, expected):
+    status, out, err = _run(BASE + [option, str(tmp_path / value)])
+    assert status == EXIT_INPUT
+    assert option in err and expected in err
+    assert out == ""  # refused before the analysis: no report printed
+    assert [p for p in tmp_path.rglob("*") if p.is_file()] == []
