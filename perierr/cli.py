@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import re
 import sys
 import warnings
 from pathlib import Path
@@ -34,6 +35,28 @@ def _floats(text: str) -> list:
 
 def _strings(text: str) -> list:
     return [x.strip() for x in text.split(",") if x.strip()]
+
+
+def _attach_negative_values(argv: list) -> list:
+    """``--parallax-offset -0.017,0.005`` read as ``--parallax-offset=-0.017,0.005``.
+
+    argparse takes a word that starts with '-' for an option unless it is a plain negative number; a value
+    such as ``-0.017,0.005`` (a number with its error) or ``-20,10`` (a window) would be refused. No option
+    name and no file of ours starts with '-' and a digit, so such a word after an option is its value.
+    """
+    out = []
+    for word in argv:
+        if (out and out[-1].startswith("--") and "=" not in out[-1] and re.match(r"^-\.?\d", str(word))
+                and out[-1] not in _FLAGS):
+            out[-1] = f"{out[-1]}={word}"
+        else:
+            out.append(word)
+    return out
+
+
+#: Options that take no value (a negative number after one of them is not its value).
+_FLAGS = frozenset({"--quiet", "--focusing", "--screen-only", "--dask", "--no-ecsv", "--curves", "--no-curves",
+                    "--budget", "--no-budget", "--help", "--version"})  # fmt: skip
 
 
 def _check_distances(args) -> None:
@@ -191,7 +214,8 @@ def _parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="run the whole job on the bundled (invented) demo survey")
     _add_analysis_options(demo)
     run = sub.add_parser("run", help="analyse one star from a TOML star file (or one row of a table)")
-    run.add_argument("star_file", type=Path, metavar="STAR_FILE")
+    run.add_argument("star_file", type=Path, nargs="+", metavar="STAR_FILE",
+                     help="a TOML star file; several files give one report each and one --paper-table row each")
     _add_row_options(run)
     _add_analysis_options(run)
     screen = sub.add_parser("screen", help="nominal perihelion and linear errors for every row of a small table, "
@@ -285,10 +309,43 @@ def _read_star(path, args=None):
         return ObservedStar.from_mapping(mapping, row=row, strict=False)
 
 
-def _run_star(star, args, out) -> None:
+def _analyze(star, args):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)  # the report lists them
-        result = analyze(star, **_analysis_kwargs(args))
+        return analyze(star, **_analysis_kwargs(args))
+
+
+def _run_stars(args, out) -> None:
+    """Several star files: one report each, one row each in the paper table (every file read before the work)."""
+    for option in ("json", "figures", "page", "row", "source_id"):
+        if getattr(args, option, None) is not None:
+            flag = "--" + option.replace("_", "-")
+            raise InputError(flag, str(getattr(args, option)), f"works with one star file; {len(args.star_file)} "
+                             "were given (--paper-table takes several)")  # fmt: skip
+    def in_file(path, work):
+        try:
+            return work()
+        except InputError as exc:  # name the file among several
+            raise InputError(f"{path}: {exc.field}", exc.value, exc.expected, exc.row) from None
+
+    stars = [in_file(path, lambda path=path: _read_star(path, args)) for path in args.star_file]
+    results = []
+    for k, (path, star) in enumerate(zip(args.star_file, stars)):
+        if k:
+            print("\n" + "=" * 100 + "\n", file=out)
+        print(f"[{k + 1} of {len(stars)}] {path}\n", file=out)
+        result = in_file(path, lambda star=star: _analyze(star, args))
+        print(format_analysis(result), file=out)
+        results.append(result)
+    if args.paper_table is not None:
+        from .report.tables import write_table
+
+        write_table(results, args.paper_table, interval=args.interval)
+        print(f"\ntable of {len(results)} stars written to {args.paper_table}", file=out)
+
+
+def _run_star(star, args, out) -> None:
+    result = _analyze(star, args)
     print(format_analysis(result), file=out)
     if args.json is not None:
         write_json(result.to_dict(), args.json)
@@ -318,7 +375,9 @@ def _page_plan(result, args):
     inflation applied).
     """
     uncertain_zero_point = result.calibration is not None and result.calibration.zero_point_error_mas > 0
-    if result.budget is None or result.prior is not None or uncertain_zero_point or args.focusing:
+    d = result.monte_carlo.summaries["distance_pc"]
+    no_spread = not d.quantile(0.95) > d.quantile(0.05)  # nothing for a measurement to narrow
+    if result.budget is None or result.prior is not None or uncertain_zero_point or args.focusing or no_spread:
         return None
     from .plan import plan
     from .plan.update import to_catalogue
@@ -370,14 +429,14 @@ def _add_plan_parser(sub) -> None:
         action="append",
         default=[],
         metavar="OUTPUT=VALUE",
-        help="goal: 90%% interval width at most VALUE (e.g. d_ph='1500 au', t_ph=0.01)",
+        help="goal: 90%% interval width at most VALUE, with its unit (e.g. d_ph='1500 au', t_ph='0.01 Myr')",
     )
     p.add_argument(
         "--goal-sigma",
         action="append",
         default=[],
         metavar="OUTPUT=VALUE",
-        help="goal: standard deviation at most VALUE (bare numbers in pc, Myr, km/s)",
+        help="goal: standard deviation at most VALUE, with its unit (e.g. d_ph='500 au', v_ph='0.2 km/s')",
     )
     p.add_argument(
         "--goal-decide",
@@ -399,7 +458,8 @@ def _add_plan_parser(sub) -> None:
         "--budget", action=argparse.BooleanOptionalAction, default=True, help="global (Monte Carlo Shapley) budget"
     )
     p.add_argument("--points", type=_count, default=20, metavar="N", help="precisions per gain curve (default 20)")
-    p.add_argument("--curve-within", default="20000 au", metavar="D", help="threshold of the probability curve")
+    p.add_argument("--curve-within", default=None, metavar="D",
+                   help="threshold of the probability curve (default: the first --goal-decide, else 20000 au)")
     p.add_argument(
         "--samples", type=_count, default=20_000, metavar="N", help="common draws for curves and goals (default 20000)"
     )
@@ -413,7 +473,8 @@ def _add_plan_parser(sub) -> None:
     _add_common_options(
         p, within_help="distances for P(d_ph < D) in the what-if summaries", json_help="also write the plan as JSON"
     )
-    p.add_argument("--plot", type=Path, default=None, metavar="PATH", help="save the gain curves")
+    p.add_argument("--plot", type=Path, default=None, metavar="PATH",
+                   help="save the gain curves: PATH ending in .png, .pdf or .svg")
 
 
 def _plan(args, out) -> None:
@@ -424,6 +485,15 @@ def _plan(args, out) -> None:
     measure = [parse_measure(text, dec=float(star.mean[1])) for text in args.measure]
     goals = [parse_goal("width90", t) for t in args.goal_width] + [parse_goal("sigma", t) for t in args.goal_sigma]
     goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
+    if args.solve_for is not None:
+        from .plan.update import input_name
+
+        try:  # checked with or without a goal
+            args.solve_for = [input_name(name) for name in args.solve_for]
+        except InputError as exc:
+            raise InputError("--solve-for", exc.value, exc.expected) from None
+    if args.curve_within is None:  # the probability curve answers the question asked, if one was
+        args.curve_within = args.goal_decide[0] if args.goal_decide else "20000 au"
     result = plan(
         star,
         model=_model(args),
@@ -461,7 +531,9 @@ def _prepare_outputs(args) -> None:
     """Check every output path before any work, and remove old results there (said on stderr)."""
     from .report.files import prepare_output
 
-    inputs = [p for p in (getattr(args, "star_file", None), getattr(args, "table", None)) if p is not None]
+    star_files = getattr(args, "star_file", None)
+    star_files = [star_files] if isinstance(star_files, Path) else list(star_files or [])
+    inputs = star_files + ([args.table] if getattr(args, "table", None) is not None else [])
     outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "page")]
     if getattr(args, "figures", None) is not None:
         from .report.figures import figure_paths
@@ -474,6 +546,10 @@ def _prepare_outputs(args) -> None:
                 raise InputError(flag, str(path), "is the input file itself; give another file name")
             if option == "paper_table" and Path(path).suffix.lower() not in (".ecsv", ".csv", ".tex"):
                 raise InputError(flag, str(path), "expected a file name ending in .ecsv, .csv or .tex")
+            if option == "plot" and Path(path).suffix.lower() not in (".png", ".pdf", ".svg"):
+                raise InputError(flag, str(path), "expected a file name ending in .png, .pdf or .svg")
+            if option == "plot" and not getattr(args, "curves", True):
+                raise InputError(flag, str(path), "draws the gain curves, which --no-curves turns off")
             if option == "page" and Path(path).suffix.lower() not in (".html", ".htm", ".pdf"):
                 raise InputError(flag, str(path), "expected a file name ending in .html (.htm) or .pdf")
             if option == "page" and Path(path).suffix.lower() == ".pdf":
@@ -495,7 +571,10 @@ def _dispatch(args, out) -> int:
         print("\nFull analysis of the closest pass:\n", file=out)
         _run_star(_read_star(demo_path("kestrel-4.toml")), args, out)
     elif args.command == "run":
-        _run_star(_read_star(args.star_file, args), args, out)
+        if len(args.star_file) == 1:
+            _run_star(_read_star(args.star_file[0], args), args, out)
+        else:
+            _run_stars(args, out)
     elif args.command == "screen":
         _screen(args.table, out)
     elif args.command == "plan":
@@ -563,6 +642,7 @@ def main(argv=None, out=None) -> int:
     """
     out = out or sys.stdout
     # a usage error touches no file: until the options are read, no word is known to be an output path
+    argv = _attach_negative_values(sys.argv[1:] if argv is None else list(argv))
     args = _parser().parse_args(argv)  # usage errors: argparse prints the usage and exits with status 2
     try:
         _prepare_outputs(args)

@@ -59,13 +59,13 @@ class ThresholdProbability:
     se : float
         Binomial Monte Carlo standard error ``sqrt(p (1 - p) / n_eff)``.
     upper95 : float
-        95 % upper bound on the probability when no sample passed
+        95 % upper bound on the probability when no sample passed (P = 0; samples of zero weight do not count)
         (``1 - 0.05^(1/n_eff)``), else ``min(1, probability + 2 se)``.
     count : int
         Samples below the threshold.
     lower95 : float
-        95 % lower bound when every sample passed (``0.05^(1/n_eff)``), else
-        ``max(0, probability - 2 se)``.
+        95 % lower bound when every sample passed (P = 1; samples of zero weight do not count)
+        (``0.05^(1/n_eff)``), else ``max(0, probability - 2 se)``.
     """
 
     label: str
@@ -111,9 +111,12 @@ def threshold_probability(distance_pc, threshold_pc, *, label, weights=None) -> 
     else:
         w = np.asarray(weights, dtype=float)
         wsum = w.sum()
-        p = min(1.0, float(np.dot(below, w) / wsum))  # dot vs sum rounding can exceed 1 by 1 ulp
+        # dot vs sum rounding can exceed 1 by 1 ulp, or fall short of it when all the weight passed
+        p = 1.0 if float(np.dot(~below, w)) == 0.0 else min(1.0, float(np.dot(below, w) / wsum))
         n_eff = float(wsum**2 / np.dot(w, w))
     se = math.sqrt(p * (1 - p) / n_eff)
-    upper = 1.0 - 0.05 ** (1.0 / n_eff) if count == 0 else min(1.0, p + 2 * se)
-    lower = 0.05 ** (1.0 / n_eff) if count == d.size else max(0.0, p - 2 * se)
+    # no (or every) sample passed, counted by weight: samples of zero weight (outside a prior's support) do not
+    # count, so a weighted P can be exactly 0 or 1 while some of them passed (or failed)
+    upper = 1.0 - 0.05 ** (1.0 / n_eff) if p == 0.0 else min(1.0, p + 2 * se)
+    lower = 0.05 ** (1.0 / n_eff) if p == 1.0 else max(0.0, p - 2 * se)
     return ThresholdProbability(label, float(threshold_pc), p, se, upper, count, lower)

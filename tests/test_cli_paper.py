@@ -2,7 +2,9 @@
 
 import contextlib
 import io
+import re
 import warnings
+from pathlib import Path
 
 import matplotlib.image as mpimg
 import numpy as np
@@ -80,3 +82,48 @@ def test_bad_output_names_are_refused_before_the_work(tmp_path, option, value, e
     assert option in err and expected in err
     assert out == ""  # refused before the analysis: no report printed
     assert [p for p in tmp_path.rglob("*") if p.is_file()] == []
+
+
+def _second_star(tmp_path):
+    # an invented second star: the demo star's file with another name and a slower radial velocity
+    text = Path(STAR).read_text(encoding="utf-8")
+    text = re.sub(r'^name = .*$', 'name = "Kestrel-9 (invented)"', text, flags=re.M)
+    text = re.sub(r"^radial_velocity = .*$", "radial_velocity = -24.0", text, flags=re.M)
+    path = tmp_path / "k9.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def test_several_star_files_give_one_row_each_in_order(tmp_path):
+    from astropy.table import QTable
+
+    from perierr.report import result_table
+
+    k9 = _second_star(tmp_path)
+    table = tmp_path / "stars.ecsv"
+    argv = ["run", STAR, str(k9), "--model", "straight_line", "--samples", "2000", "--seed", "5", "--quiet",
+            "--paper-table", str(table)]  # fmt: skip
+    status, out, _ = _run(argv)
+    assert status == 0
+    assert f"[1 of 2] {STAR}" in out and f"[2 of 2] {k9}" in out
+    back = QTable.read(table, format="ascii.ecsv")
+    assert list(back["star"]) == ["Kestrel-4 (invented)", "Kestrel-9 (invented)"]
+    # each row is what the API gives for that star alone, with the same model, draws and seed
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        api = [analyze(read_star_file(p), model="straight_line", n_samples=2000, seed=5) for p in (STAR, k9)]
+    expect = result_table(api)
+    for column in ("t_ph", "d_ph", "d_ph_plus", "v_ph_minus"):
+        np.testing.assert_allclose(np.asarray(back[column]), np.asarray(expect[column]), rtol=1e-12)
+
+
+def test_several_star_files_refuse_one_star_outputs_and_name_a_bad_file(tmp_path):
+    k9 = _second_star(tmp_path)
+    status, out, err = _run(["run", STAR, str(k9), "--json", str(tmp_path / "r.json"), "--quiet"])
+    assert status == EXIT_INPUT and "--json" in err and "one star file" in err and out == ""
+    bad = tmp_path / "bad.toml"
+    bad.write_text(Path(k9).read_text(encoding="utf-8") + "paralax = 3.0\n", encoding="utf-8")  # a misspelt field
+    status, out, err = _run(["run", STAR, str(bad), "--model", "straight_line", "--quiet",
+                             "--paper-table", str(tmp_path / "t.tex")])  # fmt: skip
+    assert status == EXIT_INPUT and str(bad) in err
+    assert out == "" and not (tmp_path / "t.tex").exists()  # every file is read before the work

@@ -75,3 +75,23 @@ def test_draws_on_the_other_side_of_now_are_counted_when_not_negligible():
     assert f"{other:.1%} of the draws have their perihelion in the {side}" in format_analysis(a)
     # a clean star (all draws in the future) has no such line
     assert "of the draws have their perihelion in the" not in format_analysis(run(invented(), n_samples=20_000))
+
+
+def test_all_the_weight_passing_reads_as_a_bound_not_a_zero_error():
+    # an invented star with a tiny parallax under a short distance prior: the reweighting gives zero weight to the
+    # draws outside the prior's support (parallax <= 0), so P(d_ph < 10^6 pc) is exactly 1 by weight while not
+    # every draw passed; the face gives the 95 % bound of "all passed" with the Kish effective size (Kish 1965),
+    # 0.05^(1/n_eff), instead of failing on a zero Monte Carlo error
+    star = ObservedStar.from_values(
+        ra=201.3705, dec=-27.6214, parallax=0.001, parallax_error=0.3, pmra=0.01, pmra_error=0.035, pmdec=0.01,
+        pmdec_error=0.029, radial_velocity=-250.0, radial_velocity_error=0.6, name="far (invented)",
+    )
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        a = analyze(star, model="straight_line", n_samples=20_000, seed=1, distance_prior="edsd:L=100pc",
+                    prior_method="reweight", thresholds=("1pc", "1000000pc"))  # fmt: skip
+    t = a.monte_carlo.thresholds[1]
+    assert t.probability == 1.0 and t.count < a.monte_carlo.n  # the premise: zero weights among the failures
+    n_eff = a.monte_carlo.samples.effective_size
+    text = format_analysis(a)
+    assert f"> {0.05 ** (1 / n_eff):.4%} (95 % bound; all the weight passed)" in text

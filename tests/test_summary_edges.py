@@ -607,3 +607,25 @@ def test_every_weighted_draw_passing_gives_probability_exactly_one():
     n_eff = w.sum() ** 2 / np.dot(w, w)
     assert t.probability == 1.0 and t.se == 0.0 and t.count == 10
     assert t.lower95 == pytest.approx(0.05 ** (1 / n_eff), rel=1e-12, abs=0)
+
+
+def test_weighted_bounds_count_weight_not_draws():
+    # draws of zero weight (outside a prior's support) neither pass nor fail: when all the weight passes, P = 1 and
+    # the 95 % lower bound is the one for "every draw passed" with the Kish effective size n_eff = (sum w)^2 /
+    # sum w^2 (Kish 1965, Survey Sampling), 0.05^(1/n_eff) -- not P - 2 se = 1; symmetrically for P = 0
+    from perierr.thresholds import threshold_probability
+
+    d = np.array([0.5, 0.6, 0.7, 5.0, 6.0])
+    w = np.array([1.0, 2.0, 1.0, 0.0, 0.0])
+    n_eff = 4.0**2 / 6.0
+    t = threshold_probability(d, 1.0, label="1 pc", weights=w)
+    assert (t.probability, t.se, t.count) == (1.0, 0.0, 3)
+    assert t.lower95 == pytest.approx(0.05 ** (1 / n_eff), rel=1e-12) and t.upper95 == 1.0
+    t = threshold_probability(np.array([5.0, 6.0, 7.0, 0.5, 0.6]), 1.0, label="1 pc", weights=w)
+    assert (t.probability, t.count) == (0.0, 2)
+    assert t.upper95 == pytest.approx(1 - 0.05 ** (1 / n_eff), rel=1e-12) and t.lower95 == 0.0
+    # weights whose sum rounds differently from their dot product with the passing mask: still exactly 1
+    w = np.full(5, 0.1)
+    w[3:] = 0.0
+    w[:3] = [0.1, 0.7, 0.2 + 1e-17]
+    assert threshold_probability(d, 1.0, label="1 pc", weights=w).probability == 1.0

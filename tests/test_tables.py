@@ -142,3 +142,24 @@ def test_the_cli_writes_the_same_row_as_the_api(tmp_path):
     with contextlib.redirect_stderr(err):
         assert main(bad, out=io.StringIO()) == 2
     assert "--paper-table" in err.getvalue() and ".ecsv, .csv or .tex" in err.getvalue()
+
+
+def test_two_priors_give_two_provenances():
+    # the prior's parameters, its sampling method and the effective size are part of a row's provenance: two length
+    # scales of the same prior must not read alike (their d_ph differ several-fold for a weak parallax)
+    star = ObservedStar.from_values(ra=45.0, dec=20.0, parallax=1.5, parallax_error=0.3, pmra=0.01, pmra_error=0.05,
+                                    pmdec=0.02, pmdec_error=0.05, radial_velocity=-60.0, radial_velocity_error=1.0,
+                                    name="weak (invented)")  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        rows = [analyze(star, model="straight_line", n_samples=3000, seed=2, distance_prior=f"edsd:L={L}pc",
+                        prior_method="reweight", compare=False) for L in (300, 1350)]  # fmt: skip
+    t = result_table(rows)
+    assert t["prior"][0] != t["prior"][1]
+    assert "300" in t["prior"][0] and "1350" in t["prior"][1]
+    assert list(t["prior_method"]) == ["reweight", "reweight"]
+    # the Kish effective size of each row's weights (Kish 1965, Survey Sampling): (sum w)^2 / sum w^2
+    for a, ess in zip(rows, t["effective_size"]):
+        w = np.asarray(a.monte_carlo.samples.weights, dtype=float)
+        assert ess == pytest.approx(w.sum() ** 2 / np.dot(w, w), rel=1e-9)
+        assert ess < t["n_draws"][0]

@@ -73,6 +73,11 @@ def _pyplot():
     return plt
 
 
+def _name(analysis) -> str:
+    """The star's name as figure text: ``$`` escaped, so matplotlib shows it as written (no math mode)."""
+    return str(analysis.star.name or "star").replace("$", r"\$")
+
+
 def _check_path(path) -> None:
     """Refuse a file name whose format the figures cannot be written in (before any drawing)."""
     if path is not None and Path(path).suffix.lower() not in _FORMATS:
@@ -116,11 +121,17 @@ def distance_figure(analysis, path=None, *, unit: str = "au"):
     w = None if mc.samples.weights is None else np.asarray(mc.samples.weights, dtype=float)[mc.valid]
     s = mc.summaries["distance_pc"]
     q = {lv: s.quantile(lv) * scale for lv in (0.05, 0.16, 0.5, 0.84, 0.95)}
-    fig, ax = plt.subplots(figsize=(6.4, 4.0), constrained_layout=True)
-    lo, hi = np.quantile(d, [0.001, 0.999]) if w is None else (q[0.05], q[0.95])
+    lo, hi = (float(v) for v in weighted_quantiles(d, [0.001, 0.999], w))
     span = hi - lo
+    if not span > 0:
+        raise InputError("distance", f"{q[0.5]:.6g} {unit}", "draws that spread in d_ph (every draw gives the same "
+                         "perihelion distance: there is no distribution to draw)")  # fmt: skip
+    fig, ax = plt.subplots(figsize=(6.4, 4.0), constrained_layout=True)
     bins = np.linspace(max(lo - 0.1 * span, 0.0), hi + 0.1 * span, 60)
-    ax.hist(d, bins=bins, weights=w, density=True, color=PALETTE[2], edgecolor=PALETTE[5], linewidth=0.5)
+    # a density of the whole distribution (divided by the total weight, not by the part inside the plotted range)
+    density = np.histogram(d, bins=bins, weights=w)[0] / (float(d.size if w is None else w.sum()) * np.diff(bins))
+    ax.stairs(density, bins, fill=True, color=PALETTE[2])
+    ax.stairs(density, bins, color=PALETTE[5], linewidth=0.5)
     ax.axvspan(q[0.05], q[0.95], color=PALETTE[1], alpha=0.15, hatch="//", label="5-95 %")
     ax.axvspan(q[0.16], q[0.84], color=PALETTE[1], alpha=0.30, label="16-84 %")
     ax.axvline(q[0.5], color=PALETTE[0], lw=1.5, label=f"median {q[0.5]:,.5g} {unit}")
@@ -130,9 +141,9 @@ def distance_figure(analysis, path=None, *, unit: str = "au"):
             ax.axvline(x, color=PALETTE[6], lw=1.2, ls=(0, (4, 2 + k)), label=f"{t.label}: P = {t.probability:.3g}")
     ax.set_xlabel(f"perihelion distance d_ph [{unit}]")
     ax.set_ylabel(f"probability density [1/{unit}]")
-    name = analysis.star.name or "star"
-    ax.set_title(f"{name}: {OUTPUT_TITLES['distance_pc'].split(' [')[0]} at perihelion ({mc.n:,} draws)",
-                 fontsize="medium")
+    weighted = "" if w is None else f", weighted: effective size {mc.samples.effective_size:,.0f}"
+    ax.set_title(f"{_name(analysis)}: {OUTPUT_TITLES['distance_pc'].split(' [')[0]} at perihelion "
+                 f"({mc.n_valid:,} draws{weighted})", fontsize="medium")
     ax.legend(fontsize="small", frameon=False)
     _save(fig, path)
     return fig
@@ -254,7 +265,9 @@ def corner_figure(analysis, path=None, *, inputs: bool = False, unit: str = "au"
     fig = corner.corner(
         data, bins=bins, range=ranges, weights=w, color=PALETTE[5],
         labels=[f"{_SYMBOLS[n]} [{lab}]" for n, _, lab, _ in kept], label_kwargs={"fontsize": "medium"},
-        levels=CONTOUR_LEVELS, smooth=0.8, plot_datapoints=True, plot_density=False, fill_contours=True,
+        # corner draws the single points without their weights: for reweighted draws they would show the Gaussian
+        # proposal, not the posterior, so only the weighted contours are drawn then
+        levels=CONTOUR_LEVELS, smooth=0.8, plot_datapoints=w is None, plot_density=False, fill_contours=True,
         # corner draws the contours in increasing density: the 86 % line first, then the 39 % one
         contour_kwargs={"colors": PALETTE[0], "linestyles": ["--", "-"], "linewidths": [1.0, 1.3]},
         contourf_kwargs={"colors": [(1.0, 1.0, 1.0, 0.0), to_rgba(PALETTE[2], 0.45), to_rgba(PALETTE[5], 0.6)]},
@@ -278,7 +291,7 @@ def corner_figure(analysis, path=None, *, inputs: bool = False, unit: str = "au"
             Line2D([], [], color=PALETTE[0], lw=1.3, ls="-", label=f"{100 * CONTOUR_LEVELS[0]:.0f} % of draws inside"),
             Line2D([], [], color=PALETTE[0], lw=1.0, ls="--", label=f"{100 * CONTOUR_LEVELS[1]:.0f} % of draws inside"),
         ]  # fmt: skip
-    about = [f"{analysis.star.name or 'star'}", f"{mc.n_valid:,} draws, model {analysis.model.get('name', '?')}"]
+    about = [_name(analysis), f"{mc.n_valid:,} draws, model {analysis.model.get('name', '?')}"]
     if w is not None:
         about.append(f"weighted ({mc.samples.method}), effective size {mc.samples.effective_size:,.0f}")
     if inputs:
@@ -515,7 +528,7 @@ def separation_figure(analysis, path=None, *, n_tracks: int = 400, unit: str = "
     ax.set_xlabel(f"time from the epoch [{OUTPUT_LABELS['time_myr']}]")
     ax.set_ylabel(f"distance from the Sun [{unit}]")
     mc = analysis.monte_carlo
-    ax.set_title(f"{analysis.star.name or 'star'}: {len(bands.rows):,} of {mc.n_valid:,} draws followed"
+    ax.set_title(f"{_name(analysis)}: {len(bands.rows):,} of {mc.n_valid:,} draws followed"
                  + (" (weighted)" if bands.weights is not None else ""), fontsize="medium")  # fmt: skip
     ax.legend(fontsize="small", frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0))  # off the curves
     _save(fig, path)
@@ -565,7 +578,7 @@ def budget_figure(analysis, path=None, *, output: str = "distance_pc", global_bu
         ax.text(v, y, f" {v:.1f} %", va="center", fontsize="small")
     ax.set_xlim(0, max(100.0, values.max() * 1.15))
     ax.set_xlabel(f"share of the variance of the {OUTPUT_TITLES[output].split(' [')[0]} [%] (linearized Shapley)")
-    ax.set_title(f"{analysis.star.name or 'star'}: who sets the error", fontsize="medium")
+    ax.set_title(f"{_name(analysis)}: who sets the error", fontsize="medium")
     _save(fig, path)
     return fig
 
@@ -607,7 +620,7 @@ def _budget_pair(analysis, path, output, budget):
     ax.set_xlim(min(0.0, float(np.nanmin(np.concatenate([glob, low]))) * 1.15), top)
     ax.axvline(0.0, color=PALETTE[0], lw=0.6)
     ax.set_xlabel(f"share of the variance of the {OUTPUT_TITLES[output].split(' [')[0]} [%] (Shapley)")
-    ax.set_title(f"{analysis.star.name or 'star'}: who sets the error, linearized and global", fontsize="medium")
+    ax.set_title(f"{_name(analysis)}: who sets the error, linearized and global", fontsize="medium")
     ax.legend(fontsize="small", frameon=False, loc="lower right")
     _save(fig, path)
     return fig
@@ -666,10 +679,15 @@ def write_figures(analysis, pattern, *, seed=None, option: str = "figures") -> l
         "separation": lambda p: separation_figure(analysis, p, seed=seed),
         "budget": lambda p: budget_figure(analysis, p),
     }
-    written = []
-    for name, path in paths.items():
-        if name == "budget" and analysis.budget is None:
-            continue
-        plt.close(draw[name](path))  # written: free the figure (a command draws several)
-        written.append(path)
-    return written
+    figures = {}
+    try:  # every figure is drawn before any is written: a figure that cannot be drawn leaves no file behind
+        for name in paths:
+            if name == "budget" and analysis.budget is None:
+                continue
+            figures[name] = draw[name](None)
+        for name, fig in figures.items():
+            _save(fig, paths[name])
+    finally:
+        for fig in figures.values():
+            plt.close(fig)  # free the figures (a command draws several)
+    return [paths[name] for name in figures]

@@ -53,7 +53,7 @@ from .files import atomic_path
 from .rounding import round_interval
 from .shares import format_share, input_label
 from .tables import input_digest
-from .text import SIDE_FRACTION
+from .text import SIDE_FRACTION, probability_parts
 
 __all__ = [
     "BROWSERS",
@@ -610,14 +610,12 @@ def _thresholds(mc) -> str:
     head = ['<th scope="col">threshold</th>', '<th scope="col">P(d_ph &lt; D)</th>', '<th scope="col">draws</th>']
     rows = []
     for t in mc.thresholds:
-        if t.count == 0:
-            p = f"&lt; {t.upper95:.4%} <span class=\"small\">(95 % bound; no draw passed)</span>"
-        elif t.count == mc.n:
-            p = f"&gt; {t.lower95:.4%} <span class=\"small\">(95 % bound; every draw passed)</span>"
-        else:
-            r = round_interval(100 * t.probability, 100 * t.se)
+        kind, r, why = probability_parts(t, mc.n)
+        if kind == "value":
             p = (f'<span class="iv"><span data-part="value">{r.value}</span>% ± '
                  f'<span data-part="sigma">{r.plus}</span>%</span>')
+        else:
+            p = f"{'&lt;' if kind == 'upper' else '&gt;'} {r} <span class=\"small\">(95 % bound; {_e(why)})</span>"
         count = f"{t.count:,} of {mc.n:,}" if mc.samples.weights is None else "weighted"
         rows.append(
             f'<tr data-threshold="{_e(t.label)}"><th scope="row">{_e(t.label)}</th>'
@@ -811,15 +809,21 @@ def _best_goal_routes(required) -> list:
     return lines
 
 
+def _four(x: float) -> str:
+    """A Monte Carlo width to four significant digits (its own error is about 1 %), thousands separated."""
+    x = float(f"{x:.4g}")
+    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.4g}"
+
+
 def _what_if(w) -> str:
     rows = []
-    for label, q, scale, fmt in (("d_ph [au]", "distance_pc", AU_PER_PC, ",.0f"), ("t_ph [Myr]", "time_myr", 1.0,
-                                 ".4g"), ("v_ph [km/s]", "speed_kms", 1.0, ".4g")):
+    for label, q, scale in (("d_ph [au]", "distance_pc", AU_PER_PC), ("t_ph [Myr]", "time_myr", 1.0),
+                            ("v_ph [km/s]", "speed_kms", 1.0)):
         a, b = w.mc_current.summaries[q], w.mc_improved.summaries[q]
         wa = (a.quantile(0.95) - a.quantile(0.05)) * scale
         wb = (b.quantile(0.95) - b.quantile(0.05)) * scale
-        rows.append(f'<tr><th scope="row">90 % width of {_e(label)}</th><td class="num">{wa:{fmt}}</td>'
-                    f'<td class="num">{wb:{fmt}}</td></tr>')
+        rows.append(f'<tr><th scope="row">90 % width of {_e(label)}</th><td class="num">{_four(wa)}</td>'
+                    f'<td class="num">{_four(wb)}</td></tr>')
     for t0, t1 in zip(w.mc_current.thresholds, w.mc_improved.thresholds):
         rows.append(f'<tr><th scope="row">P(d_ph &lt; {_e(t0.label)})</th><td class="num">{t0.probability:.4f}</td>'
                     f'<td class="num">{t1.probability:.4f}</td></tr>')

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from decimal import ROUND_HALF_UP, Decimal
+from decimal import ROUND_HALF_UP, Decimal, localcontext
 
 from ..errors import InputError
 
@@ -125,7 +125,13 @@ def latex_interval(value: float, minus: float, plus: float | None = None) -> str
 
 def _fixed(x: float, place: int) -> str:
     """``x`` rounded half away from zero to a multiple of ``10**place``, as a plain decimal string."""
-    d = Decimal(repr(float(x))).quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_UP)
+    exact = Decimal(repr(float(x)))
+    # enough digits for the quantized result whatever the ratio of value to error (the default context's 28 digits
+    # overflow past ~1e28, e.g. a value of 1 with an error of 1e-300)
+    digits = max(28, exact.adjusted() - place + 3)
+    with localcontext() as ctx:
+        ctx.prec = digits
+        d = exact.quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_UP)
     text = f"{d:f}"
     return text.lstrip("-") if d == 0 else text  # no "-0.00"
 

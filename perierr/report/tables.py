@@ -100,8 +100,11 @@ def result_table(analyses, *, interval: str = "68") -> QTable:
         table[name] = [a.monte_carlo.thresholds[j].probability for a in rows]
         table[f"{name}_se"] = [a.monte_carlo.thresholds[j].se for a in rows]
     table["model"] = [str(a.model.get("name", "")) for a in rows]
-    table["prior"] = [a.prior.name if a.prior is not None else "none" for a in rows]
+    table["prior"] = [_prior_text(a.prior) for a in rows]
+    table["prior_method"] = [a.prior.method if a.prior is not None else "gaussian" for a in rows]
     table["n_draws"] = [a.monte_carlo.n for a in rows]
+    # the draws' Kish effective size (reweighting) or the chain's (MCMC); n_draws for plain Gaussian draws
+    table["effective_size"] = [float(a.monte_carlo.samples.effective_size) for a in rows]
     table["seed"] = [int(a.monte_carlo.samples.seed) for a in rows]
     table["input_sha256"] = [input_digest(a) for a in rows]
     table.meta["perierr"] = {
@@ -111,6 +114,15 @@ def result_table(analyses, *, interval: str = "68") -> QTable:
         "caution": HAZARD,
     }
     return table
+
+
+def _prior_text(prior) -> str:
+    """The prior with its parameters, e.g. ``edsd(length_scale_pc=1350)``; ``none`` without one."""
+    if prior is None:
+        return "none"
+    params = ", ".join(f"{k}={v:g}" if isinstance(v, (int, float)) else f"{k}={v}"
+                       for k, v in (prior.parameters or {}).items())  # fmt: skip
+    return f"{prior.name}({params})" if params else prior.name
 
 
 def latex_rows(analyses, *, interval: str = "68") -> str:
@@ -126,8 +138,11 @@ def latex_rows(analyses, *, interval: str = "68") -> str:
     for row in table:
         cells = [_latex_text(row["star"])]
         for stem, _, unit, _ in _QUANTITIES:
-            cells.append(latex_interval(row[stem].to_value(unit), row[f"{stem}_minus"].to_value(unit),
-                                        row[f"{stem}_plus"].to_value(unit)))
+            value, minus, plus = (row[c].to_value(unit) for c in (stem, f"{stem}_minus", f"{stem}_plus"))
+            if minus > 0 and plus > 0:
+                cells.append(latex_interval(value, minus, plus))
+            else:  # no spread (every draw gives the same value): the value alone, to its float precision
+                cells.append(f"${float(value):.6g}$")
         lines.append(" & ".join(cells) + r" \\")
     return "\n".join(lines) + "\n"
 
@@ -162,9 +177,11 @@ def write_table(analyses, path, *, interval: str = "68") -> Path:
 
 
 _LATEX_SPECIAL = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-                  "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
+                  "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}",
+                  "<": r"\textless{}", ">": r"\textgreater{}", "|": r"\textbar{}"}  # the last three print as
+# other glyphs in LaTeX's default OT1 text encoding
 
 
 def _latex_text(text: str) -> str:
     """A star name safe in LaTeX (its special characters escaped, in one pass)."""
-    return re.sub(r"[\\&%$#_{}~^]", lambda m: _LATEX_SPECIAL[m.group()], str(text))
+    return re.sub(r"[\\&%$#_{}~^<>|]", lambda m: _LATEX_SPECIAL[m.group()], str(text))

@@ -169,22 +169,39 @@ def _threshold_lines(mc) -> list:
     """The chance of passing within each threshold, or a 95 % bound when no or every draw passed."""
     lines = ["Chance that the star passes within"]
     for t in mc.thresholds:
-        if t.count == 0:
-            text = f"  < {t.upper95:.4%} (95 % bound; no draw passed)"
-        elif t.count == mc.n:
-            text = f"  > {t.lower95:.4%} (95 % bound; every draw passed)"
+        kind, value, why = probability_parts(t, mc.n)
+        if kind == "upper":
+            text = f"  < {value} (95 % bound; {why})"
+        elif kind == "lower":
+            text = f"  > {value} (95 % bound; {why})"
         else:
-            text = _probability(t, mc)
+            text = _probability(t, mc, value)
         lines.append(f"  {t.label:<12} {text}")
     return lines
 
 
-def _probability(t, mc) -> str:
+def probability_parts(t, n: int) -> tuple:
+    """How a threshold probability reads: ``(kind, value, why)``, the one rule of every face.
+
+    ``("upper", "0.0030%", "no draw passed")`` when nothing passed (no draw, or only draws of zero weight),
+    ``("lower", "99.9970%", "every draw passed")`` when everything did (a 95 % bound then, as the Monte Carlo
+    error is zero), else ``("value", Rounded, "")``: the probability in percent to the place its Monte Carlo error
+    supports (PDG rounding, :func:`perierr.report.rounding.round_interval`).
+    """
+    if t.count == 0 or t.probability <= 0.0:
+        return "upper", f"{t.upper95:.4%}", "no draw passed" if t.count == 0 else "no draw of non-zero weight passed"
+    if t.count == n or t.probability >= 1.0:
+        return "lower", f"{t.lower95:.4%}", "every draw passed" if t.count == n else "all the weight passed"
+    if not (math.isfinite(t.se) and t.se > 0):  # cannot happen for 0 < P < 1 with a finite effective size
+        return "upper" if t.probability < 0.5 else "lower", f"{t.probability:.4%}", "no Monte Carlo error"
+    return "value", round_interval(100 * t.probability, 100 * t.se), ""
+
+
+def _probability(t, mc, r) -> str:
     """``15.21% ± 0.11%``: the probability to the place its Monte Carlo error supports (PDG rounding).
 
     The count of draws follows when few passed or few did not (the error is then rough).
     """
-    r = round_interval(100 * t.probability, 100 * t.se)
     text = f"{r.value:>7}% ± {r.plus}%"
     if mc.samples.weights is None and min(t.count, mc.n - t.count) < 100:
         text += f" ({t.count:,} of {mc.n:,} draws)"
