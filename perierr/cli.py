@@ -84,6 +84,17 @@ def _count(text: str) -> int:
     return value
 
 
+def _whole(text: str) -> int:
+    """A whole number >= 0 (0 turns a part off)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 0, got {value}")
+    return value
+
+
 def _horizon(text: str):
     """``H`` (the window -H .. +H Myr) or ``T_MIN,T_MAX`` [Myr], for the orbit model's ``horizon_myr``."""
     values = _floats(text)
@@ -363,34 +374,38 @@ def _run_star(star, args, out) -> None:
     if args.page is not None:
         from .report.html import write_page
 
-        write_page(result, args.page, plan=_page_plan(result, args))
+        write_page(result, args.page, plan=_page_plan(result, star, args))
         print(f"one-page report written to {args.page}", file=out)
 
 
-def _page_plan(result, args):
-    """The one-page report's plan: the what-if of halving the error that dominates d_ph.
+def _page_plan(result, star, args):
+    """The one-page report's plan: the what-if of halving the measured error that dominates d_ph.
 
-    None when the planner cannot take this analysis: a distance prior, an uncertain parallax zero-point,
-    focusing, or no linear budget. The planner starts from the star as analysed (zero-point and error
-    inflation applied).
+    The planner starts from the star as read, with the run's options (model, prior, zero-point, error inflation,
+    focusing), as the analysis did. None when there is nothing to plan against: no linear budget to say which
+    error dominates, or no spread of d_ph for a measurement to narrow.
     """
-    uncertain_zero_point = result.calibration is not None and result.calibration.zero_point_error_mas > 0
     d = result.monte_carlo.summaries["distance_pc"]
-    no_spread = not d.quantile(0.95) > d.quantile(0.05)  # nothing for a measurement to narrow
-    if result.budget is None or result.prior is not None or uncertain_zero_point or args.focusing or no_spread:
+    if result.budget is None or not d.quantile(0.95) > d.quantile(0.05):
         return None
     from .plan import plan
     from .plan.update import to_catalogue
-    from .units import DEC, INDEX
+    from .units import DEC, INDEX, OBSERVABLES
 
-    name = result.budget.dominant("distance_pc")
+    shares = result.budget.share("distance_pc")
+    measured = {k: v for k, v in shares.items() if k in OBSERVABLES and result.star.sigma[INDEX[k]] > 0}
+    if not measured:  # e.g. a budget of the zero-point alone
+        return None
+    name = max(measured, key=measured.get)
     dec = float(result.star.mean[DEC])
     half = float(to_catalogue(name, result.star.sigma[INDEX[name]], dec=dec)) / 2
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", PerierrWarning)
-        return plan(result.star, model=_model(args), measure={name: half}, curves=False, budget=False,
+        return plan(star, model=_model(args), measure={name: half}, curves=False, budget=False,
                     n_whatif=min(args.samples, 20_000), seed=result.monte_carlo.samples.seed,
-                    thresholds=args.within, progress=None)  # fmt: skip
+                    thresholds=args.within, distance_prior=args.distance_prior, prior_method=args.prior_method,
+                    parallax_offset=args.parallax_offset, error_inflation=args.inflate, focusing=args.focusing,
+                    futures=100, future_draws=1000)  # fmt: skip
 
 
 def _screen(path, out) -> None:
@@ -475,6 +490,13 @@ def _add_plan_parser(sub) -> None:
     )
     p.add_argument("--plot", type=Path, default=None, metavar="PATH",
                    help="save the gain curves: PATH ending in .png, .pdf or .svg")
+    p.add_argument("--futures", type=_whole, default=200, metavar="K",
+                   help="chance that the --measure values settle each --goal-decide: K future values drawn from "
+                        "today's predictive distribution (default 200; 0 = off)")
+    p.add_argument("--future-draws", type=_count, default=2000, metavar="N",
+                   help="draws answering each future value (default 2000)")
+    p.add_argument("--focusing", action="store_true", help="add the gravitational focusing of the star's mass")
+    _add_prior_options(p)
 
 
 def _plan(args, out) -> None:
@@ -509,6 +531,13 @@ def _plan(args, out) -> None:
         curve_threshold=args.curve_within,
         n_points=args.points,
         progress=_progress(args),
+        distance_prior=args.distance_prior,
+        prior_method=args.prior_method,
+        parallax_offset=args.parallax_offset,
+        error_inflation=args.inflate,
+        focusing=args.focusing,
+        futures=args.futures,
+        future_draws=args.future_draws,
     )
     print(format_plan(result), file=out)
     if args.json is not None:

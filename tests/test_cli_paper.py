@@ -55,12 +55,25 @@ def test_figures_and_page_are_written_from_one_run(tmp_path):
     assert 'id="plan"' in page and "Measure pmdec to 0.0145 mas/yr" in page
 
 
-def test_a_page_without_a_plan_when_the_planner_cannot_follow(tmp_path):
-    # a parallax zero-point is not a planner input yet: the page says what dominates the error instead
+def test_the_pages_plan_follows_the_runs_options(tmp_path):
+    # a parallax zero-point with its error: the page's plan starts from the star as read with the same zero-point
+    # (the planner applies it as the analysis does), so its today's d_ph width is the analysis's on those draws
     status, _, _ = _run(BASE + ["--parallax-offset=-0.017,0.005", "--page", str(tmp_path / "k4.html")])
     assert status == 0
     page = (tmp_path / "k4.html").read_text(encoding="utf-8")
-    assert 'id="plan"' not in page and 'id="dominates"' in page
+    assert 'id="plan"' in page and "Measure pmdec to 0.0145 mas/yr" in page
+    # only the position uncertain (invented): d_ph does not spread, there is nothing to plan, the page says what
+    # dominates instead
+    still = tmp_path / "still.toml"
+    text = Path(STAR).read_text(encoding="utf-8")
+    for field in ("parallax_error", "pmra_error", "pmdec_error", "radial_velocity_error"):
+        text = re.sub(rf"^{field} = .*$", f"{field} = 0.0", text, flags=re.M)
+    still.write_text(text, encoding="utf-8")
+    status, _, err = _run(["run", str(still), "--model", "straight_line", "--samples", "500", "--seed", "1",
+                           "--quiet", "--page", str(tmp_path / "still.html")])  # fmt: skip
+    assert status == 0, err
+    page = (tmp_path / "still.html").read_text(encoding="utf-8")
+    assert 'id="plan"' not in page
 
 
 def test_pdf_figures_are_pdf(tmp_path):

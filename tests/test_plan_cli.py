@@ -81,7 +81,9 @@ def test_plan_command_full_with_plot(tmp_path):
     from PIL import Image
 
     with Image.open(png) as im:
-        assert im.size == (1560, 480)  # 13 x 4 inches at 120 dpi (matplotlib savefig)
+        # one column of 2.6 inches per input (six here) and 0.8 inch of margin, 5.6 inches tall, at 130 dpi
+        # (matplotlib savefig; PIL reads the size back)
+        assert im.size == (round((2.6 * 6 + 0.8) * 130), round(5.6 * 130))
 
 
 def test_plan_command_errors(capsys):

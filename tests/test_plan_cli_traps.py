@@ -41,7 +41,9 @@ def test_the_help_asks_for_goal_units_as_the_command_does():
     with contextlib.redirect_stdout(out), pytest.raises(SystemExit):
         main(["plan", "--help"])
     text = " ".join(out.getvalue().split())
-    assert "bare numbers" not in text and text.count("with its unit") >= 2
+    for option in ("--goal-width", "--goal-sigma"):
+        part = text[text.index(option + " OUTPUT=VALUE goal"):][:160]
+        assert "bare numbers" not in part and "with its unit" in part
 
 
 def test_the_probability_curve_follows_the_decisive_goal(tmp_path):

@@ -624,8 +624,17 @@ def test_weighted_bounds_count_weight_not_draws():
     t = threshold_probability(np.array([5.0, 6.0, 7.0, 0.5, 0.6]), 1.0, label="1 pc", weights=w)
     assert (t.probability, t.count) == (0.0, 2)
     assert t.upper95 == pytest.approx(1 - 0.05 ** (1 / n_eff), rel=1e-12) and t.lower95 == 0.0
-    # weights whose sum rounds differently from their dot product with the passing mask: still exactly 1
-    w = np.full(5, 0.1)
-    w[3:] = 0.0
-    w[:3] = [0.1, 0.7, 0.2 + 1e-17]
-    assert threshold_probability(d, 1.0, label="1 pc", weights=w).probability == 1.0
+    # weights whose sum (numpy's pairwise summation) rounds differently from their dot product with the passing
+    # mask: with all the weight passing P is still exactly 1 (here dot/sum = 1 - 2.2e-16)
+    w = np.random.default_rng(0).random(1000)
+    w[-3:] = 0.0
+    far = np.where(np.arange(1000) < 997, 0.5, 5.0)
+    assert float(np.dot(far < 1.0, w) / w.sum()) < 1.0  # the premise
+    assert threshold_probability(far, 1.0, label="1 pc", weights=w).probability == 1.0
+    # and the other way: one failing draw of negligible weight, dot/sum = 1 + 4.4e-16, P capped at 1
+    w = np.random.default_rng(13).random(1000)
+    w[-1] = 1e-300
+    far = np.where(np.arange(1000) < 999, 0.5, 5.0)
+    assert float(np.dot(far < 1.0, w) / w.sum()) > 1.0  # the premise
+    t = threshold_probability(far, 1.0, label="1 pc", weights=w)
+    assert t.probability == 1.0 and t.count == 999

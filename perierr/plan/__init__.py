@@ -7,6 +7,8 @@
   floor that makes it unreachable;
 * :func:`rank_measurements` - (star, measurement) pairs for a proposal,
   optionally per telescope hour (:class:`PhotonLimitedCost`);
+* :func:`preposterior` - the chance that a measurement settles a question, its value drawn from today's
+  predictive distribution (beside the "lands on today's mean" convention of the rest);
 * :func:`plan` - all of it for one star.
 
 perierr predicts statistical encounters, not impact hazards.
@@ -16,6 +18,7 @@ from .cost import PhotonLimitedCost, Reference
 from .curves import GainCurves, gain_curves
 from .goals import Goal, decide_goal, parse_goal, spread_goal
 from .planner import Plan, plan
+from .preposterior import FutureOutcomes, PosteriorAnswer, Preposterior, preposterior
 from .rank import Ranking, rank_measurements
 from .required import RequiredPrecision, required_precision
 from .update import Measurement, make_measurement, parse_measure, update_covariance, updated_star
@@ -23,11 +26,14 @@ from .whatif import CommonDraws, WhatIf, common_draws, scenario_metrics, what_if
 
 __all__ = [
     "CommonDraws",
+    "FutureOutcomes",
     "GainCurves",
     "Goal",
     "Measurement",
     "PhotonLimitedCost",
     "Plan",
+    "PosteriorAnswer",
+    "Preposterior",
     "Ranking",
     "Reference",
     "RequiredPrecision",
@@ -39,6 +45,7 @@ __all__ = [
     "parse_goal",
     "parse_measure",
     "plan",
+    "preposterior",
     "rank_measurements",
     "required_precision",
     "scenario_metrics",

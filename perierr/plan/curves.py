@@ -2,18 +2,28 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, PerierrWarning
 from ..models.base import ForwardModel
 from ..star import ObservedStar
-from ..star.checks import require_positive_parallax
 from ..units import DEC, INDEX, OBSERVABLES, OUTPUTS, PARALLAX
 from .metrics import Metric, MetricTable
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
-from .whatif import STATISTICS, CommonDraws, common_draws, scenario_metrics
+from .whatif import (
+    STATISTICS,
+    CommonDraws,
+    _check_prior_method,
+    _min_effective_size,
+    common_draws,
+    prepare,
+    require_plannable,
+    resolve_plan_prior,
+    scenario_metrics,
+)  # fmt: skip
 
 #: The statistic :meth:`GainCurves.gain` shrinks by default: the 90 % width of d_ph.
 WIDTH90_DISTANCE = Metric("distance_pc", "width90")
@@ -40,14 +50,19 @@ class GainCurves:
         Input -> :class:`~perierr.plan.metrics.MetricTable` {Metric -> ndarray (p,)}:
         width90, std and median of each output (output units), the probability
         of ``threshold``, and each output's linear_sigma (closed form, no Monte
-        Carlo noise). Keys may also be given as strings (``"distance_pc.width90"``,
-        ``"p:<threshold>"``).
+        Carlo noise; of the Gaussian likelihood, and absent when the nominal
+        parallax is <= 0). Keys may also be given as strings (``"distance_pc.width90"``,
+        ``"p:<threshold>"``). Under a distance prior the Monte Carlo statistics
+        are of the posterior (weighted common draws).
     sigma : dict
         Input -> today's standard error, catalogue units.
     current : MetricTable
         Metric -> today's value.
     threshold : str
     settings : dict
+    effective_size : dict
+        Input -> ndarray (p,): the Kish effective sample size of each scenario's weights under a distance
+        prior (the draws with parallax > 0 without one); ``"today"`` -> today's.
     """
 
     inputs: tuple
@@ -58,6 +73,7 @@ class GainCurves:
     current: MetricTable
     threshold: str
     settings: dict = field(default_factory=dict)
+    effective_size: dict = field(default_factory=dict)
 
     @property
     def probability(self) -> Metric:
@@ -84,7 +100,9 @@ class GainCurves:
                 for name in self.inputs
             },
             "settings": dict(self.settings),
-        }
+            "effective_size": {k: (v.tolist() if isinstance(v, np.ndarray) else v)
+                               for k, v in self.effective_size.items()},
+        }  # fmt: skip
 
 
 def gain_curves(
@@ -99,6 +117,11 @@ def gain_curves(
     n: int = 20_000,
     seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
+    distance_prior=None,
+    prior_method: str = "auto",
+    parallax_offset=None,
+    error_inflation=None,
+    focusing: bool = False,
 ) -> GainCurves:
     """Gain curves for each input.
 
@@ -121,8 +144,20 @@ def gain_curves(
     seed : int, numpy.random.Generator or None
         Seed of the common draws (see :func:`perierr.sampling.gaussian.resolve_seed`).
     draws : CommonDraws, optional
+    distance_prior, prior_method
+        As in :func:`perierr.analyze`: every point of a curve is the posterior prior x the updated Gaussian
+        likelihood, from the common draws weighted by the prior (:mod:`perierr.plan.whatif`). The curves
+        always reweight (MCMC per point would lose the common random numbers); a warning says when a
+        scenario's effective sample size is below ``min(1000, n / 10)``.
+    parallax_offset, error_inflation, focusing
+        As in :func:`perierr.analyze`, applied first (:func:`perierr.plan.whatif.prepare`).
     """
-    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
+    star, model, _ = prepare(
+        star, model, parallax_offset=parallax_offset, error_inflation=error_inflation, focusing=focusing
+    )
+    prior = resolve_plan_prior(distance_prior)
+    _check_prior_method(prior_method)
+    require_plannable(star, prior)
     if int(n_points) < 2:
         raise InputError("n_points", n_points, "expected at least 2 precisions per curve")
     if not (span[0] > 0 and span[1] > 0):
@@ -130,7 +165,7 @@ def gain_curves(
     names = [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0] if inputs is None else [input_name(i) for i in inputs]
     draws = common_draws(n, seed) if draws is None else draws
     dec = float(star.mean[DEC])
-    jac = np.asarray(model.jacobian(star.mean), dtype=float)
+    jac = np.asarray(model.jacobian(star.mean), dtype=float) if star.mean[PARALLAX] > 0 else None
     covs, grids = [star.cov[None]], {}
     for name in names:
         idx = INDEX[name]
@@ -146,23 +181,35 @@ def gain_curves(
         grids[name] = grid
         covs.append(update_covariance(star.cov, idx, grid))
     allcov = np.concatenate(covs)
-    metrics = scenario_metrics(star, model, allcov, draws, thresholds=[threshold])
+    metrics = scenario_metrics(star, model, allcov, draws, thresholds=[threshold], distance_prior=prior)
     label = next(iter(metrics.probabilities))
-    lin = np.sqrt(np.maximum(np.einsum("mi,kij,mj->km", jac, allcov, jac), 0.0))  # (K, 3)
     columns = {Metric(q, s): metrics.values[Metric(q, s)] for q in OUTPUTS for s in STATISTICS}
     columns[Metric.probability(label)] = metrics.probabilities[label]
-    columns.update({Metric(q, "linear_sigma"): lin[:, j] for j, q in enumerate(OUTPUTS)})
+    if jac is not None:
+        lin = np.sqrt(np.maximum(np.einsum("mi,kij,mj->km", jac, allcov, jac), 0.0))  # (K, 3)
+        columns.update({Metric(q, "linear_sigma"): lin[:, j] for j, q in enumerate(OUTPUTS)})
+    ess = metrics.effective_size
+    if prior is not None and ess.min() < _min_effective_size(draws.n):
+        warnings.warn(
+            f"gain curves under the {prior.name} prior: the smallest effective sample size of the reweighted "
+            f"draws is {ess.min():.0f} of {draws.n:,}; the curves are noisy there (use more draws)",
+            PerierrWarning,
+            stacklevel=2,
+        )
     current = MetricTable((m, float(v[0])) for m, v in columns.items())
-    curves, start = {}, 1
+    curves, start, sizes = {}, 1, {"today": float(ess[0])}
     for name in names:
         sl = slice(start, start + grids[name].size)
         curves[name] = MetricTable((m, v[sl]) for m, v in columns.items())
+        sizes[name] = ess[sl]
         start = sl.stop
+    settings = {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)}
+    if prior is not None:
+        settings.update(distance_prior=metrics.prior, prior_method="reweight (common draws)")
     return GainCurves(
         tuple(names),
         {nm: np.asarray(to_catalogue(nm, g, dec=dec)) for nm, g in grids.items()},
         {nm: UNIT_LABELS[nm] for nm in names},
         {nm: float(to_catalogue(nm, star.sigma[INDEX[nm]], dec=dec)) for nm in names},
-        curves, current, label,
-        {"n": draws.n, "seed": draws.seed, "common_random_numbers": True, "n_points": int(n_points)},
+        curves, current, label, settings, sizes,
     )

@@ -1,24 +1,59 @@
-"""A full re-observation plan for one star: what-if, goals, gain curves, global budget."""
+"""A full re-observation plan for one star: what-if, goals, gain curves, global budget.
+
+:func:`plan` takes every star :func:`perierr.analyze` takes, with the same options: the parallax
+zero-point and error inflation are applied first (:class:`perierr.calibration.Calibration`, as in
+``analyze``), focusing wraps the model as in ``analyze``, and under a distance prior every answer is a
+posterior (prior x Gaussian likelihood, the likelihood sharpened by the hypothetical measurements; see
+:mod:`perierr.plan.whatif`). The linearized parts (the linear and global budgets) need a positive nominal
+parallax; where they cannot be computed they are None and a caution says why.
+"""
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .._version import __version__
 from ..budget import GlobalBudget, global_budget
-from ..cautions import HAZARD, Reading, linear_cautions, messages, model_difference
+from ..calibration import ZERO_POINT, CalibrationInfo
+from ..cautions import (
+    HAZARD,
+    Caution,
+    Reading,
+    emit,
+    from_warnings,
+    linear_cautions,
+    messages,
+    model_difference,
+    reading_cautions,
+    unique,
+)
 from ..comparison import is_straight_line, orbit_nominal_comparison, straight_line_comparison
-from ..models import DEFAULT_MODEL, ForwardModel, make_model
+from ..errors import InputError, PerierrWarning
+from ..models import DEFAULT_MODEL, ForwardModel
+from ..models.base import Nuisance
 from ..propagate.linear import linearize
 from ..star import ObservedStar
+from ..summary import DEFAULT_LEVELS
 from ..thresholds import DEFAULT_THRESHOLDS
 from ..units import DEC, OBSERVABLES, PARALLAX
 from .curves import GainCurves, gain_curves
 from .required import required_precision
 from .update import make_measurement
-from .whatif import WhatIf, common_draws, scenario_monte_carlo, what_if
+from .whatif import (
+    WhatIf,
+    _check_prior_method,
+    _reference,
+    _scenario_samples,
+    _what_if,
+    common_draws,
+    prepare,
+    require_plannable,
+    resolve_plan_prior,
+    scenario_monte_carlo,
+)
 
 __all__ = ["Plan", "plan"]
 
@@ -51,6 +86,17 @@ class Plan:
     orbit_comparison : dict
         The straight line: the orbit model at the nominal inputs
         (:func:`perierr.comparison.orbit_nominal_comparison`).
+    today : MonteCarloResult or None
+        Today's answer (the what-if's current one when there is a what-if, else on the common draws);
+        under a distance prior the posterior, with its effective sample size.
+    prior : dict or None
+        The distance prior (name, parameters, the samplers used and today's effective sample size).
+    calibration : CalibrationInfo or None
+        The zero-point and error inflation applied first (``star`` is the calibrated star).
+    settle : tuple of Preposterior
+        For the what-if measurements: the chance that they settle each decisive goal (or "does it pass within
+        the curves' threshold?"), their value drawn from today's predictive distribution
+        (:func:`perierr.plan.preposterior.preposterior`).
     """
 
     star: ObservedStar
@@ -64,6 +110,10 @@ class Plan:
     cautions: tuple = ()
     comparison: dict = field(default_factory=dict)
     orbit_comparison: dict = field(default_factory=dict)
+    today: object = None
+    prior: dict | None = None
+    calibration: CalibrationInfo | None = None
+    settle: tuple = ()
 
     def to_dict(self) -> dict:
         """The plan JSON: current and improved side by side; required precisions or reasons."""
@@ -86,6 +136,12 @@ class Plan:
             out["straight_line_comparison"] = self.comparison
         if self.orbit_comparison:
             out["orbit_nominal_comparison"] = self.orbit_comparison
+        if self.prior is not None:
+            out["prior"] = dict(self.prior)
+        if self.calibration is not None:
+            out["calibration"] = self.calibration.to_dict()
+        if self.settle:
+            out["settle"] = [p.to_dict() for p in self.settle]
         return out
 
 
@@ -106,6 +162,13 @@ def plan(
     n_points: int = 20,
     budget_options=None,
     progress=None,
+    distance_prior=None,
+    prior_method: str = "auto",
+    parallax_offset=None,
+    error_inflation=None,
+    focusing: bool = False,
+    futures: int = 200,
+    future_draws: int = 2000,
 ) -> Plan:
     """Plan re-observations of one star.
 
@@ -140,43 +203,222 @@ def plan(
     progress : callable, optional
         ``progress(done, total)`` of the Monte Carlo runs of today's and the improved answer (see
         :func:`perierr.propagate.monte_carlo`); it only reports.
+    distance_prior : str or prior object, optional
+        A distance prior, as in :func:`perierr.analyze`. Every answer is then the posterior, with the
+        what-if measurements sharpening the likelihood and the prior kept (:mod:`perierr.plan.whatif`);
+        a weak or non-positive parallax is accepted. Without a prior a nominal parallax <= 0 is refused.
+    prior_method : {"auto", "reweight", "mcmc"}
+        How today's and the what-if's answers are sampled, as in ``analyze``; curves and goals always
+        reweight the common draws (with a caution when the effective sample size is small).
+    parallax_offset, error_inflation
+        Zero-point (value, error) and error inflation, applied first with ``analyze``'s function; the
+        zero-point's error is an input of the budgets of its own. A what-if parallax measurement combines
+        with the corrected catalogue parallax (the update acts on the calibrated covariance).
+    focusing : bool
+        Wrap the model in the two-body focusing of the star's mass, as ``analyze`` does.
+
+    futures, future_draws : int
+        The chance that the what-if measurements settle each decisive goal (or, with none, "does it pass within
+        ``curve_threshold``?"): that many future values drawn from today's predictive distribution, each answered
+        with ``future_draws`` draws (:func:`perierr.plan.preposterior.preposterior`); ``futures=0`` leaves it out.
+
+    Returns
+    -------
+    Plan
     """
     from ..sampling.gaussian import resolve_seed
-    from ..star.checks import require_motion, require_positive_parallax, require_uncertainty
+    from ..star.checks import require_motion, require_uncertainty
 
-    if isinstance(model, str):
-        model = make_model(model)
+    catalogue = star
+    star, model, calibration = prepare(
+        star, model, parallax_offset=parallax_offset, error_inflation=error_inflation, focusing=focusing
+    )
+    prior = resolve_plan_prior(distance_prior)
+    prior_method = _check_prior_method(prior_method)
     # the same checks as analyze(): a perihelion must exist, and there must be an error to plan against
-    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
+    require_plannable(star, prior)
     require_motion(star.mean)
     require_uncertainty(star.sigma)
     seed = resolve_seed(seed)
+    calibration_block = calibration.info(catalogue) if calibration.active else None
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", PerierrWarning)
+        found, parts = _plan_parts(
+            star, model, calibration, calibration_block, prior, prior_method, measure=measure, goals=goals,
+            solve_for=solve_for, curves=curves, budget=budget, n=n, n_whatif=n_whatif, seed=seed,
+            thresholds=thresholds, curve_threshold=curve_threshold, n_points=n_points,
+            budget_options=budget_options, progress=progress, futures=futures, future_draws=future_draws,
+        )  # fmt: skip
+    lower = from_warnings(caught)
+    emit(lower)  # the lower layers' warnings reach the caller as before, and stay with the plan
+    parts["cautions"] = tuple(unique(lower + found))
+    return Plan(**parts)
+
+
+def _plan_parts(
+    star, model, calibration, calibration_block, prior, prior_method, *, measure, goals, solve_for, curves, budget,
+    n, n_whatif, seed, thresholds, curve_threshold, n_points, budget_options, progress, futures, future_draws,
+) -> tuple:  # fmt: skip
+    """The plan's pieces on the prepared star and model: (cautions found, the fields of :class:`Plan`)."""
     dec = float(star.mean[DEC])
+    positive = star.mean[PARALLAX] > 0
     wi = None
     if measure:
         items = measure.items() if isinstance(measure, dict) else None
         ms = [make_measurement(k, v, dec=dec) for k, v in items] if items is not None else list(measure)
-        wi = what_if(star, model, ms, n=n_whatif, seed=seed, thresholds=thresholds, progress=progress)
+        wi = _what_if(
+            star, model, ms, calibration, calibration_block, n=n_whatif, seed=seed, draws=None, levels=DEFAULT_LEVELS,
+            thresholds=thresholds, progress=progress, distance_prior=prior, prior_method=prior_method,
+        )  # fmt: skip
+    found = []
+    settle = ()
+    if measure and futures:
+        settle, why = _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws)
+        found += why
     draws = common_draws(n, seed)
     names = solve_for or [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0]
-    required = [required_precision(star, model, name, g, draws=draws) for g in goals for name in names]
-    gc = gain_curves(star, model, n_points=n_points, threshold=curve_threshold, draws=draws) if curves else None
-    gb = global_budget(star, model, seed=seed, **(budget_options or {})) if budget else None
-    gb1 = None
-    if budget and wi is not None:
-        gb1 = global_budget(wi.improved, model, seed=seed, **(budget_options or {}))
+    required = [
+        required_precision(star, model, name, g, draws=draws, distance_prior=prior) for g in goals for name in names
+    ]
+    gc = None
+    if curves:
+        gc = gain_curves(star, model, n_points=n_points, threshold=curve_threshold, draws=draws, distance_prior=prior)
+    gb = gb1 = None
+    if budget:
+        gb, why = _global_budget(star, model, calibration, seed, budget_options)
+        if why is not None:
+            found.append(Caution("budget-not-computed", f"the global budget was not computed: {why}", "caution",
+                                 "budget"))  # fmt: skip
+        if gb is not None and wi is not None:
+            gb1, _ = _global_budget(wi.improved, model, None, seed, budget_options)
     settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
-    today = wi.mc_current if wi is not None else scenario_monte_carlo(
-        star, model, draws, thresholds=thresholds, progress=progress
-    )  # fmt: skip
+    if wi is not None:
+        today = wi.mc_current
+    elif prior is None:
+        today = scenario_monte_carlo(star, model, draws, thresholds=thresholds, progress=progress)
+    else:
+        today = _prior_today(star, model, draws, prior, prior_method, thresholds, progress)
+    reference = star.mean if positive else _reference(star, today.samples)
     comparison, orbit_comparison = {}, {}
     if is_straight_line(model):
-        orbit_comparison = orbit_nominal_comparison(star.mean, today)
+        if reference[PARALLAX] > 0:
+            orbit_comparison = orbit_nominal_comparison(reference, today)
     else:
-        comparison = straight_line_comparison(today, model, star.mean)
-    cautions = linear_cautions(star, linearize(star, model))
-    differs = model_difference(Reading(star, None, today, False, comparison, orbit_comparison))
-    cautions += [] if differs is None else [differs]
-    return Plan(
-        star, model.describe(), wi, required, gc, gb, gb1, settings, tuple(cautions), comparison, orbit_comparison
-    )
+        comparison = straight_line_comparison(today, model, reference)
+    linear = linearize(star, model) if positive else None
+    prior_block = None
+    if prior is None:
+        found += linear_cautions(star, linear)
+        differs = model_difference(Reading(star, None, today, False, comparison, orbit_comparison))
+        found += [] if differs is None else [differs]
+    else:
+        found += reading_cautions(star, linear, today, True, comparison=comparison, orbit_comparison=orbit_comparison)
+        prior_block = {
+            "name": prior.name,
+            "parameters": prior.parameters,
+            "prior_method": prior_method,
+            "today_method": today.samples.method,
+            "today_effective_size": today.samples.effective_size,
+            "curves_and_goals": "the common draws weighted by the prior (importance reweighting)",
+        }
+        settings["distance_prior"] = {"name": prior.name, "parameters": prior.parameters}
+        found += _prior_cautions(star, budget, gb, positive)
+    return found, {
+        "star": star, "model": model.describe(), "what_if": wi, "required": required, "curves": gc, "budget": gb,
+        "budget_improved": gb1, "settings": settings, "comparison": comparison, "orbit_comparison": orbit_comparison,
+        "today": today, "prior": prior_block, "calibration": calibration_block, "settle": settle,
+    }  # fmt: skip
+
+
+def _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws) -> tuple:
+    """The chance that the measurements settle each decisive goal: (Preposterior per goal, cautions)."""
+    from ..errors import InputError
+    from .goals import decide_goal
+    from .preposterior import preposterior
+
+    decisive = [g for g in goals if g.kind == "decide"] or [decide_goal(curve_threshold)]
+    out, found = [], []
+    for g in decisive:
+        try:
+            out.append(preposterior(star, model, ms, goal=g, n_future=futures, n_inner=future_draws, seed=seed,
+                                    prior=prior, thresholds=thresholds))  # fmt: skip
+        except InputError as exc:
+            found.append(Caution("settle-not-computed", f"the chance that the new data settle '{g.describe()}' was "
+                                 f"not computed: {exc}", "caution", "plan"))  # fmt: skip
+    return tuple(out), found
+
+
+def _prior_today(star, model, draws, prior, prior_method, thresholds, progress):
+    """Today's posterior under the prior on the plan's common draws (or MCMC where ``analyze`` would run it)."""
+    from ..propagate.montecarlo import nuisance_rng, propagate_samples
+
+    samples = _scenario_samples(star, prior, draws, prior_method)
+    return propagate_samples(
+        samples, model, reference=_reference(star, samples), rng=nuisance_rng(draws.seed), thresholds=thresholds,
+        progress=progress,
+    )  # fmt: skip
+
+
+def _prior_cautions(star, budget, gb, positive) -> list:
+    """What a reader of a plan under a distance prior should know about its budgets."""
+    if not (budget and gb is not None and positive):
+        return []
+    return [Caution(
+        "budget-likelihood",
+        "the budgets (global and linear) share out the Gaussian catalogue errors: the distance prior is not in "
+        "them, while the intervals, probabilities, curves and goals are those of the posterior",
+        "note", "budget",
+    )]  # fmt: skip
+
+
+def _global_budget(star, model, calibration, seed, budget_options):
+    """The global budget, with the zero-point as an input of its own; (None, reason) where it cannot be computed."""
+    zero_error = 0.0 if calibration is None else float(calibration.zero_point_error)
+    game_star, game_model = star, model
+    if zero_error > 0:
+        cov = np.array(star.cov)
+        cov[PARALLAX, PARALLAX] -= zero_error**2
+        game_star = ObservedStar(np.array(star.mean), cov, name=star.name, source_id=star.source_id,
+                                 ref_epoch=star.ref_epoch, mass=star.mass, mass_error=star.mass_error)  # fmt: skip
+        game_model = _ZeroPoint(model, zero_error)
+    try:
+        return global_budget(game_star, game_model, seed=seed, **(budget_options or {})), None
+    except InputError as err:
+        if err.field not in ("parallax", "parallax_error"):
+            raise
+        return None, err.expected
+
+
+class _ZeroPoint(ForwardModel):
+    """A model whose first nuisance parameter is the parallax zero-point (for the global budget only).
+
+    The star given with it carries the catalogue parallax variance (the zero-point's taken out); a deviate
+    u of the zero-point lowers the corrected parallax by ``sigma_Z u`` (corrected = catalogue - Z), so its
+    gradient is ``- d output / d parallax`` as in :meth:`perierr.calibration.Calibration.budget_inputs`.
+    """
+
+    def __init__(self, base, zero_point_error):
+        self.base = base
+        self.sigma = float(zero_point_error)
+        self.name = base.name
+
+    def describe(self) -> dict:
+        return self.base.describe()
+
+    def evaluate(self, observables, *, reference=None, progress=None):
+        return self.base.evaluate(observables, reference=reference)
+
+    def jacobian(self, point):
+        return self.base.jacobian(point)
+
+    def nuisance(self, point) -> tuple:
+        grad = -np.asarray(self.base.jacobian(point), dtype=float)[:, PARALLAX]
+        return (Nuisance(ZERO_POINT, grad, self.sigma**2),) + tuple(self.base.nuisance(point))
+
+    def evaluate_nuisance(self, observables, deviates, *, reference=None):
+        x = np.array(observables, dtype=float)
+        u = np.asarray(deviates, dtype=float).reshape(x.shape[0], -1)
+        x[:, PARALLAX] -= self.sigma * u[:, 0]
+        if u.shape[1] > 1:
+            return self.base.evaluate_nuisance(x, u[:, 1:], reference=reference)
+        return self.base.evaluate(x, reference=reference)

@@ -18,11 +18,18 @@ import numpy as np
 
 from ..models.base import ForwardModel
 from ..star import ObservedStar
-from ..star.checks import require_positive_parallax
-from ..units import DEC, INDEX, PARALLAX, errors_to_internal
+from ..units import DEC, INDEX, errors_to_internal
 from .goals import Goal
 from .update import UNIT_LABELS, input_name, to_catalogue, update_covariance
-from .whatif import CommonDraws, common_draws, scenario_metrics
+from .whatif import (
+    CommonDraws,
+    _check_prior_method,
+    common_draws,
+    prepare,
+    require_plannable,
+    resolve_plan_prior,
+    scenario_metrics,
+)
 
 __all__ = ["RequiredPrecision", "required_precision"]
 
@@ -105,6 +112,11 @@ def required_precision(
     seed: int | np.random.Generator | None = None,
     draws: CommonDraws | None = None,
     iterations: int = 40,
+    distance_prior=None,
+    prior_method: str = "auto",
+    parallax_offset=None,
+    error_inflation=None,
+    focusing: bool = False,
 ) -> RequiredPrecision:
     """Largest standard error of a new measurement of ``input`` that reaches ``goal``.
 
@@ -124,8 +136,20 @@ def required_precision(
     iterations : int
         Bisection steps in log precision (40 give a relative precision ~1e-6
         of one grid step).
+    distance_prior, prior_method
+        As in :func:`perierr.analyze`: the goal's statistic is that of the posterior prior x the updated
+        Gaussian likelihood, from the common draws weighted by the prior (always reweighting, as the gain
+        curves; ``settings`` reports the effective sample sizes today and at the answer).
+    parallax_offset, error_inflation, focusing
+        As in :func:`perierr.analyze`, applied first (:func:`perierr.plan.whatif.prepare`); ``current_sigma``
+        is then the calibrated error.
     """
-    require_positive_parallax(star.mean[PARALLAX], method="the re-observation planner")
+    star, model, _ = prepare(
+        star, model, parallax_offset=parallax_offset, error_inflation=error_inflation, focusing=focusing
+    )
+    prior = resolve_plan_prior(distance_prior)
+    _check_prior_method(prior_method)
+    require_plannable(star, prior)
     name = input_name(input)
     idx = INDEX[name]
     draws = common_draws(n, seed) if draws is None else draws
@@ -133,8 +157,12 @@ def required_precision(
     dec = float(star.mean[DEC])
     sigma = float(star.sigma[idx])
 
+    sizes = {}
+
     def metric(covs):
-        return scenario_metrics(star, model, covs, draws, thresholds=thresholds).metric(goal.metric)
+        m = scenario_metrics(star, model, covs, draws, thresholds=thresholds, distance_prior=prior)
+        sizes["last"] = m.effective_size
+        return m.metric(goal.metric)
 
     def evaluate(precisions):
         return metric(update_covariance(star.cov, idx, np.asarray(precisions, dtype=float)))
@@ -143,6 +171,13 @@ def required_precision(
     unit = UNIT_LABELS[name]
     sig_cat = float(to_catalogue(name, sigma, dec=dec))
     settings = {"n": draws.n, "seed": draws.seed, "method": "common random numbers, log-grid + bisection"}
+    if prior is not None:
+        settings.update(
+            distance_prior={"name": prior.name, "parameters": prior.parameters},
+            prior_method="reweight (common draws)",
+            effective_size_today=float(sizes["last"][0]),
+            effective_size_floor=float(sizes["last"][1]),
+        )
 
     def result(status, precision, achieved, message):
         return RequiredPrecision(name, goal, status, precision, unit, sig_cat, now, floor, achieved, message, settings)
@@ -150,10 +185,18 @@ def required_precision(
     close = _boundary_note(goal, now, draws.n)
     if goal.met(now):
         return result("already_met", None, now, f"already met today ({goal.format(now)}){close}")
+    if prior is not None and not np.isfinite(floor):
+        return result("unreachable", None, None, (
+            f"cannot be evaluated with an exact {name}: no common draw of that scenario lies where the "
+            f"{prior.name} prior is non-zero (importance weights cannot represent it); ask a what-if of one "
+            "precision instead, which can run MCMC"
+        ))  # fmt: skip
     if not goal.met(floor):
         return result("unreachable", None, None, _unreachable_message(name, sigma, goal, floor))
     lo = _largest_precision(evaluate, goal, sigma * _GRID, iterations)
     precision, back = _checked_precision(evaluate, goal, name, lo, dec)
+    if prior is not None:
+        settings["effective_size_at_precision"] = float(sizes["last"][0])
     return result(
         "reachable",
         precision,

@@ -37,6 +37,40 @@ def _what_if_lines(w) -> list:
     return out
 
 
+def _settle_lines(settle) -> list:
+    """Will the new data settle the question? Each decisive goal, with the futures drawn from today's predictive."""
+    out = ["Will the new data settle it? (the new value drawn from today's predictive distribution)", ""]
+    for pp in settle:
+        o = pp.outcomes[0]
+        what = " and ".join(m.label for m in o.measurements)
+        r = _percent(o.p_settle, o.p_settle_se)
+        today = f"{'settled' if pp.today.settled else 'not settled'} today ({pp.goal.format(pp.today.value)})"
+        mean = f"{'settled' if o.on_mean.settled else 'not settled'} ({pp.goal.format(o.on_mean.value)})"
+        w = o.width_summary("distance_pc")
+        out += [
+            f"  {pp.goal.describe()}: {today}",
+            f"    after {what}: settled in {r} of the possible outcomes",
+            f"    if the new value landed on today's mean: {mean}",
+            f"    90 % width of d_ph afterwards: median {w['median'] * AU_PER_PC:,.0f} au (5-95 % of outcomes "
+            f"{w['q05'] * AU_PER_PC:,.0f} .. {w['q95'] * AU_PER_PC:,.0f} au; today "
+            f"{pp.today.width90['distance_pc'] * AU_PER_PC:,.0f} au), expected gain {pp.expected_gain():.0%}",
+        ]
+    first = settle[0]
+    out.append(f"  ({first.n_future} possible outcomes, each answered with {first.n_inner:,} draws; seed "
+               f"{first.seed})")
+    return out
+
+
+def _percent(p, se) -> str:
+    """A probability in percent with its Monte Carlo error, PDG-rounded (a bound at 0 or 1)."""
+    from .rounding import round_interval
+
+    if se > 0:
+        r = round_interval(100 * p, 100 * se)
+        return f"{r.value} % ± {r.plus} %"
+    return f"{100 * p:.0f} % (every outcome alike)"
+
+
 def _curve_lines(c) -> list:
     key = WIDTH90_DISTANCE
     out = [f"Gain curves: 90 % width of d_ph [au] vs new precision (today {c.current[key] * AU_PER_PC:,.0f} au)", ""]
@@ -101,6 +135,8 @@ def format_plan(plan) -> str:
     lines = [title, ""]
     if plan.what_if is not None:
         lines += _what_if_lines(plan.what_if) + [""]
+    if getattr(plan, "settle", ()):
+        lines += _settle_lines(plan.settle) + [""]
     if plan.required:
         lines.append("Goals:")
         for r in plan.required:
