@@ -114,3 +114,20 @@ def test_readme_latex_row_and_figures_are_the_demos():
     assert "$20700 \\pm 600$" in block
     images = re.findall(r"!\[[^\]]*\]\(([^)]+)\)", text)
     assert images and all((README.parent / i).stat().st_size > 10_000 for i in images)
+
+
+def test_readme_settle_excerpt_is_what_the_planner_prints():
+    # every line of the README's "will the new data settle it?" excerpt appears verbatim in the command's output
+    import io
+    import shlex
+
+    from perierr.cli import main
+
+    text = README.read_text(encoding="utf-8")
+    block = re.search(r"\*\*Will the new data settle it\?\*\*.*?```bash\n(.*?)```\n\n```\n(.*?)```", text, flags=re.S)
+    argv = shlex.split(block.group(1).strip())[1:]
+    out = io.StringIO()
+    assert main(argv + ["--quiet"], out=out) == 0
+    printed = out.getvalue().splitlines()
+    lines = [line for line in block.group(2).splitlines() if line.strip()]
+    assert len(lines) == 3 and not [line for line in lines if line not in printed]
