@@ -490,6 +490,10 @@ def _add_plan_parser(sub) -> None:
     )
     p.add_argument("--plot", type=Path, default=None, metavar="PATH",
                    help="save the gain curves: PATH ending in .png, .pdf or .svg")
+    p.add_argument("--proposal", type=Path, default=None, metavar="PATH",
+                   help="write a paragraph for a proposal (.txt or .md): today's answer and what --measure buys")
+    p.add_argument("--proposal-figure", type=Path, default=None, metavar="PATH",
+                   help="the d_ph distribution today and after --measure (.png or .pdf)")
     p.add_argument("--futures", type=_whole, default=200, metavar="K",
                    help="chance that the --measure values settle each --goal-decide: K future values drawn from "
                         "today's predictive distribution (default 200; 0 = off)")
@@ -543,6 +547,16 @@ def _plan(args, out) -> None:
     if args.json is not None:
         write_json(result.to_dict(), args.json)
         print(f"\nJSON written to {args.json}", file=out)
+    if args.proposal is not None:
+        from .report.proposal import write_proposal
+
+        write_proposal(result, args.proposal)
+        print(f"proposal paragraph written to {args.proposal}", file=out)
+    if args.proposal_figure is not None:
+        from .report.proposal import proposal_figure
+
+        proposal_figure(result, args.proposal_figure)
+        print(f"proposal figure written to {args.proposal_figure}", file=out)
     if args.plot is not None and result.curves is not None:
         from .report.plan_plot import plot_gain_curves
 
@@ -563,7 +577,8 @@ def _prepare_outputs(args) -> None:
     star_files = getattr(args, "star_file", None)
     star_files = [star_files] if isinstance(star_files, Path) else list(star_files or [])
     inputs = star_files + ([args.table] if getattr(args, "table", None) is not None else [])
-    outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "page")]
+    outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "page", "proposal",
+                                                      "proposal_figure")]
     if getattr(args, "figures", None) is not None:
         from .report.figures import figure_paths
 
@@ -579,6 +594,12 @@ def _prepare_outputs(args) -> None:
                 raise InputError(flag, str(path), "expected a file name ending in .png, .pdf or .svg")
             if option == "plot" and not getattr(args, "curves", True):
                 raise InputError(flag, str(path), "draws the gain curves, which --no-curves turns off")
+            if option in ("proposal", "proposal_figure") and not getattr(args, "measure", None):
+                raise InputError(flag, str(path), "says what a measurement buys: give one with --measure INPUT=PREC")
+            if option == "proposal" and Path(path).suffix.lower() not in (".txt", ".md"):
+                raise InputError(flag, str(path), "expected a file name ending in .txt or .md")
+            if option == "proposal_figure" and Path(path).suffix.lower() not in (".png", ".pdf"):
+                raise InputError(flag, str(path), "expected a file name ending in .png or .pdf")
             if option == "page" and Path(path).suffix.lower() not in (".html", ".htm", ".pdf"):
                 raise InputError(flag, str(path), "expected a file name ending in .html (.htm) or .pdf")
             if option == "page" and Path(path).suffix.lower() == ".pdf":

@@ -42,6 +42,7 @@ __all__ = [
     "ERROR_UNITS",
     "FIELD_UNITS",
     "INDEX",
+    "INPUT_WORDS",
     "INTERNAL_LABELS",
     "INTERNAL_UNITS",
     "KMS_PER_MASYR_AT_1MAS",
@@ -114,6 +115,13 @@ OUTPUT_LABELS = MappingProxyType({"time_myr": "Myr", "distance_pc": "pc", "speed
 OUTPUT_UNITS = MappingProxyType({name: u.Unit(label) for name, label in OUTPUT_LABELS.items()})
 
 #: Row titles of the outputs in text reports.
+#: Each observable in words, for sentences (a proposal's paragraph).
+INPUT_WORDS = MappingProxyType({
+    "ra": "right ascension", "dec": "declination", "parallax": "parallax",
+    "pmra": "proper motion in right ascension", "pmdec": "proper motion in declination",
+    "radial_velocity": "radial velocity",
+})  # fmt: skip
+
 OUTPUT_TITLES = MappingProxyType(
     {"time_myr": "time [Myr]", "distance_pc": "distance [pc]", "speed_kms": "speed [km/s]"}
 )
