@@ -53,11 +53,12 @@ def _settle_lines(settle) -> list:
             f"    if the new value landed on today's mean: {mean}",
             f"    90 % width of d_ph afterwards: median {w['median'] * AU_PER_PC:,.0f} au (5-95 % of outcomes "
             f"{w['q05'] * AU_PER_PC:,.0f} .. {w['q95'] * AU_PER_PC:,.0f} au; today "
-            f"{pp.today.width90['distance_pc'] * AU_PER_PC:,.0f} au), expected gain {pp.expected_gain():.0%}",
+            f"{pp.today.width90['distance_pc'] * AU_PER_PC:,.0f} au on these draws), expected gain "
+            f"{pp.expected_gain():.0%}",
         ]
     first = settle[0]
-    out.append(f"  ({first.n_future} possible outcomes, each answered with {first.n_inner:,} draws; seed "
-               f"{first.seed})")
+    out.append(f"  ({first.n_future} possible outcomes, each answered with the same {first.n_inner:,} draws, on "
+               f"which today's answer is computed too; seed {first.seed})")
     return out
 
 
@@ -73,7 +74,8 @@ def _percent(p, se) -> str:
 
 def _curve_lines(c) -> list:
     key = WIDTH90_DISTANCE
-    out = [f"Gain curves: 90 % width of d_ph [au] vs new precision (today {c.current[key] * AU_PER_PC:,.0f} au)", ""]
+    out = [f"Gain curves: 90 % width of d_ph [au] vs new precision (today {c.current[key] * AU_PER_PC:,.0f} au on "
+           f"these {c.settings['n']:,} draws)", ""]
     out.append(f"  {'input':<17}{'today sigma':>16}{'s = 1x':>11}{'s = 1/3x':>11}{'s = 1/10x':>11}{'smallest s':>11}")
     for name in c.inputs:
         prec = c.precision[name]
