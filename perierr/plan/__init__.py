@@ -5,6 +5,8 @@
 * :func:`gain_curves` - width, sigma and a threshold probability vs precision;
 * :func:`required_precision` - the largest precision reaching a goal, or the
   floor that makes it unreachable;
+* :func:`cheapest_combination` - the cheapest set of new measurements of several inputs that reaches a goal,
+  given a cost per measurement;
 * :func:`rank_measurements` - (star, measurement) pairs for a proposal,
   optionally per telescope hour (:class:`PhotonLimitedCost`);
 * :func:`preposterior` - the chance that a measurement settles a question, its value drawn from today's
@@ -17,6 +19,7 @@ perierr predicts statistical encounters, not impact hazards.
 from .cost import PhotonLimitedCost, Reference
 from .curves import GainCurves, gain_curves
 from .goals import Goal, decide_goal, parse_goal, spread_goal
+from .joint import JointRequirement, cheapest_combination
 from .planner import Plan, plan
 from .preposterior import FutureOutcomes, PosteriorAnswer, Preposterior, preposterior
 from .rank import Ranking, rank_measurements
@@ -29,6 +32,7 @@ __all__ = [
     "FutureOutcomes",
     "GainCurves",
     "Goal",
+    "JointRequirement",
     "Measurement",
     "PhotonLimitedCost",
     "Plan",
@@ -38,6 +42,7 @@ __all__ = [
     "Reference",
     "RequiredPrecision",
     "WhatIf",
+    "cheapest_combination",
     "common_draws",
     "decide_goal",
     "gain_curves",
