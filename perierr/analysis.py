@@ -31,6 +31,7 @@ from .propagate.montecarlo import MonteCarloResult, monte_carlo, nuisance_rng, p
 from .sampling.gaussian import resolve_seed
 from .star import ObservedStar
 from .star.checks import require_motion
+from .star.observed import carry_photometry
 from .summary import DEFAULT_LEVELS, weighted_quantiles
 from .thresholds import DEFAULT_THRESHOLDS
 from .units import AU_PER_PC, PARALLAX
@@ -238,7 +239,7 @@ def analyze(
         )
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", PerierrWarning)
-        star = calibration.apply(star)
+        star = carry_photometry(calibration.apply(star), star)  # the calibrated star keeps its magnitude
         require_motion(star.mean)
         if distance_prior is None:
             linear = linearize(star, model)

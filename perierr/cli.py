@@ -234,6 +234,9 @@ def _parser() -> argparse.ArgumentParser:
     screen.add_argument("table", type=Path, metavar="TABLE", help="ECSV/FITS/VOTable with catalogue columns")
     _add_plan_parser(sub)
     _add_catalogue_parser(sub)
+    from .cli_targets import add_targets_parser  # here: it borrows this module's option helpers
+
+    add_targets_parser(sub)
     return parser
 
 
@@ -494,6 +497,14 @@ def _add_plan_parser(sub) -> None:
                    help="write a paragraph for a proposal (.txt or .md): today's answer and what --measure buys")
     p.add_argument("--proposal-figure", type=Path, default=None, metavar="PATH",
                    help="the d_ph distribution today and after --measure (.png or .pdf)")
+    p.add_argument("--combine", type=_strings, default=None, metavar="INPUT,INPUT",
+                   help="measure these inputs together: for each goal, the cheapest combination of new measurements")
+    cost = p.add_mutually_exclusive_group()
+    cost.add_argument("--cost", default=None, metavar="SPEC",
+                      help="the cost of --combine's measurements, photon-limited: as in perierr targets (default: "
+                           "effort relative to today's measurement)")
+    cost.add_argument("--cost-table", type=Path, default=None, metavar="FILE",
+                      help="the cost of --combine's measurements from a table of hours (as in perierr targets)")
     p.add_argument("--futures", type=_whole, default=200, metavar="K",
                    help="chance that the --measure values settle each --goal-decide: K future values drawn from "
                         "today's predictive distribution (default 200; 0 = off)")
@@ -501,6 +512,29 @@ def _add_plan_parser(sub) -> None:
                    help="draws answering each future value (default 2000)")
     p.add_argument("--focusing", action="store_true", help="add the gravitational focusing of the star's mass")
     _add_prior_options(p)
+
+
+def _close(fig) -> None:
+    """Free a figure once written (a long-lived process running many commands would keep every one)."""
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+
+
+def _cost(args):
+    """The cost model of ``--cost`` or ``--cost-table`` (None: the planner's relative effort)."""
+    if getattr(args, "cost", None) is not None:
+        from .cli_targets import parse_cost
+
+        return parse_cost(args.cost)
+    if getattr(args, "cost_table", None) is not None:
+        from .plan.cost import TableCost
+
+        try:
+            return TableCost.read(args.cost_table)
+        except InputError as exc:  # the option, then what the table said
+            raise InputError("--cost-table", exc.value, f"{exc.field}: {exc.expected}", exc.row) from None
+    return None
 
 
 def _plan(args, out) -> None:
@@ -542,6 +576,9 @@ def _plan(args, out) -> None:
         focusing=args.focusing,
         futures=args.futures,
         future_draws=args.future_draws,
+        combine=args.combine,
+        cost=_cost(args),
+        settle_alpha=args.alpha,
     )
     print(format_plan(result), file=out)
     if args.json is not None:
@@ -555,12 +592,12 @@ def _plan(args, out) -> None:
     if args.proposal_figure is not None:
         from .report.proposal import proposal_figure
 
-        proposal_figure(result, args.proposal_figure)
+        _close(proposal_figure(result, args.proposal_figure))
         print(f"proposal figure written to {args.proposal_figure}", file=out)
     if args.plot is not None and result.curves is not None:
         from .report.plan_plot import plot_gain_curves
 
-        plot_gain_curves(result.curves, args.plot)
+        _close(plot_gain_curves(result.curves, args.plot))
         print(f"Gain curves plotted to {args.plot}", file=out)
 
 
@@ -583,9 +620,12 @@ def _prepare_outputs(args) -> None:
         from .report.figures import figure_paths
 
         outputs += [("figures", p) for p in figure_paths(args.figures, option="--figures")]
+    checked, refused = [], None
     for option, path in outputs:
         flag = "--" + option.replace("_", "-")
-        if path is not None:
+        if path is None:
+            continue
+        try:
             if any(Path(path).exists() and Path(i).exists() and os.path.samefile(path, i) for i in inputs):
                 raise InputError(flag, str(path), "is the input file itself; give another file name")
             if option == "paper_table" and Path(path).suffix.lower() not in (".ecsv", ".csv", ".tex"):
@@ -608,9 +648,60 @@ def _prepare_outputs(args) -> None:
                 if find_browser() is None:
                     raise InputError(flag, str(path), "a PDF needs Chromium (not found on PATH); give a .html "
                                      "file name for the self-contained page")  # fmt: skip
-            note = prepare_output(path, option=flag)
-            if note:
-                print(f"perierr: {note}", file=sys.stderr)
+            prepare_output(path, option=flag, remove=False)
+            checked.append((flag, path))
+        except InputError as exc:
+            refused = refused or exc
+    # once the command line is read, an old result at every output path that can be written goes, refused or not:
+    # a failed run never leaves yesterday's result looking like today's (README, "Outputs")
+    for flag, path in checked:
+        note = prepare_output(path, option=flag)
+        if note:
+            print(f"perierr: {note}", file=sys.stderr)
+    if refused is not None:
+        raise refused
+    if getattr(args, "command", None) == "targets":  # the command's own refusals, before any work
+        from . import cli_targets
+
+        cli_targets.check_options(args)
+    _check_plan_options(args)
+
+
+def _check_plan_options(args) -> None:
+    """The planner's options that need no star, checked before any work."""
+    if getattr(args, "command", None) != "plan":
+        return
+    from .plan import parse_goal, parse_measure
+    from .plan.update import input_name
+
+    for text in args.measure:
+        parse_measure(text)
+    goals = [parse_goal("width90", t) for t in args.goal_width] + [parse_goal("sigma", t) for t in args.goal_sigma]
+    goals += [parse_goal("decide", t, alpha=args.alpha) for t in args.goal_decide]
+    for option, names in (("--solve-for", args.solve_for), ("--combine", args.combine)):
+        for name in names or ():
+            try:
+                input_name(name)
+            except InputError as exc:
+                raise InputError(option, exc.value, exc.expected) from None
+    if args.combine and not goals:
+        raise InputError("--combine", ",".join(args.combine), "a goal to reach: --goal-width, --goal-sigma or "
+                         "--goal-decide")  # fmt: skip
+    for option in ("cost", "cost_table"):
+        if getattr(args, option) is not None and not args.combine:
+            raise InputError("--" + option.replace("_", "-"), str(getattr(args, option)), "prices the measurements "
+                             "of --combine, which is not given")  # fmt: skip
+    if args.cost is not None:
+        from .cli_targets import parse_cost
+
+        parse_cost(args.cost)
+    if 0 < args.futures < 20:
+        raise InputError("--futures", args.futures, "0 (off) or at least 20 possible outcomes")
+    if args.future_draws < 100:
+        raise InputError("--future-draws", args.future_draws, "at least 100 draws per outcome")
+    if not 0 < args.alpha < 0.5:
+        raise InputError("--alpha", args.alpha, "a level between 0 and 0.5 (settled: P below alpha or above 1 - "
+                         "alpha)")  # fmt: skip
 
 
 def _dispatch(args, out) -> int:
@@ -631,6 +722,10 @@ def _dispatch(args, out) -> int:
         _plan(args, out)
     elif args.command == "catalogue":
         return _catalogue(args, out)
+    elif args.command == "targets":
+        from .cli_targets import run_targets
+
+        return run_targets(args, out)
     return 0
 
 

@@ -27,3 +27,13 @@ def close_star():
         ra_error=0.02, dec_error=0.02, parallax_pmra_corr=-0.2, pmra_pmdec_corr=-0.3,
     )
 
+
+
+@pytest.fixture(autouse=True)
+def _close_figures():
+    """Close the figures a test opened (the faces return them to the caller, who owns them)."""
+    yield
+    import sys
+
+    if "matplotlib.pyplot" in sys.modules:  # only where a test drew something: no import cost elsewhere
+        sys.modules["matplotlib.pyplot"].close("all")

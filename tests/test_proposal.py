@@ -115,3 +115,28 @@ def test_the_plan_command_writes_the_paragraph_and_figure(tmp_path):
         status, out, err = _cli(base + extra)
         assert status == EXIT_INPUT and why in err and out == ""
     assert sorted(p.name for p in tmp_path.iterdir()) == ["k4.md", "k4.pdf"]
+
+
+def test_a_wider_interval_is_said_to_widen(planned):
+    # under a distance prior a sharper likelihood can move the posterior where it is wider: the paragraph must say
+    # "widens" then (built here by swapping today and after of a real plan: the widths are the what-if's own)
+    import dataclasses
+
+    w = planned.what_if
+    swapped = dataclasses.replace(planned, what_if=dataclasses.replace(w, mc_current=w.mc_improved,
+                                                                       mc_improved=w.mc_current))
+    text = proposal_paragraph(swapped)
+    assert "widens the 90 % interval of d_ph" in text and "narrows" not in text
+    assert "(-" not in text  # no negative percentage
+
+
+def test_what_if_of_a_star_without_spread_says_there_is_nothing_to_narrow():
+    from perierr.plan import make_measurement, what_if
+
+    star = ObservedStar.from_values(ra=45.0, dec=20.0, ra_error=0.1, dec_error=0.1, parallax=48.0, parallax_error=0.0,
+                                    pmra=0.01, pmra_error=0.0, pmdec=0.02, pmdec_error=0.0, radial_velocity=-250.0,
+                                    radial_velocity_error=0.0, name="still (invented)")  # fmt: skip
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        w = what_if(star, "straight_line", [make_measurement("ra", 0.01, dec=20.0)], n=500, seed=1)
+    assert "nothing to narrow" in w.headline()

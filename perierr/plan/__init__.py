@@ -9,6 +9,8 @@
   given a cost per measurement;
 * :func:`rank_measurements` - (star, measurement) pairs for a proposal,
   optionally per telescope hour (:class:`PhotonLimitedCost`);
+* :func:`rank_targets` - a ranked, costed target list of star x measurement x precision (``perierr
+  targets``);
 * :func:`preposterior` - the chance that a measurement settles a question, its value drawn from today's
   predictive distribution (beside the "lands on today's mean" convention of the rest);
 * :func:`plan` - all of it for one star.
@@ -16,7 +18,7 @@
 perierr predicts statistical encounters, not impact hazards.
 """
 
-from .cost import PhotonLimitedCost, Reference
+from .cost import PhotonLimitedCost, Reference, TableCost
 from .curves import GainCurves, gain_curves
 from .goals import Goal, decide_goal, parse_goal, spread_goal
 from .joint import JointRequirement, cheapest_combination
@@ -24,6 +26,7 @@ from .planner import Plan, plan
 from .preposterior import FutureOutcomes, PosteriorAnswer, Preposterior, preposterior
 from .rank import Ranking, rank_measurements
 from .required import RequiredPrecision, required_precision
+from .targets import TargetList, UnreadStar, rank_targets
 from .update import Measurement, make_measurement, parse_measure, update_covariance, updated_star
 from .whatif import CommonDraws, WhatIf, common_draws, scenario_metrics, what_if
 
@@ -41,6 +44,9 @@ __all__ = [
     "Ranking",
     "Reference",
     "RequiredPrecision",
+    "TableCost",
+    "TargetList",
+    "UnreadStar",
     "WhatIf",
     "cheapest_combination",
     "common_draws",
@@ -52,6 +58,7 @@ __all__ = [
     "plan",
     "preposterior",
     "rank_measurements",
+    "rank_targets",
     "required_precision",
     "scenario_metrics",
     "spread_goal",

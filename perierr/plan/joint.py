@@ -297,6 +297,7 @@ def cheapest_combination(
     cost,
     *,
     magnitude: float | None = None,
+    cost_unit: str = "h",
     grid_points: int = 12,
     finest_fraction: float = 1e-3,
     refine_rounds: int = 5,
@@ -326,6 +327,8 @@ def cheapest_combination(
     magnitude : float, optional
         The star's magnitude for a cost model with ``hours`` (default: ``star.magnitude`` where the star has
         one; a :class:`~perierr.plan.cost.PhotonLimitedCost` needs one, a plain callable never uses it).
+    cost_unit : str
+        The unit of the costs in messages ("h" for telescope hours).
     grid_points : int
         Candidate precisions per input (>= 3), log-spaced from today's error down to
         ``finest_fraction`` of it; "not measured" comes on top.
@@ -394,7 +397,7 @@ def cheapest_combination(
     prior = resolve_plan_prior(distance_prior)
     require_plannable(star, prior)
     draws = common_draws(n, seed) if draws is None else draws
-    search = _Search(star, model, goal, names, price, draws, prior)
+    search = _Search(star, model, goal, names, price, draws, prior, str(cost_unit))
     settings = {
         "n": draws.n, "seed": draws.seed, "grid_points": grid_points, "finest_fraction": float(finest_fraction),
         "refine_rounds": refine_rounds, "rtol": float(rtol), "combinations": combinations, "cost": cost_description,
@@ -457,8 +460,8 @@ def _cost_function(cost, magnitude):
         if magnitude is not None and not (isinstance(magnitude, (int, float)) and math.isfinite(magnitude)):
             raise InputError("magnitude", magnitude, "expected the star's magnitude as a finite number")
         if magnitude is None and isinstance(cost, PhotonLimitedCost):
-            raise InputError("magnitude", magnitude, "expected the star's magnitude for the photon-limited cost "
-                                                     "model (give magnitude= or a star with a magnitude)")  # fmt: skip
+            raise InputError("magnitude", magnitude, "the star's magnitude for the photon-limited cost model (in "
+                             "the star file: phot_g_mean_mag, or mag with mag_band; Python: magnitude=)")  # fmt: skip
         magnitude = None if magnitude is None else float(magnitude)
 
         def raw(name, precision):
@@ -525,7 +528,8 @@ def _grid_covariances(cov, indices, axes) -> np.ndarray:
 class _Search:
     """The state of one search: the star, the draws, the prices, and a count of the scenarios evaluated."""
 
-    def __init__(self, star, model, goal, names, price, draws, prior):
+    def __init__(self, star, model, goal, names, price, draws, prior, unit="h"):
+        self.unit = unit
         self.star, self.model, self.goal, self.names = star, model, goal, names
         self.price, self.draws, self.prior = price, draws, prior
         self.m = len(names)
@@ -741,7 +745,8 @@ class _Search:
             else:
                 singles.append(SingleInputAnswer(
                     name, "reachable", precision, unit, hours, float(achieved[j]), float(floors[j]),
-                    f"{name} alone: {precision:.3g} {unit} (today {self.sigma_cat[j]:.3g} {unit}), {hours:.3g} h",
+                    f"{name} alone: {precision:.3g} {unit} (today {self.sigma_cat[j]:.3g} {unit}), "
+                    f"{hours:.3g} {self.unit}",
                 ))  # fmt: skip
             points.append(point)
         return tuple(singles), points
@@ -844,7 +849,7 @@ class _Search:
     def _reachable_message(self, v, hours, now, achieved, singles) -> str:
         parts = [f"{self.names[j]} to {self.catalogue(j, v[j]):.3g} {self.units[j]}"
                  for j in range(self.m) if np.isfinite(v[j])]  # fmt: skip
-        text = (f"measure {' and '.join(parts)}: {hours:.3g} h in all; {self.goal.describe()} is then met "
+        text = (f"measure {' and '.join(parts)}: {hours:.3g} {self.unit} in all; {self.goal.describe()} is then met "
                 f"({self.goal.format(achieved)}; today {self.goal.format(now)})")  # fmt: skip
         ok = [s for s in singles if s.status == "reachable"]
         if len(parts) == 1:
@@ -852,7 +857,7 @@ class _Search:
         elif ok:
             best = min(ok, key=lambda s: s.hours)
             ratio = f", {best.hours / hours:.2g} x the combination" if hours > 0 else ""
-            text += f"; cheapest single input: {best.input} alone, {best.hours:.3g} h{ratio}"
+            text += f"; cheapest single input: {best.input} alone, {best.hours:.3g} {self.unit}{ratio}"
         else:
             text += "; no input alone reaches the goal"
         return text

@@ -97,6 +97,9 @@ class Plan:
         For the what-if measurements: the chance that they settle each decisive goal (or "does it pass within
         the curves' threshold?"), their value drawn from today's predictive distribution
         (:func:`perierr.plan.preposterior.preposterior`).
+    joint : tuple of JointRequirement
+        With ``combine``: for each goal, the cheapest combination of new measurements of those inputs that
+        reaches it (:func:`perierr.plan.joint.cheapest_combination`).
     """
 
     star: ObservedStar
@@ -114,6 +117,7 @@ class Plan:
     prior: dict | None = None
     calibration: CalibrationInfo | None = None
     settle: tuple = ()
+    joint: tuple = ()
 
     def to_dict(self) -> dict:
         """The plan JSON: current and improved side by side; required precisions or reasons."""
@@ -142,6 +146,8 @@ class Plan:
             out["calibration"] = self.calibration.to_dict()
         if self.settle:
             out["settle"] = [p.to_dict() for p in self.settle]
+        if self.joint:
+            out["joint"] = [j.to_dict() for j in self.joint]
         return out
 
 
@@ -169,6 +175,9 @@ def plan(
     focusing: bool = False,
     futures: int = 200,
     future_draws: int = 2000,
+    combine=None,
+    cost=None,
+    settle_alpha: float = 0.05,
 ) -> Plan:
     """Plan re-observations of one star.
 
@@ -221,6 +230,15 @@ def plan(
         The chance that the what-if measurements settle each decisive goal (or, with none, "does it pass within
         ``curve_threshold``?"): that many future values drawn from today's predictive distribution, each answered
         with ``future_draws`` draws (:func:`perierr.plan.preposterior.preposterior`); ``futures=0`` leaves it out.
+    settle_alpha : float
+        The decisiveness level of that default question (a decisive goal keeps its own).
+    combine : sequence of str, optional
+        Inputs to measure together: for each goal, the cheapest combination of new measurements of them that
+        reaches it (:func:`perierr.plan.joint.cheapest_combination`, on the plan's common draws).
+    cost : object or callable, optional
+        The cost of a measurement for ``combine``: a cost model with ``hours(input, precision, magnitude)``
+        (:class:`~perierr.plan.cost.PhotonLimitedCost`, a table of hours) or ``cost(input, precision)``; the
+        default counts effort relative to today's measurement, ``(today's error / precision)^2``.
 
     Returns
     -------
@@ -229,6 +247,12 @@ def plan(
     from ..sampling.gaussian import resolve_seed
     from ..star.checks import require_motion, require_uncertainty
 
+    if futures and not (isinstance(futures, (int, np.integer)) and futures >= 20):  # before any work
+        raise InputError("futures", futures, "0 (off) or a whole number of at least 20 possible outcomes")
+    if futures and not (isinstance(future_draws, (int, np.integer)) and future_draws >= 100):
+        raise InputError("future_draws", future_draws, "a whole number of at least 100 draws per outcome")
+    if combine and not goals:
+        raise InputError("combine", ",".join(combine), "a goal to reach (a width, sigma or decisive goal)")
     catalogue = star
     star, model, calibration = prepare(
         star, model, parallax_offset=parallax_offset, error_inflation=error_inflation, focusing=focusing
@@ -248,6 +272,7 @@ def plan(
             solve_for=solve_for, curves=curves, budget=budget, n=n, n_whatif=n_whatif, seed=seed,
             thresholds=thresholds, curve_threshold=curve_threshold, n_points=n_points,
             budget_options=budget_options, progress=progress, futures=futures, future_draws=future_draws,
+            combine=combine, cost=cost, settle_alpha=settle_alpha,
         )  # fmt: skip
     lower = from_warnings(caught)
     emit(lower)  # the lower layers' warnings reach the caller as before, and stay with the plan
@@ -258,6 +283,7 @@ def plan(
 def _plan_parts(
     star, model, calibration, calibration_block, prior, prior_method, *, measure, goals, solve_for, curves, budget,
     n, n_whatif, seed, thresholds, curve_threshold, n_points, budget_options, progress, futures, future_draws,
+    combine, cost, settle_alpha,
 ) -> tuple:  # fmt: skip
     """The plan's pieces on the prepared star and model: (cautions found, the fields of :class:`Plan`)."""
     dec = float(star.mean[DEC])
@@ -273,13 +299,17 @@ def _plan_parts(
     found = []
     settle = ()
     if measure and futures:
-        settle, why = _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws)
+        settle, why = _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws,
+                              settle_alpha)
         found += why
     draws = common_draws(n, seed)
     names = solve_for or [o for o, s in zip(OBSERVABLES, star.sigma) if s > 0]
     required = [
         required_precision(star, model, name, g, draws=draws, distance_prior=prior) for g in goals for name in names
     ]
+    joint = ()
+    if combine:
+        joint = _joint(star, model, goals, combine, cost, draws, prior)
     gc = None
     if curves:
         gc = gain_curves(star, model, n_points=n_points, threshold=curve_threshold, draws=draws, distance_prior=prior)
@@ -291,7 +321,15 @@ def _plan_parts(
                                  "budget"))  # fmt: skip
         if gb is not None and wi is not None:
             gb1, _ = _global_budget(wi.improved, model, None, seed, budget_options)
+            if calibration is not None and calibration.zero_point_error > 0 and gb1 is not None:
+                # the update acts on the calibrated parallax: its error then holds the zero-point's
+                found.append(Caution(
+                    "budget-zero-point-folded", "after the what-if measurement the global budget counts the "
+                    "parallax zero-point's error within the parallax (the linear budgets keep it apart)", "note",
+                    "budget"))  # fmt: skip
     settings = {"seed": seed, "n": n, "n_whatif": n_whatif if wi is not None else None}
+    if joint:
+        settings["cost_unit"] = "today's efforts: (today's error / precision)^2" if cost is None else "hours"
     if wi is not None:
         today = wi.mc_current
     elif prior is None:
@@ -327,17 +365,50 @@ def _plan_parts(
         "star": star, "model": model.describe(), "what_if": wi, "required": required, "curves": gc, "budget": gb,
         "budget_improved": gb1, "settings": settings, "comparison": comparison, "orbit_comparison": orbit_comparison,
         "today": today, "prior": prior_block, "calibration": calibration_block, "settle": settle,
+        "joint": joint,
     }  # fmt: skip
 
 
-def _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws) -> tuple:
+def relative_effort(star):
+    """The default cost of ``combine``: effort relative to today's measurement, ``(today's error / precision)^2``.
+
+    A photon-limited measurement's time grows as the inverse square of its precision (common practice, no source),
+    so this is the number of today's observing efforts a precision takes; 0 for "not measured".
+    """
+    from ..units import errors_to_catalogue
+
+    today = dict(zip(OBSERVABLES, errors_to_catalogue(star.sigma, star.mean[DEC]).tolist()))
+
+    def cost(name, precision):
+        return (today[name] / precision) ** 2 if precision > 0 else float("inf")
+
+    return cost
+
+
+def _joint(star, model, goals, combine, cost, draws, prior) -> tuple:
+    """The cheapest combination of the ``combine`` inputs for each goal (on the plan's common draws)."""
+    from .joint import cheapest_combination
+
+    unit = "h" if cost is not None else "x today's effort"
+    cost = relative_effort(star) if cost is None else cost
+    return tuple(cheapest_combination(star, model, g, list(combine), cost, draws=draws, distance_prior=prior,
+                                      cost_unit=unit) for g in goals)  # fmt: skip
+
+
+def _settle(star, model, ms, goals, curve_threshold, prior, seed, thresholds, futures, future_draws,
+            alpha=0.05) -> tuple:
     """The chance that the measurements settle each decisive goal: (Preposterior per goal, cautions)."""
     from ..errors import InputError
     from .goals import decide_goal
     from .preposterior import preposterior
 
-    decisive = [g for g in goals if g.kind == "decide"] or [decide_goal(curve_threshold)]
+    decisive = [g for g in goals if g.kind == "decide"] or [decide_goal(curve_threshold, alpha)]
     out, found = [], []
+    if star.mean[PARALLAX] <= 0:  # the models take the nominal star as their reference point
+        why = ("the nominal parallax is <= 0, and the possible outcomes are answered around the nominal star even "
+               "under a distance prior (not built yet: measure first, or plan from the prior's answer)")
+        return (), [Caution("settle-not-computed", f"the chance that the new data settle '{g.describe()}' was not "
+                            f"computed: {why}", "caution", "plan") for g in decisive]  # fmt: skip
     for g in decisive:
         try:
             out.append(preposterior(star, model, ms, goal=g, n_future=futures, n_inner=future_draws, seed=seed,

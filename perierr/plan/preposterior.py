@@ -48,12 +48,13 @@ total expectation), which the tests check.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, PerierrWarning
 from ..sampling.gaussian import draw_gaussian, psd_factor, require_draws, resolve_seed
 from ..sampling.reweight import log_weights
 from ..star import ObservedStar
@@ -680,6 +681,15 @@ def preposterior(
             ess[fut].copy(), answer(first, "lands on today's mean"),
             frac, math.sqrt(frac * (1.0 - frac) / k),
         ))  # fmt: skip
+    if pri is not None:  # reweighted answers rest on their effective number of draws: say when it is small
+        few = min(1000.0, n / 10)
+        worst = float(np.min(ess))
+        pool = pred_info.get("pool_effective_size", math.inf)
+        if worst < few or pool < min(1000.0, 5.0 * k):
+            warnings.warn(PerierrWarning(
+                f"the chance that the new data settle '{goal.describe()}' rests on few effective draws under the "
+                f"prior: {worst:,.0f} of {n:,} for the answers, {pool:,.0f} for today's predictive distribution "
+                "(more draws, --future-draws, or a less informative prior)"), stacklevel=2)  # fmt: skip
     describe = getattr(model, "describe", None)
     settings = {
         "model": describe() if callable(describe) else type(model).__name__,

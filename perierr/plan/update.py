@@ -147,6 +147,8 @@ def update_covariance(cov, index: int, precision) -> np.ndarray:
     ndarray, shape (k, k) or (p, k, k)
     """
     s = np.asarray(cov, dtype=float)
+    if s.ndim != 2 or s.shape[0] != s.shape[1]:  # a stack would be sliced along the wrong axis
+        raise InputError("cov", f"shape {s.shape}", "one square covariance matrix (k, k); update a stack one by one")
     prec = np.asarray(precision, dtype=float)
     if np.any(~np.isfinite(prec)) or np.any(prec < 0):
         raise InputError("precision", prec.tolist(), "expected finite standard errors >= 0")
@@ -161,7 +163,10 @@ def update_covariance(cov, index: int, precision) -> np.ndarray:
 
 
 def updated_star(star: ObservedStar, measurements) -> ObservedStar:
-    """The star with its covariance updated by one or more new measurements (applied in turn)."""
+    """The star with its covariance updated by one or more new measurements (applied in turn).
+
+    Everything else is the star's own: mean, name, epoch, mass and the photometry (magnitude, its error and band).
+    """
     cov = np.array(star.cov)
     for m in measurements:
         cov = update_covariance(cov, m.index, m.precision)
@@ -175,4 +180,7 @@ def updated_star(star: ObservedStar, measurements) -> ObservedStar:
         mass=star.mass,
         mass_error=star.mass_error,
         cautions=tuple(star.cautions) + (what_if,),
+        magnitude=star.magnitude,
+        magnitude_error=star.magnitude_error,
+        magnitude_band=star.magnitude_band,
     )

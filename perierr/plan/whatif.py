@@ -46,6 +46,7 @@ from ..propagate.montecarlo import MonteCarloResult, nuisance_rng, propagate_sam
 from ..sampling.gaussian import Samples, psd_factor, resolve_seed
 from ..star import ObservedStar
 from ..star.checks import require_positive_parallax
+from ..star.observed import carry_photometry
 from ..summary import DEFAULT_LEVELS, weighted_quantiles
 from ..thresholds import DEFAULT_THRESHOLDS, parse_thresholds
 from ..units import AU_PER_PC, OUTPUTS, PARALLAX
@@ -145,7 +146,7 @@ def prepare(star: ObservedStar, model, *, parallax_offset=None, error_inflation=
     Returns
     -------
     star : ObservedStar
-        The calibrated star (the same object without calibration).
+        The calibrated star (the same object without calibration), with the catalogue star's magnitude.
     model : ForwardModel
     calibration : Calibration
     """
@@ -158,7 +159,7 @@ def prepare(star: ObservedStar, model, *, parallax_offset=None, error_inflation=
 
         model = _with_focusing(model, star)
     calibration = Calibration.from_user(parallax_offset, error_inflation)
-    return calibration.apply(star), model, calibration
+    return carry_photometry(calibration.apply(star), star), model, calibration
 
 
 def _min_effective_size(n: int) -> float:
@@ -519,6 +520,8 @@ class WhatIf:
         """One sentence: what the measurement buys for the d_ph interval."""
         a, b = self.width90("distance_pc")
         what = " and ".join(m.label for m in self.measurements)
+        if not a > 0:  # every draw gives the same d_ph today: nothing to narrow
+            return f"measure {what}: the 90 % interval of d_ph has no width today, there is nothing to narrow"
         if b > a:  # under a distance prior a sharper likelihood can move the posterior where it is wider
             return (
                 f"measure {what} and the 90 % interval of d_ph widens from "

@@ -19,7 +19,7 @@ from ..errors import InputError
 __all__ = ["atomic_path", "atomic_write_text", "prepare_output"]
 
 
-def prepare_output(path, *, option: str) -> str | None:
+def prepare_output(path, *, option: str, remove: bool = True) -> str | None:
     """Check that ``path`` can be written, and remove an old file there.
 
     Parameters
@@ -27,6 +27,9 @@ def prepare_output(path, *, option: str) -> str | None:
     path : str or Path
     option : str
         The option that named it (``"--json"``), for messages.
+    remove : bool
+        False: only check (a command checks every output and option first, and removes old files only once
+        nothing more can be refused).
 
     Returns
     -------
@@ -50,6 +53,8 @@ def prepare_output(path, *, option: str) -> str | None:
     if path.exists() or path.is_symlink():
         if path.is_symlink() or not path.is_file():
             raise InputError(option, str(path), "is not a regular file (a link, device or pipe); give a file name")
+        if not remove:
+            return None
         try:
             path.unlink()
         except OSError as exc:

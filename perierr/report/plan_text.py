@@ -62,6 +62,21 @@ def _settle_lines(settle) -> list:
     return out
 
 
+def _joint_lines(joint, unit: str) -> list:
+    """The cheapest combination of new measurements for each goal, beside each input alone."""
+    out = [f"Measured together: the cheapest combination for each goal (cost in {unit})", ""]
+    for j in joint:
+        out.append(f"  {j.goal.describe()}: [{j.status}] {j.message}")
+        for c in j.choices:
+            if c.measured:
+                out.append(f"    {c.input:<17} to {c.precision:.3g} {c.unit} (today {c.current_sigma:.3g}), cost "
+                           f"{c.hours:.3g}")  # fmt: skip
+        for a in j.singles:
+            alone = f"cost {a.hours:.3g} ({a.precision:.3g} {a.unit})" if a.status == "reachable" else a.status
+            out.append(f"    {a.input} alone: {alone}")
+    return out
+
+
 def _percent(p, se) -> str:
     """A probability in percent with its Monte Carlo error, PDG-rounded (a bound at 0 or 1)."""
     from .rounding import round_interval
@@ -139,6 +154,9 @@ def format_plan(plan) -> str:
         lines += _what_if_lines(plan.what_if) + [""]
     if getattr(plan, "settle", ()):
         lines += _settle_lines(plan.settle) + [""]
+    if getattr(plan, "joint", ()):
+        unit = plan.settings.get("cost_unit", "hours")
+        lines += _joint_lines(plan.joint, unit) + [""]
     if plan.required:
         lines.append("Goals:")
         for r in plan.required:

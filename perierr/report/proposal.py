@@ -34,8 +34,12 @@ def _median_interval(summary, scale=1.0) -> str:
     if not (med - lo > 0 and hi - med > 0):
         return f"{med:.6g}"
     r = round_interval(med, med - lo, hi - med)
-    value = f"{float(r.value):,.{max(0, -r.place)}f}" if abs(float(r.value)) >= 1000 else r.value
-    return f"{value} ± {r.plus}" if r.symmetric else f"{value} (+{r.plus}/−{r.minus})"
+
+    def grouped(text):  # thousands separated, at the rounded place
+        return f"{float(text):,.{max(0, -r.place)}f}" if abs(float(text)) >= 1000 else text
+
+    value, plus, minus = grouped(r.value), grouped(r.plus), grouped(r.minus)
+    return f"{value} ± {plus}" if r.symmetric else f"{value} (+{plus}/−{minus})"
 
 
 def _width90(summary) -> float:
@@ -74,8 +78,15 @@ def proposal_paragraph(plan) -> str:
                      f"({b.share('distance_pc')[dom]:.0%} of its variance).")
     what = " and ".join(f"its {INPUT_WORDS[m.name]} to {m.value:.3g} {m.unit}" for m in w.measurements)
     a, c = _width90(w.mc_current.summaries["distance_pc"]), _width90(w.mc_improved.summaries["distance_pc"])
-    parts.append(f"Measuring {what} narrows the 90 % interval of d_ph from {a * AU_PER_PC:,.0f} au to "
-                 f"{c * AU_PER_PC:,.0f} au ({1 - c / a:.0%}).")
+    if not a > 0:
+        parts.append(f"Measuring {what} cannot narrow d_ph: its 90 % interval has no width today.")
+    elif c > a:  # under a distance prior a sharper likelihood can move the posterior where it is wider
+        parts.append(f"Measuring {what} widens the 90 % interval of d_ph from {a * AU_PER_PC:,.0f} au to "
+                     f"{c * AU_PER_PC:,.0f} au ({c / a - 1:.0%} wider): the new value moves the star where the prior "
+                     "spreads it more.")  # fmt: skip
+    else:
+        parts.append(f"Measuring {what} narrows the 90 % interval of d_ph from {a * AU_PER_PC:,.0f} au to "
+                     f"{c * AU_PER_PC:,.0f} au ({1 - c / a:.0%}).")
     for pp in getattr(plan, "settle", ()):
         o = pp.outcomes[0]
         r = round_interval(100 * o.p_settle, 100 * o.p_settle_se) if o.p_settle_se > 0 else None

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
 import astropy.units as u
@@ -19,12 +19,12 @@ import numpy as np
 from ..cautions import Caution, note
 from ..errors import InputError
 from ..units import DEC, INDEX, OBSERVABLES, PARALLAX, errors_to_catalogue
-from .fields import CORRELATIONS, ERRORS, split_correlation
+from .fields import CORRELATIONS, ERRORS, MAGNITUDE_RANGE, split_correlation
 
 if TYPE_CHECKING:
     from astropy.table import Row
 
-__all__ = ["ObservedStar", "check_psd"]
+__all__ = ["ObservedStar", "carry_photometry", "check_magnitude", "check_psd"]
 
 
 @dataclass(frozen=True)
@@ -55,6 +55,13 @@ class ObservedStar:
     cautions : tuple of Caution
         Facts about how the input was read (e.g. inputs held exact) and cautions about
         implausible values, for the reports (see :mod:`perierr.cautions`); ``notes`` lists their text.
+    magnitude : float or None
+        Apparent magnitude [mag] in ``magnitude_band``, for the cost of new measurements (the
+        propagation never reads it). Read from ``phot_g_mean_mag`` (band ``"G"``) or ``mag``.
+    magnitude_error : float or None
+        Its standard error [mag] (``phot_g_mean_mag_error`` or ``mag_error``).
+    magnitude_band : str or None
+        The photometric band (``"G"``, ``"V"``, ...); None when a generic ``mag`` came without ``mag_band``.
     """
 
     mean: np.ndarray
@@ -65,6 +72,9 @@ class ObservedStar:
     mass: float | None = None
     mass_error: float | None = None
     cautions: tuple = field(default=())
+    magnitude: float | None = None
+    magnitude_error: float | None = None
+    magnitude_band: str | None = None
 
     def __post_init__(self):
         mean = np.array(self.mean, dtype=float).reshape(-1)
@@ -87,6 +97,24 @@ class ObservedStar:
         object.__setattr__(self, "cov", cov)
         cautions = tuple(c if isinstance(c, Caution) else note("note", str(c)) for c in self.cautions)
         object.__setattr__(self, "cautions", cautions)
+        self._check_photometry()
+
+    def _check_photometry(self) -> None:
+        """The magnitude fields as the readers check them (for stars built with the plain constructor)."""
+        if self.magnitude is not None:
+            object.__setattr__(self, "magnitude", check_magnitude("magnitude", self.magnitude))
+        if self.magnitude_error is not None:
+            if self.magnitude is None:
+                raise InputError("magnitude_error", self.magnitude_error,
+                                 "an error needs its magnitude: give magnitude")  # fmt: skip
+            object.__setattr__(self, "magnitude_error", check_magnitude("magnitude_error", self.magnitude_error,
+                                                                        error=True))  # fmt: skip
+        if self.magnitude_band is not None:
+            band = str(self.magnitude_band).strip()
+            if not band or self.magnitude is None:
+                raise InputError("magnitude_band", self.magnitude_band,
+                                 "a band name such as 'V' beside a magnitude")  # fmt: skip
+            object.__setattr__(self, "magnitude_band", band)
 
     @property
     def sigma(self) -> np.ndarray:
@@ -128,6 +156,10 @@ class ObservedStar:
         out["mass"] = self.mass
         out["mass_error"] = self.mass_error
         out["held_exact"] = list(self.held_exact)
+        if self.magnitude is not None:  # only when given: the inputs block of a star without one is unchanged
+            out["magnitude"] = self.magnitude
+            out["magnitude_error"] = self.magnitude_error
+            out["magnitude_band"] = self.magnitude_band
         return out
 
     @classmethod
@@ -157,12 +189,59 @@ class ObservedStar:
         row : int, optional
             Row number reported in error messages.
         strict : bool
-            Reject unknown field names (likely typos). Table rows are read with
-            ``strict=False`` since catalogues carry many other columns.
+            Reject unknown field names (likely typos) and refuse a bad or incomplete magnitude
+            (:class:`InputError` naming the field). Table rows are read with ``strict=False``, since
+            catalogues carry many other columns: a bad or incomplete magnitude is then dropped, with a
+            reading caution (code ``"magnitude-dropped"``) saying why, and the star is kept.
         """
         from .reading import star_from_mapping
 
         return star_from_mapping(cls, mapping, row=row, strict=strict)
+
+
+def check_magnitude(name: str, value, *, row=None, error: bool = False) -> float:
+    """A magnitude in :data:`~perierr.star.fields.MAGNITUDE_RANGE` (or, ``error=True``, an error >= 0), as a float.
+
+    Parameters
+    ----------
+    name : str
+        The field, for the message (``"phot_g_mean_mag"``, ``"mag_error"``, ...).
+    value : float
+        In mag.
+    row : int, optional
+        Table row, for the message.
+    error : bool
+        Check a standard error (finite, >= 0) instead of a magnitude.
+
+    Raises
+    ------
+    InputError
+        Naming the field, the value and what was expected.
+    """
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        x = math.nan
+    if error:
+        if not (math.isfinite(x) and x >= 0):
+            raise InputError(name, value, "expected a finite magnitude error >= 0 in mag", row)
+        return x
+    lo, hi = MAGNITUDE_RANGE
+    if not (math.isfinite(x) and lo <= x <= hi):
+        raise InputError(name, value, f"expected a finite magnitude in [{lo:g}, {hi:g}] mag", row)
+    return x
+
+
+def carry_photometry(star: ObservedStar, source: ObservedStar) -> ObservedStar:
+    """``star`` with the magnitude fields of ``source`` when it has none (a star rebuilt from another one).
+
+    Calibration and the planner rebuild a star from its mean and covariance; this puts back the photometry
+    they do not touch. ``star`` itself is returned when there is nothing to carry.
+    """
+    if star is source or star.magnitude is not None or source.magnitude is None:
+        return star
+    return replace(star, magnitude=source.magnitude, magnitude_error=source.magnitude_error,
+                   magnitude_band=source.magnitude_band)  # fmt: skip
 
 
 def check_psd(matrix, *, row=None, what="covariance matrix") -> None:

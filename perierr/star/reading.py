@@ -18,12 +18,20 @@ import astropy.units as u
 import numpy as np
 import tomllib
 
-from ..cautions import emit, note
+from ..cautions import Caution, emit, note
 from ..errors import InputError
 from ..units import FIELD_UNITS, INDEX, OBSERVABLES, errors_to_internal, to_number
 from .checks import LARGEST_ERROR, plausibility, unit_slips
-from .fields import CORRELATIONS, ERRORS, KNOWN_FIELDS, OPTIONAL_ERRORS, split_correlation
-from .observed import ObservedStar, check_psd
+from .fields import (
+    CORRELATIONS,
+    ERRORS,
+    GAIA_MAGNITUDE,
+    GENERIC_MAGNITUDE,
+    INPUT_FIELDS,
+    OPTIONAL_ERRORS,
+    split_correlation,
+)  # fmt: skip
+from .observed import ObservedStar, check_magnitude, check_psd
 
 if TYPE_CHECKING:
     from astropy.table import Table
@@ -42,7 +50,9 @@ def star_from_mapping(cls, mapping, *, row=None, strict=True):
     cautions.extend(unit_slips(values, row))
     cov = _covariance(values, corrs, row)
     mean = np.array([values[n] for n in OBSERVABLES])
-    star = cls(mean, cov, cautions=tuple(cautions), **_read_meta(data, row))
+    photometry, dropped = _read_photometry(data, row, strict)
+    cautions.extend(dropped)
+    star = cls(mean, cov, cautions=tuple(cautions), **_read_meta(data, row), **photometry)
     emit(star.cautions)
     return star
 
@@ -50,10 +60,10 @@ def star_from_mapping(cls, mapping, *, row=None, strict=True):
 def _refuse_unknown(data, row) -> None:
     """Unknown field names are likely typos: refuse them, suggesting the closest known name."""
     for key in data:
-        if key not in KNOWN_FIELDS:
-            close = difflib.get_close_matches(key, KNOWN_FIELDS, n=1)
+        if key not in INPUT_FIELDS:
+            close = difflib.get_close_matches(key, INPUT_FIELDS, n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            raise InputError(key, data[key], f"unknown field{hint} Known fields: {', '.join(KNOWN_FIELDS)}", row)
+            raise InputError(key, data[key], f"unknown field{hint} Known fields: {', '.join(INPUT_FIELDS)}", row)
 
 
 def _read_measurements(data, row) -> tuple:
@@ -129,6 +139,64 @@ def _read_meta(data, row) -> dict:
     return meta
 
 
+def _read_photometry(data, row, strict=True) -> tuple:
+    """The magnitude fields and the cautions of reading them: ``({field: value}, [Caution, ...])``.
+
+    Strict reading (star files, ``from_mapping`` by default) refuses a bad or incomplete magnitude with an
+    :class:`InputError` naming the field. Otherwise (table rows, :func:`read_catalogue`) the star is read
+    without a magnitude, which only the cost of new measurements uses, and a reading caution says why: a note
+    for a magnitude that is missing beside its error or band (a masked cell), a caution for a bad value
+    (e.g. a sentinel such as 99).
+    """
+    try:
+        return _photometry(data, row), []
+    except InputError as exc:
+        if strict:
+            raise
+        missing = exc.expected.startswith("given without its magnitude")
+        what = (f"{exc.field} given without its magnitude" if missing
+                else f"{exc.field} = {exc.value} not used ({exc.expected})")  # fmt: skip
+        message = f"{what}: the star is read without a magnitude (only the cost of new measurements uses one)"
+        return {}, [Caution("magnitude-dropped", message, "note" if missing else "caution", exc.field, row)]
+
+
+def _photometry(data, row) -> dict:
+    """The magnitude, its error and band: ``phot_g_mean_mag`` (band G) or ``mag`` with ``mag_band``, not both.
+
+    Numbers are in mag (a Quantity or a string with a unit is converted to mag); each error needs its magnitude.
+    """
+    given = {k for k in GAIA_MAGNITUDE + GENERIC_MAGNITUDE if k in data and not _is_missing(data[k])}
+    if given & set(GAIA_MAGNITUDE) and given & set(GENERIC_MAGNITUDE):
+        both = sorted(given)
+        raise InputError(
+            both[0], ", ".join(both), "give either phot_g_mean_mag (band G, with phot_g_mean_mag_error) or mag "
+            "(with mag_error and mag_band), not both", row
+        )  # fmt: skip
+    if not given:
+        return {}
+    value_key, error_key = GAIA_MAGNITUDE if given & set(GAIA_MAGNITUDE) else GENERIC_MAGNITUDE[:2]
+    if value_key not in given:
+        other = sorted(given)[0]
+        raise InputError(other, data[other], f"given without its magnitude; expected {value_key} beside it", row)
+    out = {"magnitude": check_magnitude(value_key, _magnitude(value_key, data[value_key], row), row=row)}
+    if error_key in given:
+        out["magnitude_error"] = check_magnitude(error_key, _magnitude(error_key, data[error_key], row), row=row,
+                                                 error=True)  # fmt: skip
+    if value_key == "phot_g_mean_mag":
+        out["magnitude_band"] = "G"
+    elif "mag_band" in given:
+        band = str(data["mag_band"]).strip()
+        if not band or len(band) > 20:
+            raise InputError("mag_band", data["mag_band"], "expected the band's name, e.g. 'V' or 'Ks'", row)
+        out["magnitude_band"] = band
+    return out
+
+
+def _magnitude(name, value, row) -> float:
+    """A magnitude (or its error) in mag: bare numbers, Quantities in mag, or text such as ``"12.3 mag"``."""
+    return to_number(name, value, u.mag, row=row, text_needs_unit=False, example="12.3 mag", noun="a magnitude")
+
+
 def read_star_file(path: str | os.PathLike) -> ObservedStar:
     """Read one star from a TOML file of catalogue-named fields.
 
@@ -163,7 +231,9 @@ def read_star_file(path: str | os.PathLike) -> ObservedStar:
 def read_catalogue(source: str | os.PathLike | Table) -> list[ObservedStar]:
     """Read every row of a table (ECSV/FITS/VOTable path or astropy Table).
 
-    Each row becomes an :class:`ObservedStar`; an error names the row.
+    Each row becomes an :class:`ObservedStar`; an error names the row. A bad or incomplete magnitude (a
+    sentinel such as 99, a band without its magnitude) does not stop the reading: that row's star is read
+    without a magnitude and a reading caution says why (the propagation never uses magnitudes).
     """
     from astropy.table import Table
 

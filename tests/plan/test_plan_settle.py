@@ -101,3 +101,48 @@ def test_a_star_built_in_python_plans_too():
         p = plan(star, model="straight_line", measure={"radial_velocity": 0.1}, curves=False, budget=False, n=500,
                  n_whatif=500, seed=1, focusing=True, futures=50, future_draws=300)  # fmt: skip
     assert len(p.settle) == 1 and 0.0 <= p.settle[0].p_settle <= 1.0
+
+
+def test_refusals_come_before_any_work_and_leave_no_old_result(tmp_path):
+    # every option that needs no star is refused before the work; an old result at an output path never survives a
+    # failed run (README, "Outputs": it would read as today's), and nothing new is written
+    old = tmp_path / "old.json"
+    cases = [
+        (["--measure", "rv=0.3", "--plot", str(tmp_path / "c.jpg")], "--plot"),
+        (["--combine", "rv,pmdec"], "--combine"),
+        (["--measure", "rv=0.3", "--cost", "photon"], "--cost"),
+        (["--measure", "rv=0.3", "--futures", "5"], "--futures"),
+        (["--measure", "rv=0.3", "--alpha", "0.7"], "--alpha"),
+        (["--goal-width", "d_ph=1500 au", "--combine", "rv,nonsense"], "--combine"),
+    ]
+    for extra, option in cases:
+        old.write_text("yesterday", encoding="utf-8")
+        status, out, err = _cli(["plan", DEMO, "--json", str(old), "--no-budget", "--no-curves"] + extra)
+        assert status == 2 and option in err and out == "", (extra, err)
+        assert not old.exists(), extra
+        assert list(tmp_path.iterdir()) == [], extra
+
+
+def test_the_default_question_takes_alpha():
+    p = _plan(measure={"pmdec": 0.01}, settle_alpha=0.01)
+    assert p.settle[0].goal.alpha == 0.01
+
+
+def test_few_effective_draws_under_a_prior_are_said():
+    # an invented star with a parallax of 0.2 +- 0.3 mas under a short prior: a few of the Gaussian draws carry the
+    # weight, and the settling chance says so instead of resting silently on them
+    star = ObservedStar.from_values(ra=45.0, dec=20.0, parallax=0.2, parallax_error=0.3, pmra=5.0, pmra_error=0.05,
+                                    pmdec=-3.0, pmdec_error=0.05, radial_velocity=-40.0, radial_velocity_error=1.0,
+                                    name="faint (invented)")  # fmt: skip
+    with pytest.warns(PerierrWarning, match="few effective draws"):
+        preposterior(star, "straight_line", {"parallax": 0.02}, goal=decide_goal("2 pc"), n_future=40, n_inner=500,
+                     seed=1, prior="edsd:L=50pc")  # fmt: skip
+
+
+def test_a_zero_point_in_the_improved_global_budget_is_said_to_be_folded():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", PerierrWarning)
+        p = plan(read_star_file(DEMO), model="straight_line", measure={"radial_velocity": 0.3}, curves=False,
+                 n=500, n_whatif=500, seed=1, futures=0, parallax_offset="-0.02,0.03",
+                 budget_options={"n_outer": 100, "width": False, "n_boot": 20})  # fmt: skip
+    assert "budget-zero-point-folded" in [c.code for c in p.cautions]

@@ -158,3 +158,35 @@ def test_updated_star_keeps_identity_and_records_every_measurement():
     assert new.cov[5, 5] == pytest.approx(1 / (1 / 0.8**2 + 1 / 0.1**2), rel=1e-12)
     np.testing.assert_allclose(new.cov, _kalman(_kalman(np.array(star.cov), 5, 0.1), 2, 0.02), rtol=1e-10,
                                atol=1e-30)
+
+
+def test_a_stack_of_covariances_is_refused_not_sliced_wrongly():
+    # the update takes one (k, k) matrix: s[:, i] of a (K, k, k) stack would be a row of matrices, not a column
+    import numpy as np
+    import pytest
+
+    from perierr.errors import InputError
+    from perierr.plan.update import update_covariance
+
+    with pytest.raises(InputError, match="one square covariance"):
+        update_covariance(np.stack([np.eye(6)] * 3), 2, 0.1)
+    with pytest.raises(InputError, match="one square covariance"):
+        update_covariance(np.eye(6)[:5], 2, 0.1)
+    # one matrix: the inverse-variance combination 1/s'^2 = 1/1 + 1/0.5^2 (any estimation textbook)
+    assert update_covariance(np.eye(6), 2, 0.5)[2, 2] == pytest.approx(1 / (1 + 4), rel=1e-12)
+
+
+def test_the_updated_star_keeps_its_photometry():
+    # the what-if changes the covariance only: the magnitude, its error and band stay the star's (a cost model reads
+    # them after the update)
+    import numpy as np
+
+    from perierr import ObservedStar
+    from perierr.plan.update import make_measurement, updated_star
+
+    star = ObservedStar.from_values(ra=45.0, dec=20.0, parallax=50.0, parallax_error=0.05, pmra=10.0, pmra_error=0.05,
+                                    pmdec=5.0, pmdec_error=0.05, radial_velocity=-30.0, radial_velocity_error=0.5,
+                                    mag=9.3, mag_error=0.02, mag_band="V", name="bright (invented)")  # fmt: skip
+    new = updated_star(star, [make_measurement("radial_velocity", 0.1, dec=20.0)])
+    assert (new.magnitude, new.magnitude_error, new.magnitude_band) == (9.3, 0.02, "V")
+    assert new.cov[5, 5] < star.cov[5, 5] and np.array_equal(new.mean, star.mean)
