@@ -73,26 +73,25 @@ def _check_distances(args) -> None:
         parse_thresholds(items)
 
 
-def _count(text: str) -> int:
-    """A whole number >= 1 (draws, points)."""
+def _whole_number(text: str, minimum: int) -> int:
+    """A whole number >= ``minimum``, or argparse's usage error saying what was expected."""
     try:
         value = int(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 1, got {value}")
+    if value < minimum:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= {minimum}, got {value}")
     return value
+
+
+def _count(text: str) -> int:
+    """A whole number >= 1 (draws, points)."""
+    return _whole_number(text, 1)
 
 
 def _whole(text: str) -> int:
     """A whole number >= 0 (0 turns a part off)."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 0, got {value}")
-    return value
+    return _whole_number(text, 0)
 
 
 def _horizon(text: str):
