@@ -296,13 +296,15 @@ def _analysis_kwargs(args) -> dict:
         thresholds=args.within,
         target_error=args.target_error,
         max_samples=args.max_samples,
-        distance_prior=args.distance_prior,
-        prior_method=args.prior_method,
-        parallax_offset=args.parallax_offset,
-        error_inflation=args.inflate,
-        focusing=args.focusing,
         progress=_progress(args),
+        **_star_options(args),
     )
+
+
+def _star_options(args) -> dict:
+    """The options that say how a star is read into the model, shared by run, plan and the page's plan."""
+    return dict(distance_prior=args.distance_prior, prior_method=args.prior_method,
+                parallax_offset=args.parallax_offset, error_inflation=args.inflate, focusing=args.focusing)
 
 
 def _read_star(path, args=None):
@@ -405,9 +407,7 @@ def _page_plan(result, star, args):
         warnings.simplefilter("ignore", PerierrWarning)
         return plan(star, model=_model(args), measure={name: half}, curves=False, budget=False,
                     n_whatif=min(args.samples, 20_000), seed=result.monte_carlo.samples.seed,
-                    thresholds=args.within, distance_prior=args.distance_prior, prior_method=args.prior_method,
-                    parallax_offset=args.parallax_offset, error_inflation=args.inflate, focusing=args.focusing,
-                    futures=100, future_draws=1000)  # fmt: skip
+                    thresholds=args.within, futures=100, future_draws=1000, **_star_options(args))  # fmt: skip
 
 
 def _screen(path, out) -> None:
@@ -568,16 +568,12 @@ def _plan(args, out) -> None:
         curve_threshold=args.curve_within,
         n_points=args.points,
         progress=_progress(args),
-        distance_prior=args.distance_prior,
-        prior_method=args.prior_method,
-        parallax_offset=args.parallax_offset,
-        error_inflation=args.inflate,
-        focusing=args.focusing,
         futures=args.futures,
         future_draws=args.future_draws,
         combine=args.combine,
         cost=_cost(args),
         settle_alpha=args.alpha,
+        **_star_options(args),
     )
     print(format_plan(result), file=out)
     if args.json is not None:
