@@ -20,9 +20,11 @@ import numpy as np
 
 from ._version import __version__
 from .budget import LinearBudget, star_budget
+from .budget.inputs import budget_inputs
 from .calibration import CalibrationInfo
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
 from .comparison import is_straight_line, orbit_nominal_comparison, straight_line_comparison
+from .encounter import DEFAULT_OORT_RADII, EncounterEffects, encounter_effects, parse_positions, parse_radii
 from .errors import InputError, PerierrWarning
 from .models import DEFAULT_MODEL, ForwardModel, make_model
 from .priors.info import PriorInfo
@@ -73,6 +75,9 @@ class Analysis:
         For the straight line: the orbit model at the nominal inputs beside it
         (:func:`perierr.comparison.orbit_nominal_comparison`), so a
         straight-line run still says what the Galactic tide would change.
+    encounter : EncounterEffects or None
+        What the encounter does (impulses, strength proxies, P(inside each Oort radius)) and what an observer
+        sees (peak magnitude and proper motion), with intervals and a budget (:mod:`perierr.encounter`).
     """
 
     star: ObservedStar
@@ -85,6 +90,7 @@ class Analysis:
     prior: PriorInfo | None = None
     calibration: CalibrationInfo | None = None
     orbit_comparison: dict = field(default_factory=dict)
+    encounter: EncounterEffects | None = None
 
     @property
     def warnings(self) -> list:
@@ -120,6 +126,8 @@ class Analysis:
             out["straight_line_comparison"] = self.comparison
         if self.orbit_comparison:
             out["orbit_nominal_comparison"] = self.orbit_comparison
+        if self.encounter is not None:
+            out["encounter"] = self.encounter.to_dict()
         out["notes"] = list(self.star.notes)
         return out
 
@@ -141,6 +149,8 @@ def analyze(
     focusing: bool = False,
     progress: Callable[[int, int], None] | None = None,
     compare: bool = True,
+    oort_radii: Sequence[str | float | Quantity] = DEFAULT_OORT_RADII,
+    comet_positions=None,
 ) -> Analysis:
     """Perihelion of a star with linear and Monte Carlo intervals and a budget.
 
@@ -193,6 +203,11 @@ def analyze(
         Put the other model beside the answer (``comparison`` or ``orbit_comparison``, and the
         model-difference caution). Catalogue runs turn it off: for the straight line it costs an orbit
         integration per star, more than the star's own Monte Carlo.
+    oort_radii : sequence
+        Radii of the Oort cloud (distances with units, bare numbers in pc) for P(d_ph < r) and the
+        near-side comets' impulses (:mod:`perierr.encounter`).
+    comet_positions : array_like or Quantity, shape (k, 3), optional
+        Heliocentric ICRS positions of comets (bare numbers in au) whose differential impulses to report.
 
     Returns
     -------
@@ -224,6 +239,7 @@ def analyze(
     if isinstance(model, str):
         model = make_model(model)
     seed = resolve_seed(seed)
+    parse_radii(oort_radii), parse_positions(comet_positions)  # refused before any work
     if focusing:
         model = _with_focusing(model, star)
     from .calibration import Calibration
@@ -260,7 +276,11 @@ def analyze(
                 star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds, progress
             )
         budget = None if linear is None else star_budget(star, linear, calibration=calibration)
-    found = found + from_warnings(caught)
+        parts = None if linear is None else budget_inputs(star, linear, calibration=calibration)
+        encounter = encounter_effects(
+            star, mc, linear=linear, budget_inputs=parts, radii=oort_radii, comet_positions=comet_positions
+        )
+    found = found + from_warnings(caught) + list(encounter.cautions)
     comparison, orbit_comparison, described = {}, {}, model.describe()
     if not compare:
         pass
@@ -273,7 +293,8 @@ def analyze(
     found = unique(found)
     emit(found)
     return Analysis(
-        star, described, linear, mc, budget, found, comparison, prior_block, calibration_block, orbit_comparison
+        star, described, linear, mc, budget, found, comparison, prior_block, calibration_block, orbit_comparison,
+        encounter,
     )
 
 
@@ -320,6 +341,11 @@ def _with_focusing(model, star):
     from .models.focusing import Focused
 
     if star.mass is None:
+        dropped = [c for c in star.cautions if c.code == "mass-dropped"]
+        if dropped:  # read from a table row without its bad mass: name what was given
+            field, _, rest = dropped[0].message.partition(" = ")
+            raise InputError(field, rest.partition(": ")[0], "gravitational focusing needs a valid mass; "
+                             + rest.partition(": ")[2])
         raise InputError(
             "mass", None, "gravitational focusing needs the star's mass: give mass (and mass_error) in M_sun"
         )

@@ -36,6 +36,7 @@ __all__ = [
     "BIASED_PARALLAX_FRACTION",
     "DIRECT_FRACTION",
     "HAZARD",
+    "SHOWER",
     "LINEAR_CHECKS",
     "MODEL_MEDIAN_FRACTION",
     "MODEL_PROBABILITY_CHANGE",
@@ -82,6 +83,12 @@ _SYMBOL = {"time_myr": "t_ph", "distance_pc": "d_ph", "speed_kms": "v_ph"}
 HAZARD = (
     "perierr predicts statistical encounters from measured motions, not impact hazards: its numbers are not an "
     "impact-hazard assessment for comets or the Oort cloud."
+)
+
+#: What the encounter effects (impulses, strength, Oort radii) are not; shown wherever they are.
+SHOWER = (
+    "The impulses, strength proxies and Oort-radius probabilities are statistical predictions of a passing "
+    "star's pull, not impact hazards; how many comets it sends inward needs dedicated comet-dynamics studies."
 )
 
 SEVERITIES = ("note", "caution")

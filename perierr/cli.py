@@ -17,6 +17,7 @@ from pathlib import Path
 from ._version import __version__
 from .analysis import analyze
 from .demo import demo_path
+from .encounter import DEFAULT_OORT_RADII
 from .errors import InputError, PerierrError, PerierrWarning
 from .models import DEFAULT_MODEL, MODEL_NAMES, make_model
 from .report import format_analysis, write_json
@@ -173,7 +174,22 @@ def _add_analysis_options(p: argparse.ArgumentParser) -> None:
     p.add_argument(
         "--focusing", action="store_true", help="add the gravitational focusing of the star's mass (mass, mass_error)"
     )
+    g = p.add_argument_group("what the encounter does (impulses need the star's mass, the peak magnitude its "
+                             "magnitude; statistical predictions, not impact hazards)")
+    _add_oort_radii(g)
+    g.add_argument("--encounter-rows", type=Path, default=None, metavar="PATH",
+                   help="also write the encounter's LaTeX rows (.tex: peak magnitude and proper motion, impulses, "
+                        "P(inside each Oort radius)), rounded like --paper-table")
+    g.add_argument("--comet", action="append", default=[], metavar="R,RA,DEC",
+                   help="also the impulse on a comet at this heliocentric position: distance with unit, ICRS right "
+                        "ascension and declination in deg, e.g. '50000au,266.4,-28.9' (repeatable)")
     _add_prior_options(p)
+
+
+def _add_oort_radii(g) -> None:
+    g.add_argument("--oort-radii", type=_strings, default=list(DEFAULT_OORT_RADII), metavar="R,R",
+                   help="Oort-cloud radii, with units, for P(inside) and the impulse on a comet on the near side "
+                        "(default '20000au,100000au')")
 
 
 def _add_prior_options(p: argparse.ArgumentParser) -> None:
@@ -276,6 +292,8 @@ def _add_catalogue_parser(sub) -> None:
         json_help="also write the run's summary (counts, top rows) as JSON",
     )
     c.add_argument("--focusing", action="store_true", help="add the gravitational focusing of the star's mass")
+    _add_oort_radii(c.add_argument_group("what the encounter does (enc_* columns; impulses need a mass column; "
+                                         "statistical predictions, not impact hazards)"))
     _add_prior_options(c)
     g = c.add_argument_group("how the run is spread")
     g.add_argument("--workers", type=_count, default=1, metavar="N", help="processes for stage 2 (default 1)")
@@ -297,6 +315,8 @@ def _analysis_kwargs(args) -> dict:
         target_error=args.target_error,
         max_samples=args.max_samples,
         progress=_progress(args),
+        oort_radii=args.oort_radii,
+        comet_positions=args.comet or None,
         **_star_options(args),
     )
 
@@ -352,11 +372,19 @@ def _run_stars(args, out) -> None:
         result = in_file(path, lambda star=star: _analyze(star, args))
         print(format_analysis(result), file=out)
         results.append(result)
-    if args.paper_table is not None:
-        from .report.tables import write_table
+    _write_tables(results, args, out, f"\ntable of {len(results)} stars")
 
+
+def _write_tables(results, args, out, what) -> None:
+    """``--paper-table`` and ``--encounter-rows``, when given."""
+    from .report.tables import write_table
+
+    if args.paper_table is not None:
         write_table(results, args.paper_table, interval=args.interval)
-        print(f"\ntable of {len(results)} stars written to {args.paper_table}", file=out)
+        print(f"{what} written to {args.paper_table}", file=out)
+    if args.encounter_rows is not None:
+        write_table(results, args.encounter_rows, interval=args.interval, encounter=True)
+        print(f"{what.replace('table', 'encounter rows')} written to {args.encounter_rows}", file=out)
 
 
 def _run_star(star, args, out) -> None:
@@ -365,11 +393,7 @@ def _run_star(star, args, out) -> None:
     if args.json is not None:
         write_json(result.to_dict(), args.json)
         print(f"\nJSON written to {args.json}", file=out)
-    if args.paper_table is not None:
-        from .report.tables import write_table
-
-        write_table(result, args.paper_table, interval=args.interval)
-        print(f"table written to {args.paper_table}", file=out)
+    _write_tables([result], args, out, "table")
     if args.figures is not None:
         from .report.figures import write_figures
 
@@ -609,8 +633,8 @@ def _prepare_outputs(args) -> None:
     star_files = getattr(args, "star_file", None)
     star_files = [star_files] if isinstance(star_files, Path) else list(star_files or [])
     inputs = star_files + ([args.table] if getattr(args, "table", None) is not None else [])
-    outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "page", "proposal",
-                                                      "proposal_figure")]
+    outputs = [(o, getattr(args, o, None)) for o in ("json", "plot", "paper_table", "encounter_rows", "page",
+                                                      "proposal", "proposal_figure")]
     if getattr(args, "figures", None) is not None:
         from .report.figures import figure_paths
 
@@ -625,6 +649,9 @@ def _prepare_outputs(args) -> None:
                 raise InputError(flag, str(path), "is the input file itself; give another file name")
             if option == "paper_table" and Path(path).suffix.lower() not in (".ecsv", ".csv", ".tex"):
                 raise InputError(flag, str(path), "expected a file name ending in .ecsv, .csv or .tex")
+            if option == "encounter_rows" and Path(path).suffix.lower() != ".tex":
+                raise InputError(flag, str(path), "expected a file name ending in .tex (the ECSV and CSV of "
+                                 "--paper-table carry the encounter's columns)")  # fmt: skip
             if option == "plot" and Path(path).suffix.lower() not in (".png", ".pdf", ".svg"):
                 raise InputError(flag, str(path), "expected a file name ending in .png, .pdf or .svg")
             if option == "plot" and not getattr(args, "curves", True):
@@ -743,6 +770,7 @@ def _catalogue(args, out) -> int:
             model=args.model, n_samples=args.samples, thresholds=tuple(args.within),
             distance_prior=args.distance_prior, prior_method=args.prior_method,
             parallax_offset=args.parallax_offset, error_inflation=args.inflate, focusing=args.focusing,
+            oort_radii=tuple(args.oort_radii),
         )  # fmt: skip
     from .progress import terminal_progress
 

@@ -38,6 +38,8 @@ from .errors import InputError
 __all__ = [
     "AU_PER_PC",
     "DEC",
+    "ENCOUNTER_LABELS",
+    "ENCOUNTER_TITLES",
     "ERROR_LABELS",
     "ERROR_UNITS",
     "FIELD_UNITS",
@@ -48,6 +50,7 @@ __all__ = [
     "KMS_PER_MASYR_AT_1MAS",
     "MAS_PC",
     "MAS_PER_DEG",
+    "MS_PER_KMS",
     "MYR_PER_PC_PER_KMS",
     "OBSERVABLES",
     "OUTPUTS",
@@ -61,6 +64,7 @@ __all__ = [
     "RA",
     "RADIAL_VELOCITY",
     "SPEED_OF_LIGHT_KMS",
+    "YR_PER_MYR",
     "errors_to_catalogue",
     "errors_to_internal",
     "to_number",
@@ -126,6 +130,20 @@ OUTPUT_TITLES = MappingProxyType(
     {"time_myr": "time [Myr]", "distance_pc": "distance [pc]", "speed_kms": "speed [km/s]"}
 )
 
+#: Unit of each encounter quantity (:mod:`perierr.encounter`; a comet impulse's name carries its radius after
+#: a colon): impulses in m/s, the strength proxies in M_sun per (km/s pc) and per (km/s pc^2), the peak
+#: magnitude in mag (the star's own band), the peak proper motion in arcsec/yr.
+ENCOUNTER_LABELS = MappingProxyType({
+    "sun_impulse": "m/s", "comet_impulse": "m/s", "strength_m_vd": "solMass s / (km pc)",
+    "strength_m_vd2": "solMass s / (km pc2)", "peak_magnitude": "mag", "peak_proper_motion": "arcsec/yr",
+})  # fmt: skip
+
+#: Each encounter quantity in words, for reports (a comet impulse adds its radius).
+ENCOUNTER_TITLES = MappingProxyType({
+    "sun_impulse": "impulse on the Sun", "comet_impulse": "impulse on a comet", "strength_m_vd": "M/(v d)",
+    "strength_m_vd2": "M/(v d²)", "peak_magnitude": "peak magnitude", "peak_proper_motion": "peak proper motion",
+})  # fmt: skip
+
 # ---------------------------------------------------------------------------------------------- constants
 
 #: km/s corresponding to 1 mas/yr of proper motion at a parallax of 1 mas
@@ -136,6 +154,10 @@ KMS_PER_MASYR_AT_1MAS = float((1.0 * _const.au / u.yr).to_value(u.km / u.s))
 
 #: Myr taken to travel 1 pc at 1 km/s.
 MYR_PER_PC_PER_KMS = float((1.0 * u.pc / (u.km / u.s)).to_value(u.Myr))
+
+#: m/s in one km/s, and years in one Myr (definitions).
+MS_PER_KMS = 1000.0
+YR_PER_MYR = 1.0e6
 
 #: au in one pc.
 AU_PER_PC = float(u.pc.to(u.au))

@@ -12,8 +12,6 @@ Stars are invented (the demo's Kestrel-4).
 import dataclasses
 import html
 import io
-import os
-import shutil
 import warnings
 from html.parser import HTMLParser
 
@@ -21,6 +19,7 @@ import astropy.units as u
 import matplotlib.image as mpimg
 import numpy as np
 import pytest
+from browser import launched
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -38,9 +37,6 @@ from perierr.report.rounding import round_interval
 from perierr.star import read_star_file
 
 AU_PER_PC = (1 * u.pc).to_value(u.au)  # astropy
-CHROMIUM = shutil.which("chromium")
-LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking", "--disable-component-update",
-               "--disable-sync", "--no-first-run"]
 XSS = "<script>alert(1)</script> & \"Kestrel\" 'x'"
 
 
@@ -49,15 +45,6 @@ def _analysis(seed=1, n=4000):
         warnings.simplefilter("ignore", PerierrWarning)
         return analyze(read_star_file(demo_path("kestrel-4.toml")), model="straight_line", n_samples=n, seed=seed,
                        compare=False)  # fmt: skip
-
-
-def _need_chromium():
-    """Skip without Chromium on a developer's machine; in CI (CI set) its absence is a failure."""
-    if CHROMIUM is None:
-        message = "Chromium is not on PATH (apt-get install chromium); the page's browser tests need it"
-        if os.environ.get("CI"):
-            pytest.fail(message)
-        pytest.skip(message)
 
 
 @pytest.fixture(scope="module")
@@ -90,17 +77,8 @@ def planned(analysis, tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def browser():
-    _need_chromium()
-    try:
-        from playwright.sync_api import sync_playwright
-    except ImportError:
-        if os.environ.get("CI"):
-            pytest.fail("playwright is not installed (pip install '.[test]')")
-        pytest.skip("playwright is not installed")
-    with sync_playwright() as p:
-        b = p.chromium.launch(executable_path=CHROMIUM, args=LAUNCH_ARGS)
+    with launched() as b:
         yield b
-        b.close()
 
 
 def _open(browser, path, width=1280):

@@ -20,6 +20,7 @@ import json
 import math
 import warnings
 
+import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import pytest
@@ -130,7 +131,7 @@ def test_cli_and_api_write_the_same_document(run):
     _, api_doc, cli_doc = run
     assert cli_doc == api_doc
     assert set(api_doc) == {"perierr_version", "model", "inputs", "linearized", "monte_carlo", "budget", "warnings",
-                            "calibration", "notes", "orbit_nominal_comparison"}  # fmt: skip
+                            "calibration", "notes", "orbit_nominal_comparison", "encounter"}  # fmt: skip
     assert api_doc["model"]["name"] == "straight_line"
     assert [m.split(":")[0] for m in api_doc["warnings"]] == ["the Galactic tide matters for this star"]
     assert api_doc["notes"] == []
@@ -344,3 +345,50 @@ def test_prior_block():
     assert doc["monte_carlo"]["effective_size"] == pytest.approx(kish, rel=1e-12)
     assert doc["monte_carlo"]["method"] == "reweight"
     assert any("posterior summaries" in m for m in doc["warnings"])
+
+
+def test_encounter_block_against_the_formulas(run):
+    # the encounter block: every quantity that does not need the mass draws from the straight-line formulas on the
+    # same draws (numpy "hazen" quantiles), P(inside) by counting, the Sun's impulse 2 G M / (d v) (impulse
+    # approximation, Binney & Tremaine 2008 Sect. 7.2, from memory) against masses drawn here from scipy's
+    # truncated normal on the same d and v, within the Monte Carlo errors
+    result, doc, _ = run
+    block = doc["encounter"]
+    assert set(block) == {"quantities", "inside_oort_radius", "budget", "mass", "magnitude", "passage", "missing",
+                          "caution", "comet_positions"}  # fmt: skip
+    assert block["comet_positions"] == []
+    assert set(block["quantities"]) == {"peak_proper_motion", "sun_impulse", "strength_m_vd", "strength_m_vd2",
+                                        "comet_impulse:20000 au", "comet_impulse:100000 au"}  # fmt: skip
+    assert block["mass"] == {"mass_msun": 0.83, "mass_error_msun": 0.07, "draws": "normal truncated at 0"}
+    assert block["magnitude"] == {} and len(block["missing"]) == 1 and "magnitude" in block["missing"][0]
+    assert "not impact hazards" in block["caution"] and "comet-dynamics" in block["caution"]
+    draws = lma(result.monte_carlo.samples.values)
+    d, v = draws[:, 1], draws[:, 2]
+    # peak proper motion: v / d in arcsec/yr through astropy (a transverse speed at a distance)
+    mu = ((v * u.km / u.s) / (d * u.pc)).to_value(u.arcsec / u.yr, equivalencies=u.dimensionless_angles())
+    got = block["quantities"]["peak_proper_motion"]
+    assert got["unit"] == "arcsec/yr"
+    for level in ("q05", "q16", "q50", "q84", "q95"):
+        want = np.quantile(mu, float(level[1:]) / 100, method="hazen")
+        assert got[level if level != "q50" else "median"] == pytest.approx(want, rel=1e-9), level
+    for entry, r_au in zip(block["inside_oort_radius"], (20000.0, 100000.0)):
+        assert entry["probability"] == pytest.approx(np.mean(d * AU_PER_PC < r_au), abs=1e-15)
+        assert entry["count"] == int(np.sum(d * AU_PER_PC < r_au))
+    gm = (const.G * u.Msun).to_value(u.pc * (u.km / u.s) ** 2)  # astropy constants
+    m = stats.truncnorm.rvs(-0.83 / 0.07, np.inf, loc=0.83, scale=0.07, size=d.size, random_state=99)
+    impulse = 2 * gm * m / (d * v) * 1000.0  # m/s
+    got = block["quantities"]["sun_impulse"]
+    error = math.hypot(got["mc_error"]["q50"], got["mc_error"]["q50"])  # two independent sets of mass draws
+    assert got["median"] == pytest.approx(np.median(impulse), abs=4 * error)
+    # the strength proxies are the impulse over 2 G (and over d once more) for the same draws: exact ratios
+    ratio = block["quantities"]["strength_m_vd"]["median"] / got["median"]
+    assert ratio == pytest.approx(1.0 / (2 * gm * 1000.0), rel=1e-9)
+    budget = block["budget"]
+    assert budget["inputs"] == [*OBSERVABLES, "mass"]
+    # the star passes at ~19,000 au: the near-side comet at 20,000 au (its impulse diverges at d_ph = r) has a
+    # reason instead of shares, every other row sums to 1
+    assert set(budget["comet_impulse:20000 au"]) == {"reason"} and budget["sigma"]["comet_impulse:20000 au"] is None
+    assert "undefined" in budget["comet_impulse:20000 au"]["reason"]
+    for name in set(block["quantities"]) - {"comet_impulse:20000 au"}:
+        assert sum(budget[name].values()) == pytest.approx(1.0, abs=1e-9), name
+    assert budget["peak_proper_motion"]["mass"] == 0.0  # v/d does not depend on the mass

@@ -14,20 +14,12 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.table import QTable, Table
+from paper_stars import invented
 
 from perierr import ObservedStar, analyze
 from perierr.errors import InputError, PerierrWarning
 from perierr.report.rounding import latex_interval
 from perierr.report.tables import latex_rows, result_table, write_table
-
-
-def invented(name, **over):
-    fields = dict(
-        name=name, ra=201.37, dec=-27.62, parallax=48.0, parallax_error=0.03, pmra=0.71, pmra_error=0.035,
-        pmdec=-1.2, pmdec_error=0.03, radial_velocity=-31.2, radial_velocity_error=0.6,
-    )  # fmt: skip
-    fields.update(over)
-    return ObservedStar.from_values(**fields)
 
 
 @pytest.fixture(scope="module")

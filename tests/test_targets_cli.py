@@ -116,7 +116,8 @@ def test_bad_input_is_one_line_with_status_2(tmp_path, monkeypatch, capsys, args
 
 def test_bad_star_file_and_bad_cost_row_are_named(tmp_path, capsys):
     bad = tmp_path / "bad.toml"
-    bad.write_text((open(K4).read()) + "\nmag = 50\n")
+    kept = [line for line in open(K4).read().splitlines() if not line.startswith("phot_g_mean_mag")]
+    bad.write_text("\n".join(kept) + "\nmag = 50\n")
     status, _, err = _run([str(bad), "--measure", "rv=0.1", *FAST], capsys)
     assert status == 2 and "bad.toml: mag" in err and "[-5, 30]" in err
     hours = tmp_path / "hours.csv"
@@ -248,6 +249,7 @@ def test_a_masked_magnitude_beside_its_band_keeps_the_star(tmp_path, capsys):
     from astropy.table import MaskedColumn
 
     t = Table.read(demo_path("kestrel_survey.ecsv"))[:2]
+    t.remove_columns(["phot_g_mean_mag", "phot_g_mean_mag_error"])  # the survey's own G; this row gives a V
     t["mag"] = MaskedColumn([9.0, 0.0], mask=[False, True])
     t["mag_band"] = ["V", "V"]
     path = tmp_path / "masked.ecsv"

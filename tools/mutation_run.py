@@ -55,7 +55,7 @@ GROUPS = {
         ["tests/test_frames.py", "tests/models/test_straight_line.py", "tests/models/test_focusing.py",
          "tests/budget/test_budget_inputs.py", "tests/test_json_contract.py", "tests/models/test_models_edges.py",
          "tests/test_typed_results.py", "tests/models/test_models_mutation_edges.py",
-         "tests/models/test_models_base_mutation_edges.py"],
+         "tests/models/test_models_base_mutation_edges.py", "tests/models/test_focusing_mass_edges.py"],
         False,
     ),
     "propagate": (
@@ -92,6 +92,11 @@ GROUPS = {
         ["perierr/plan/update.py"],
         ["tests/plan/test_plan_update.py", "tests/plan/test_plan_goals.py", "tests/plan/test_plan_update_edges.py",
          "tests/test_units_mutation_edges.py"],
+        False,
+    ),
+    "encounter": (
+        ["perierr/encounter.py"],
+        ["tests/test_encounter.py", "tests/test_encounter_faces.py", "tests/test_encounter_mutation_edges.py"],
         False,
     ),
     "units": (

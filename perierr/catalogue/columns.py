@@ -20,6 +20,13 @@ only the fields the table has: required are the six observables and their errors
 ``dec_error`` (held exact when absent). The radial velocity and its error must be columns, but their
 cells may be empty (those rows are reported, never dropped).
 
+Optional encounter columns: the G magnitude, its error and its flux-over-error ratio
+(:data:`PHOTOMETRY_FIELDS`) are read when the table has them, for the peak magnitude of the encounter; they
+are kept apart from the astrometry (:attr:`ColumnMap.photometry`, never required, never a reason to refuse a
+row). Each is found under the chosen preset's name (:data:`PHOTOMETRY_PRESETS`), else under its own name, or
+named like any other field (``--columns phot_g_mean_mag=Gmag_2``). The mass (``mass``, ``mass_error``) is a
+field like the others; a catalogue run also reads it only for the encounter (:data:`ENCOUNTER_FIELDS`).
+
 Whatever the preset (named or auto-detected), a column named ``source_id`` or ``name`` (found as any
 other column: exactly, else ignoring surrounding spaces, else ignoring case) holds that field when
 neither the preset nor the user maps the field to another column and no other field reads that column:
@@ -42,8 +49,9 @@ Examples
 from __future__ import annotations
 
 import difflib
+import math
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
 
@@ -54,12 +62,17 @@ from ..star.fields import ERRORS, KNOWN_FIELDS, OPTIONAL_ERRORS
 from ..units import OBSERVABLES
 
 __all__ = [
+    "ENCOUNTER_FIELDS",
+    "G_ERROR_PER_INVERSE_SNR",
+    "PHOTOMETRY_FIELDS",
+    "PHOTOMETRY_PRESETS",
     "PRESETS",
     "REQUIRED",
     "SAME_NAME_FIELDS",
     "SOURCES",
     "ColumnMap",
     "column_map",
+    "g_error_from_flux",
     "option_source",
     "parse_columns_option",
 ]
@@ -104,6 +117,31 @@ _VIZIER = {
     "pmra_pmdec_corr": "pmRApmDEcor",
 }
 
+#: Optional photometry of a catalogue run (for the peak magnitude): the G magnitude [mag], its standard error
+#: [mag] and the G flux divided by its error (the error's usual form in the large catalogue's archive).
+PHOTOMETRY_FIELDS = ("phot_g_mean_mag", "phot_g_mean_mag_error", "phot_g_mean_flux_over_error")
+
+#: Fields a catalogue run reads only for the encounter's effects (impulses, peak magnitude): a missing or bad
+#: cell leaves that row's astrometric results untouched (the row's cautions and ``enc_missing`` say why).
+ENCOUNTER_FIELDS = ("mass", "mass_error") + PHOTOMETRY_FIELDS
+
+#: sigma_G = this / (flux / flux error): the magnitude error of a flux measured with that signal-to-noise ratio,
+#: 2.5 / ln(10) = 1.0857 mag per unit of relative flux error (first-order propagation of m = -2.5 log10(F);
+#: common practice, no source; it leaves out any calibration floor of the survey).
+G_ERROR_PER_INVERSE_SNR = 2.5 / math.log(10.0)
+
+# The photometry's names in each preset: the archive's own, and CDS VizieR's (from memory).
+_PHOTOMETRY_VIZIER = {"phot_g_mean_mag": "Gmag", "phot_g_mean_mag_error": "e_Gmag",
+                      "phot_g_mean_flux_over_error": "RFG"}  # fmt: skip
+
+#: Preset name -> {photometry field: table column} (same preset names as :data:`PRESETS`).
+PHOTOMETRY_PRESETS = MappingProxyType(
+    {
+        "archive": MappingProxyType({name: name for name in PHOTOMETRY_FIELDS}),
+        "vizier": MappingProxyType(_PHOTOMETRY_VIZIER),
+    }
+)
+
 #: Preset name -> {perierr field: table column}; ``archive`` first (it wins ties in auto-detection).
 PRESETS = MappingProxyType(
     {
@@ -132,23 +170,41 @@ class ColumnMap:
         The preset the map starts from (None when every field was named by hand).
     source : str
         How the map was chosen: ``"preset"``, ``"auto"``, ``"file"`` or ``"option"``.
+    photometry : Mapping of str to str
+        Optional photometry field (:data:`PHOTOMETRY_FIELDS`) -> table column, for the fields the table has
+        (read-only; empty when it has none).
     """
 
     fields: Mapping
     preset: str | None
     source: str
+    photometry: Mapping = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "fields", MappingProxyType(dict(self.fields)))
+        object.__setattr__(self, "photometry", MappingProxyType(dict(self.photometry)))
 
     @property
     def columns(self) -> tuple:
-        """The table columns to read (each once, in the order of the fields)."""
+        """The table columns of the astrometric and meta fields (each once, in the order of the fields)."""
         return tuple(dict.fromkeys(self.fields.values()))
 
+    @property
+    def all_fields(self) -> dict:
+        """Every field read, the photometry included: {perierr field: table column}."""
+        return {**self.fields, **self.photometry}
+
+    @property
+    def read_columns(self) -> tuple:
+        """Every table column a catalogue run reads (:attr:`columns`, then the photometry's), each once."""
+        return tuple(dict.fromkeys(self.all_fields.values()))
+
     def to_dict(self) -> dict:
-        """The map as plain JSON-able data, for the provenance of a run."""
-        return {"preset": self.preset, "source": self.source, "fields": dict(self.fields)}
+        """The map as plain JSON-able data, for the provenance of a run (``photometry`` only when found)."""
+        out = {"preset": self.preset, "source": self.source, "fields": dict(self.fields)}
+        if self.photometry:
+            out["photometry"] = dict(self.photometry)
+        return out
 
 
 def column_map(
@@ -170,7 +226,8 @@ def column_map(
         Under any preset, ``source_id`` and ``name`` are also looked for under their own names
         (:data:`SAME_NAME_FIELDS`) when the preset finds no column for them.
     mapping : Mapping of str to str, optional
-        perierr field -> column; overrides or extends the preset. Each column must be in the table.
+        perierr field -> column; overrides or extends the preset. Each column must be in the table. The
+        photometry fields (:data:`PHOTOMETRY_FIELDS`) may be named too.
     source : str, optional
         How the choice was made (one of :data:`SOURCES`), for the record: by default ``"option"`` when
         ``mapping`` is given, else ``"preset"`` or ``"auto"``.
@@ -188,10 +245,12 @@ def column_map(
     """
     colnames = [str(c) for c in colnames]
     mapping = _checked_mapping(mapping)
+    named_photometry = {k: v for k, v in mapping.items() if k in PHOTOMETRY_FIELDS}
+    mapping = {k: v for k, v in mapping.items() if k not in PHOTOMETRY_FIELDS}
     if preset is not None:
         _check_preset(preset)
     if source is None:
-        source = "option" if mapping else ("preset" if preset is not None else "auto")
+        source = "option" if mapping or named_photometry else ("preset" if preset is not None else "auto")
     elif source not in SOURCES:
         raise InputError("source", source, f"expected one of {', '.join(SOURCES)}")
     lookup = _Lookup(colnames)
@@ -218,11 +277,12 @@ def column_map(
         fields[name] = found
     _same_name_fields(fields, lookup)
     fields = {name: fields[name] for name in KNOWN_FIELDS if name in fields}
-    _refuse_shared(fields)
+    photometry = _photometry_fields(named_photometry, chosen, lookup, colnames, used=set(fields.values()))
+    _refuse_shared({**fields, **photometry})
     missing = [name for name in REQUIRED if name not in fields]
     if missing:
         raise InputError("columns", ", ".join(missing), _missing_help(missing, chosen, lookup, colnames))
-    return ColumnMap(fields, chosen_record, source)
+    return ColumnMap(fields, chosen_record, source, photometry)
 
 
 def parse_columns_option(text: str) -> tuple:
@@ -408,6 +468,43 @@ def _same_name_fields(fields: dict, lookup: _Lookup) -> None:
             fields[name] = found
 
 
+def _photometry_fields(named: dict, chosen: str, lookup: _Lookup, colnames: list, used: set) -> dict:
+    """The optional photometry columns: named ones (each must exist), else the preset's name, else the field's own."""
+    out = {}
+    for name in PHOTOMETRY_FIELDS:
+        if name in named:
+            found = lookup.find(named[name], field=name)
+            if found is None:
+                raise InputError(
+                    "columns", f"{name}={named[name]}",
+                    f"the table has no column {named[name]!r}{_close(named[name], colnames)}; its columns: "
+                    f"{_shown(colnames)}",
+                )  # fmt: skip
+            out[name] = found
+            continue
+        for column in dict.fromkeys((PHOTOMETRY_PRESETS[chosen].get(name, name), name)):
+            found = lookup.find(column, field=name)
+            if found is not None and found not in used:
+                out[name] = found
+                break
+    return out
+
+
+def g_error_from_flux(flux_over_error):
+    """sigma_G [mag] from the G flux over its error: ``2.5 / ln(10) / (flux / error)`` (NaN where not > 0, finite).
+
+    Examples
+    --------
+    >>> round(float(g_error_from_flux(1000.0)), 7)
+    0.0010857
+    """
+    import numpy as np
+
+    ratio = np.asarray(flux_over_error, dtype=float)
+    good = np.isfinite(ratio) & (ratio > 0)
+    return np.where(good, G_ERROR_PER_INVERSE_SNR / np.where(good, ratio, 1.0), np.nan)
+
+
 def _folded(name: str) -> str:
     """A column name without surrounding spaces, in case-folded form (for matching)."""
     return name.strip().casefold()
@@ -467,11 +564,15 @@ def _checked_mapping(mapping) -> dict:
         return {}
     if not isinstance(mapping, Mapping):
         raise InputError("columns", mapping, "expected a mapping of perierr field -> table column")
+    known = KNOWN_FIELDS + PHOTOMETRY_FIELDS
     for key, value in mapping.items():
-        if key not in KNOWN_FIELDS:
-            close = difflib.get_close_matches(str(key), KNOWN_FIELDS, n=1)
+        if key in ("mag", "mag_error", "mag_band"):
+            raise InputError("columns", key, "catalogue runs read the G magnitude: name its column "
+                             "phot_g_mean_mag (with phot_g_mean_mag_error or phot_g_mean_flux_over_error)")  # fmt: skip
+        if key not in known:
+            close = difflib.get_close_matches(str(key), known, n=1)
             hint = f"did you mean {close[0]!r}? " if close else ""
-            raise InputError("columns", key, f"unknown perierr field; {hint}known fields: {', '.join(KNOWN_FIELDS)}")
+            raise InputError("columns", key, f"unknown perierr field; {hint}known fields: {', '.join(known)}")
         if not isinstance(value, str) or not value.strip():
             raise InputError("columns", f"{key}={value!r}", "expected a table column name")
     return {key: value.strip() for key, value in mapping.items()}

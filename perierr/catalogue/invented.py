@@ -6,6 +6,12 @@ astrometric correlations, and a few stars sent close to the Sun so that a screen
 finds something. Bad rows of each kind a real catalogue has can be mixed in
 (:data:`BAD_KINDS`), each on rows chosen by the seed; their expected status is
 returned with the table.
+
+Most rows also carry an invented mass and G magnitude (with the flux-over-error ratio the large catalogue's
+archive gives instead of a magnitude error), for the encounter's effects; a few rows have none (masked
+cells) or the sentinel G = 99 of a failed photometric solution, and ``bad_mass`` plants impossible masses.
+None of these change a row's screen status: catalogue runs read them for the encounter only. They come
+from a random stream of their own (``[seed, 7]``), so the astrometry is the same with or without them.
 """
 
 from __future__ import annotations
@@ -13,9 +19,14 @@ from __future__ import annotations
 import numpy as np
 
 from ..star.fields import ASTROMETRIC, CORRELATIONS, split_correlation
-from ..units import KMS_PER_MASYR_AT_1MAS
+from ..units import KMS_PER_MASYR_AT_1MAS, MAS_PC
 
-__all__ = ["BAD_KINDS", "invented_catalogue", "invented_correlations"]
+__all__ = ["BAD_KINDS", "SENTINEL_MAGNITUDE", "invented_catalogue", "invented_correlations", "invented_encounter"]
+
+#: The G magnitude a catalogue writes where its photometry failed (an impossible value, not a missing cell).
+SENTINEL_MAGNITUDE = 99.0
+#: Fractions of invented rows without a mass (masked), without a G magnitude (masked), with the sentinel G.
+NO_MASS, NO_MAGNITUDE, SENTINEL_FRACTION = 0.1, 0.03, 0.01
 
 #: Kind of bad row -> the status the screen gives it (see :mod:`perierr.catalogue.screening`).
 BAD_KINDS = {
@@ -30,7 +41,8 @@ BAD_KINDS = {
 }
 
 
-def invented_catalogue(n: int, *, seed: int = 0, bad: int = 0, no_rv: float = 0.0, close: float = 0.002):
+def invented_catalogue(n: int, *, seed: int = 0, bad: int = 0, no_rv: float = 0.0, close: float = 0.002,
+                       bad_mass: int = 0):  # fmt: skip
     """A table of invented stars with archive-style column names (catalogue units).
 
     Parameters
@@ -45,11 +57,16 @@ def invented_catalogue(n: int, *, seed: int = 0, bad: int = 0, no_rv: float = 0.
         Fraction of rows without a radial velocity (empty cells, as in the large catalogues).
     close : float
         Fraction of stars sent towards the Sun (perihelion within a few pc).
+    bad_mass : int
+        Rows with an impossible mass (0 or the sentinel -1), chosen by the seed among the rows with a mass.
+        Catalogue runs keep such rows without impulses; the single-star readers refuse such a mass.
 
     Returns
     -------
     table : astropy.table.Table
-        Columns ``source_id``, ``name``, the six observables and their errors, the ten correlations.
+        Columns ``source_id``, ``name``, the six observables and their errors, the ten correlations, and
+        (:func:`invented_encounter`) ``mass``, ``mass_error``, ``phot_g_mean_mag``,
+        ``phot_g_mean_flux_over_error`` (masked where missing).
     expected : ndarray of str
         The screen status each row should get (``"ok"`` for good rows).
     """
@@ -97,7 +114,51 @@ def invented_catalogue(n: int, *, seed: int = 0, bad: int = 0, no_rv: float = 0.
         for kind, rows in zip(kinds, np.array_split(picks, len(kinds))):
             _spoil(cols, kind, rows)
             expected[rows] = BAD_KINDS[kind]
+    cols.update(invented_encounter(np.random.default_rng([seed, 7]), plx, bad_mass=bad_mass))
     return Table(cols, masked=False), expected.astype(str)
+
+
+def invented_encounter(rng, parallax_mas, *, bad_mass: int = 0) -> dict:
+    """Invented masses and G magnitudes of stars at the given true parallaxes (masked arrays, catalogue units).
+
+    Masses are log-uniform in 0.1-2 M_sun with 5-20 % errors; the absolute G magnitude follows an invented
+    main-sequence-like trend ``4.7 - 8.5 log10(M)`` with 0.3 mag of scatter, made apparent by the distance
+    modulus; the flux-over-error ratio falls with G as photon noise does (``5000`` at G = 12, times
+    ``10**(-0.2 (G - 12))``, within 5 .. 2e5). Invented numbers, not a calibration of any survey.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+    parallax_mas : ndarray
+        True parallaxes [mas] (> 0).
+    bad_mass : int
+        Rows given an impossible mass (0, or the sentinel -1).
+
+    Returns
+    -------
+    dict
+        ``mass``, ``mass_error`` [M_sun], ``phot_g_mean_mag`` [mag], ``phot_g_mean_flux_over_error``.
+    """
+    plx = np.asarray(parallax_mas, dtype=float)
+    n = plx.size
+    mass = 10 ** rng.uniform(-1.0, np.log10(2.0), n)
+    mass_error = mass * rng.uniform(0.05, 0.2, n)
+    g = 4.7 - 8.5 * np.log10(mass) + 5.0 * np.log10(MAS_PC / plx / 10.0) + rng.normal(0.0, 0.3, n)
+    ratio = np.clip(5000.0 * 10 ** (-0.2 * (g - 12.0)), 5.0, 2e5)
+    no_mass = rng.uniform(size=n) < NO_MASS
+    no_g = rng.uniform(size=n) < NO_MAGNITUDE
+    sentinel = ~no_g & (rng.uniform(size=n) < SENTINEL_FRACTION)
+    g = np.where(sentinel, SENTINEL_MAGNITUDE, g)
+    if bad_mass:
+        free = np.flatnonzero(~no_mass)
+        picks = rng.choice(free, size=min(int(bad_mass), free.size), replace=False)
+        mass[picks] = np.where(np.arange(picks.size) % 2 == 0, -1.0, 0.0)
+    return {
+        "mass": np.ma.MaskedArray(mass, mask=no_mass),
+        "mass_error": np.ma.MaskedArray(mass_error, mask=no_mass),
+        "phot_g_mean_mag": np.ma.MaskedArray(g, mask=no_g),
+        "phot_g_mean_flux_over_error": np.ma.MaskedArray(ratio, mask=no_g | sentinel),
+    }
 
 
 def invented_correlations(rng, n: int) -> dict:

@@ -4,11 +4,15 @@ The table has one row per input row, in input order: ``row``, the identifiers,
 ``status`` and ``reason``, the screen's columns (prefix ``screen_``: the straight
 line at the nominal inputs with linear sigmas, and P(d_ph < D) from the linear
 Gaussian), and the full treatment's columns (prefix ``mc_``, the budget's
-``share_*``, ``dominant_input``, ``cautions``; NaN, -1 or empty where a row was not
-treated). Units are astropy units on the columns; the metadata (``meta["perierr"]``)
+``share_*``, ``dominant_input``, ``cautions``, and the encounter's ``enc_*``; NaN, -1
+or empty where a row was not treated, and ``enc_missing`` says why for every blank
+``enc_*`` value). Units are astropy units on the columns (stage 2's from
+:func:`.treatment.treatment_columns`); the metadata (``meta["perierr"]``)
 records the perierr version, the input's checksum, the column mapping, the cut,
-the model with its potential and Sun, the prior and the seed; ``summary.json``
-beside the tables holds the number of rows of each status.
+the model with its potential and Sun, the prior and the seed, and the cautions
+``caution`` (:data:`perierr.cautions.HAZARD`) and ``encounter_caution``
+(:data:`perierr.cautions.SHOWER`: the encounter columns are statistical predictions,
+not impact hazards); ``summary.json`` beside the tables holds the number of rows of each status.
 
 Both files are written chunk by chunk (the Parquet file with :mod:`pyarrow`, in
 astropy's own layout so that ``Table.read`` restores the units and metadata; the
@@ -32,7 +36,7 @@ import pyarrow.compute as pc
 import pyarrow.csv as pacsv
 import pyarrow.parquet as pq
 
-from ..cautions import HAZARD
+from ..cautions import HAZARD, SHOWER
 from ..report.files import atomic_path
 from .store import RunFolder
 
@@ -84,6 +88,9 @@ def _final(screen: pa.Table, treated: dict | None, screen_only: bool, spec: dict
                 col = np.full(len(rows), np.nan)
             if key in treated:
                 col[hit] = treated[key][pos[hit]]
+            if key == "enc_missing":  # a row without encounter values says why, whatever its status
+                for s in np.unique(status[status != "treated"]).tolist():  # a few statuses, not every row
+                    col[status == s] = _NOT_ANALYSED.get(s, f"row not analysed (status {s})")
             extra[key] = pa.array(col.astype(str) if unit is None else col)
     cols["status"] = pa.array(status.astype(str))
     cols["reason"] = pa.array(reason.astype(str))
@@ -96,6 +103,10 @@ def _final(screen: pa.Table, treated: dict | None, screen_only: bool, spec: dict
     return pa.table(cols)
 
 
+#: ``enc_missing`` of rows whose status is not ``treated`` (the others: "row not analysed", with the status).
+_NOT_ANALYSED = {"failed": "the analysis of the row failed (see reason)"}
+
+
 def _treated(folder: RunFolder) -> dict | None:
     files = sorted(folder.parts.glob("treated-*.parquet"))
     if not files:
@@ -105,14 +116,19 @@ def _treated(folder: RunFolder) -> dict | None:
     return {k: table.column(k).to_numpy(zero_copy_only=False)[order] for k in table.column_names}
 
 
-def _astropy_header(schema: pa.Schema, meta: dict):
-    """An empty astropy table of the results' columns, units and metadata."""
+def _astropy_header(schema: pa.Schema, meta: dict, spec: dict):
+    """An empty astropy table of the results' columns, units and metadata (stage 2's units from ``spec``)."""
     from astropy.table import Table
 
     t = Table(meta={"perierr": meta})
     for f in schema:
         dtype = {pa.string(): str, pa.int64(): np.int64, pa.int8(): bool, pa.float64(): float}.get(f.type, float)
-        unit = column_unit(f.name) if dtype is float else None
+        if dtype is not float:
+            unit = None
+        elif f.name in spec:
+            unit = u.Unit(spec[f.name]) if spec[f.name] else None
+        else:
+            unit = column_unit(f.name)
         t[f.name] = np.zeros(0, dtype=dtype) if unit is None else np.zeros(0) * unit
     return t
 
@@ -124,12 +140,14 @@ def merge_results(folder: RunFolder, n_chunks: int, settings: dict, *, screen_on
     from .treatment import treatment_columns
 
     treated = None if screen_only else _treated(folder)
-    spec = {} if screen_only else treatment_columns(settings.get("thresholds", []))
+    radii = (settings.get("treatment") or {}).get("oort_radii")
+    spec = {} if screen_only else treatment_columns(settings.get("thresholds", []),
+                                                    *([radii] if radii is not None else []))  # fmt: skip
     counts: dict = {}
     ranking = _Ranking(top, settings.get("thresholds", []), screen_only)
     parquet_path = folder.path / "results.parquet"
     ecsv_path = folder.path / "results.ecsv"
-    meta = dict(settings, run_fingerprint=fingerprint(settings))
+    meta = dict(settings, run_fingerprint=fingerprint(settings), caution=HAZARD, encounter_caution=SHOWER)
     n_rows = 0
     writer = None
     lengths: dict = {}
@@ -139,7 +157,7 @@ def merge_results(folder: RunFolder, n_chunks: int, settings: dict, *, screen_on
             for index in range(n_chunks):
                 table = _final(folder.read("screen", index), treated, screen_only, spec)
                 if writer is None:
-                    header = _astropy_header(table.schema, meta)
+                    header = _astropy_header(table.schema, meta, spec)
                     schema = _astropy_schema(header, folder.path)
                     table = table.cast(schema)
                     # no Arrow schema copy: readers take the footer's metadata, where the text lengths go last
@@ -258,6 +276,8 @@ def format_ranking(run, *, input_name: str | None = None) -> str:
     passed = run.counts.get("screened" if screen_only else "treated", 0)
     if not passed:
         lines += ["", "No row passed the cut" + (f" ({s['cut']})." if s.get("cut") else ".")]
+    if not screen_only:  # the results hold impulses and Oort-radius probabilities
+        lines += ["", SHOWER]
     lines += ["", HAZARD]
     lines.append("Results: " + ", ".join(str(p) for p in run.results))
     return "\n".join(lines)
@@ -276,6 +296,14 @@ def _probability(p: float, n: int) -> str:
     return f"{p:.4g}"
 
 
+#: The results column of the peak magnitude's median, shown in the ranked summary when rows have it.
+_PEAK = "enc_peak_magnitude_median_mag"
+
+
+def _finite(x) -> bool:
+    return isinstance(x, (int, float)) and np.isfinite(x)
+
+
 def _table(records, screen_only: bool, labels) -> str:
     from .screening import threshold_label
 
@@ -288,6 +316,8 @@ def _table(records, screen_only: bool, labels) -> str:
         heads = ("row", "id", "t_ph [Myr]", "d_ph [au]", "16-84 % [au]", "v_ph [km/s]", f"P(<{labels[0]})")
         keys = ("mc_time_median_myr", "mc_distance_median_au", None, "mc_speed_median_kms",
                 f"mc_p_within_{label}")  # fmt: skip
+        if any(_finite(r.get(_PEAK)) for r in records):  # the peak magnitude, when some row has one
+            heads, keys = heads + ("peak G [mag]",), keys + (_PEAK,)
     rows = []
     for r in records:
         ident = r.get("source_id") or r.get("name") or ""
@@ -297,6 +327,8 @@ def _table(records, screen_only: bool, labels) -> str:
                 lo, hi = r["mc_distance_q16_pc"], r["mc_distance_q84_pc"]
                 au = u.pc.to(u.AU)
                 cells.append(f"{lo * au:,.0f}-{hi * au:,.0f}")
+            elif key == _PEAK:
+                cells.append(f"{r[key]:.1f}" if _finite(r.get(key)) else "-")
             elif key.startswith("mc_p"):
                 cells.append(_probability(r[key], r["mc_n"]))
             elif key.startswith("screen_p"):

@@ -19,7 +19,11 @@ Memory per format:
 Values come out in catalogue units (:data:`perierr.units.FIELD_UNITS`): a column with a unit (ECSV, FITS
 ``TUNIT``, VOTable, Parquet written by astropy or with a ``unit`` field metadata) is converted by
 astropy.units; a column without a unit is taken to be in catalogue units already. Correlations must be
-dimensionless, ``ref_epoch`` in Julian years. Empty, masked and null cells, and the text markers of
+dimensionless, ``ref_epoch`` in Julian years. The optional photometry (:data:`.columns.PHOTOMETRY_FIELDS`,
+read when the table has it) comes out in mag (``mag`` or ``mmag``, or a magnitude system such as
+``mag(AB)``, whose numbers are kept as they are), the flux-over-error ratio dimensionless.
+
+Empty, masked and null cells, and the text markers of
 :data:`MISSING_TEXT` in any case (``N/A``, ``n/a``, ``None``, ``none``, ...), are NaN (missing); a cell
 holding other text is NaN and True in ``Chunk.unreadable``.
 
@@ -69,7 +73,7 @@ from ..star.fields import CORRELATIONS
 from ..star.reading import MASKED
 from ..units import FIELD_UNITS
 from .chunk import Chunk
-from .columns import ColumnMap, column_map, option_source
+from .columns import PHOTOMETRY_FIELDS, ColumnMap, column_map, g_error_from_flux, option_source
 
 __all__ = [
     "DEFAULT_CHUNK_ROWS",
@@ -209,13 +213,13 @@ class Catalogue:
     def _blocks(self) -> Iterator:
         """(first row, {column: raw array}) of exactly ``chunk_rows`` rows (the last: the rest)."""
         total = 0
-        for start, block in self._source.blocks(self.column_map.columns, self.chunk_rows):
+        for start, block in self._source.blocks(self.column_map.read_columns, self.chunk_rows):
             total = start + _length(next(iter(block.values())))
             yield start, block
         self._source.counted(total)
 
     def _convert(self, start: int, block: dict) -> Chunk:
-        fields = self.column_map.fields
+        fields = self.column_map.all_fields
         n = _length(block[next(iter(block))])
         values, unreadable = {}, {}
         for name, column in fields.items():
@@ -282,7 +286,7 @@ def open_catalogue(
     source = _SOURCES[fmt](path, head)
     cmap = _choose_columns(columns, source.colnames)
     source.prepare(cmap)
-    scales = {name: _scale(name, column, source.units.get(column)) for name, column in cmap.fields.items()}
+    scales = {name: _scale(name, column, source.units.get(column)) for name, column in cmap.all_fields.items()}
     return Catalogue(path, fmt, cmap, int(chunk_rows), source, scales)
 
 
@@ -307,7 +311,9 @@ def read_row(path: str | os.PathLike, *, row: int | None = None, source_id=None,
         Numbers as floats in catalogue units, a cell that is not a number as its text (``from_mapping``
         then names it), ``source_id`` as int or str, ``name`` as str. Empty cells are left out, except
         those of a correlation column: they are :data:`perierr.star.MASKED`, which ``from_mapping``
-        refuses (a missing correlation is not 0 when its column exists).
+        refuses (a missing correlation is not 0 when its column exists). The G magnitude's error is
+        ``phot_g_mean_mag_error`` when the row gives one, else ``2.5 / ln(10) / phot_g_mean_flux_over_error``
+        (:func:`.columns.g_error_from_flux`, as catalogue runs read it); the ratio itself is not returned.
 
     Raises
     ------
@@ -375,7 +381,7 @@ def _row_dict(cat: Catalogue, start: int, block: dict, i: int) -> dict:
             start + i,
         )
     chunk = cat._convert(start, block).take(slice(i, i + 1))
-    fields = cat.column_map.fields
+    fields = cat.column_map.all_fields
     out = {}
     for name, values in chunk.values.items():
         value = float(values[0])
@@ -393,6 +399,11 @@ def _row_dict(cat: Catalogue, start: int, block: dict, i: int) -> dict:
             out["source_id"] = str(sid)
     if chunk.name is not None and str(chunk.name[0]).strip():
         out["name"] = str(chunk.name[0])
+    ratio = out.pop("phot_g_mean_flux_over_error", None)
+    if "phot_g_mean_mag" in out and "phot_g_mean_mag_error" not in out and isinstance(ratio, float):
+        error = float(g_error_from_flux(ratio))
+        if not math.isnan(error):
+            out["phot_g_mean_mag_error"] = error
     return out
 
 
@@ -477,15 +488,17 @@ def _choose_columns(columns, colnames: list) -> ColumnMap:
         for name in colnames:
             trimmed.setdefault(name.strip(), []).append(name)
         fields = {}
-        for name, column in columns.fields.items():
+        for name, column in columns.all_fields.items():
             found = [column] if column in colnames else trimmed.get(column.strip(), [])
             if len(found) != 1:
                 shown = ", ".join(colnames[:30])
                 raise InputError("columns", column, f"not a column of the table; its columns: {shown}")
             fields[name] = found[0]
-        if fields == dict(columns.fields):
+        if fields == columns.all_fields:
             return columns
-        return ColumnMap(fields, columns.preset, columns.source)
+        photometry = {k: v for k, v in fields.items() if k in PHOTOMETRY_FIELDS}
+        astrometry = {k: v for k, v in fields.items() if k not in PHOTOMETRY_FIELDS}
+        return ColumnMap(astrometry, columns.preset, columns.source, photometry)
     if isinstance(columns, str):
         preset, mapping, how = option_source(columns)
         return column_map(colnames, preset=preset, mapping=mapping, source=how)
@@ -515,7 +528,7 @@ def _parse_unit(text, column: str, field: str):
 
 
 def _target(field: str):
-    if field in CORRELATIONS:
+    if field in CORRELATIONS or field == "phot_g_mean_flux_over_error":
         return u.dimensionless_unscaled
     if field == "ref_epoch":
         return u.yr
@@ -527,13 +540,35 @@ def _unit_expected(field: str) -> str:
         return "expected a dimensionless correlation coefficient"
     if field == "ref_epoch":
         return "expected an epoch in Julian years (yr) or no unit"
+    if field == "phot_g_mean_flux_over_error":
+        return "expected a dimensionless ratio (flux / flux error) or no unit"
+    if field in PHOTOMETRY_FIELDS:
+        return "expected a magnitude unit (mag, mmag, or a system such as mag(AB)) or no unit"
     return f"expected a unit convertible to {FIELD_UNITS[field]}"
+
+
+# magnitudes: FIELD_UNITS has no entry for them (perierr.units); the star reader reads them in astropy's mag
+# too (perierr.star.reading). Only mag and mmag scale: astropy would also turn dex into mag (x -2.5), which a
+# magnitude column never means.
+_MAGNITUDE_SCALES = {u.mag: 1.0, u.mmag: 1e-3}
+
+
+def _magnitude_scale(field: str, column: str, unit) -> float:
+    """The factor from a magnitude column's unit to mag: mag, mmag, or a magnitude system (its numbers as read)."""
+    if isinstance(unit, u.MagUnit) and unit.function_unit == u.mag:
+        return 1.0  # mag(AB), mag(ST), ...: the zero point names the system; the numbers are magnitudes
+    for known, factor in _MAGNITUDE_SCALES.items():
+        if unit == known:
+            return factor
+    raise InputError(field, str(unit), f"column {column!r} has this unit; {_unit_expected(field)}")
 
 
 def _scale(field: str, column: str, unit) -> float:
     """The factor from the column's unit to the field's catalogue unit (1 when the column has no unit)."""
     if field in _TEXT_FIELDS or unit is None or unit == u.dimensionless_unscaled:
         return 1.0
+    if field in PHOTOMETRY_FIELDS and field != "phot_g_mean_flux_over_error":
+        return _magnitude_scale(field, column, unit)
     try:
         factor = float(unit.to(_target(field)))
     except (u.UnitsError, ValueError, TypeError):
@@ -667,7 +702,7 @@ class _Source:
 
     def prepare(self, cmap: ColumnMap) -> None:
         """Check the mapped columns' types, read their units and decide how identifiers are read."""
-        for name, column in cmap.fields.items():
+        for name, column in cmap.all_fields.items():
             kind = self.kind(column)
             if kind == "shaped":
                 raise InputError(name, column, "the column holds several values per row; expected one per row")
@@ -678,8 +713,9 @@ class _Source:
                 raise InputError(name, column, f"the column holds {what}; expected numbers")
             if name not in _TEXT_FIELDS:
                 self.field_units[name] = _parse_unit(self.units.get(column), column, name)
-        self.units = {cmap.fields[name]: unit for name, unit in self.field_units.items()}
-        self.keep(cmap.columns)
+        fields = cmap.all_fields
+        self.units = {fields[name]: unit for name, unit in self.field_units.items()}
+        self.keep(cmap.read_columns)
 
     def largest(self, column: str) -> int:
         """The largest value of an unsigned integer column (0 when every cell is empty): one pass over it."""
@@ -905,7 +941,7 @@ class _CsvSource(_Source):
         return _text(array, trim=True)
 
     def prepare(self, cmap: ColumnMap) -> None:
-        for column in cmap.columns:
+        for column in cmap.read_columns:
             if self.colnames.count(column) > 1:
                 raise InputError(
                     "table",

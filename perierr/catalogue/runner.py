@@ -21,6 +21,11 @@ Statuses of a row in the results (``status`` column; ``reason`` says why):
 * the screen's own statuses for rows it could not compute (:data:`.screening.STATUSES`):
   ``no_radial_velocity``, ``missing_value``, ``unreadable_value``, ``out_of_range``,
   ``nonpositive_parallax``, ``not_positive_semidefinite``, ``not_finite``.
+
+The mass and the photometry (:data:`.columns.ENCOUNTER_FIELDS`) are inputs of the encounter's effects only: the
+screen runs without them, and stage 2 reads them row by row, so a missing or bad mass or magnitude never
+costs a row its perihelion (:mod:`.treatment`; under ``focusing`` the mass is part of the model, and a row
+with a bad one fails in stage 2 with the reason).
 """
 
 from __future__ import annotations
@@ -42,8 +47,9 @@ from ..errors import InputError
 from ..sampling.gaussian import resolve_seed
 from ..thresholds import DEFAULT_THRESHOLDS
 from .chunk import Chunk
+from .columns import ENCOUNTER_FIELDS
 from .store import RunFolder
-from .treatment import TreatmentOptions, treat_rows
+from .treatment import TreatmentOptions, radius_labels, treat_rows
 
 __all__ = ["BATCH_STARS", "CatalogueRun", "PROBLEM_STATUSES", "run_catalogue"]
 
@@ -177,6 +183,7 @@ def run_catalogue(
     if treatment is not None:
         treatment = replace(treatment, thresholds=thresholds)  # one set of thresholds for both stages
         treatment.check()
+        treatment = replace(treatment, oort_radii=radius_labels(treatment.oort_radii))  # as text: recordable
     catalogue = open_catalogue(table, columns=columns, chunk_rows=int(chunk_rows))
     none = cut is None or str(cut).strip().lower() in ("", "none", "all")
     selector = None if none else parse_cut(cut, thresholds=thresholds)
@@ -211,7 +218,7 @@ def run_catalogue(
     for index, chunk in enumerate(_at_least_one(catalogue.chunks(), catalogue.column_map)):
         n_chunks = index + 1
         if not (folder.has("screen", index) and folder.has("picked", index)):
-            cols = screen_chunk(chunk, thresholds=thresholds)
+            cols = screen_chunk(_without_encounter(chunk), thresholds=thresholds)
             if treatment is not None and treatment.distance_prior is not None:
                 _prior_advice(cols, treatment.distance_prior)
             ok = cols["status"] == "ok"
@@ -242,11 +249,20 @@ def _at_least_one(chunks, column_map):
         empty = False
         yield chunk
     if empty:
-        fields = column_map.fields
+        fields = column_map.all_fields
         sid = np.zeros(0, dtype=np.int64) if "source_id" in fields else None
         name = np.zeros(0, dtype=str) if "name" in fields else None
         yield Chunk(np.zeros(0, dtype=np.int64), {f: np.zeros(0) for f in fields if f not in ("source_id", "name")},
                     {}, sid, name)  # fmt: skip
+
+
+def _without_encounter(chunk: Chunk) -> Chunk:
+    """The block without its encounter inputs (mass, photometry), for the screen: they never refuse a row."""
+    if not any(name in chunk.values for name in ENCOUNTER_FIELDS):
+        return chunk
+    values = {k: v for k, v in chunk.values.items() if k not in ENCOUNTER_FIELDS}
+    unreadable = {k: v for k, v in chunk.unreadable.items() if k not in ENCOUNTER_FIELDS}
+    return Chunk(chunk.rows, values, unreadable, chunk.source_id, chunk.name)
 
 
 def _prior_advice(cols: dict, prior: str) -> None:
@@ -276,8 +292,16 @@ def fingerprint(settings: dict) -> str:
     return hashlib.sha256(json.dumps(settings, sort_keys=True).encode("utf-8")).hexdigest()
 
 
+#: Prefix of the columns of a picked part that mark unreadable cells of the encounter inputs (stage 2 says so).
+_UNREADABLE = "unreadable:"
+
+
 def chunk_table(chunk: Chunk) -> pa.Table:
-    """A block of rows as an Arrow table (``row``, ``source_id``, ``name``, the fields)."""
+    """A block of rows as an Arrow table (``row``, ``source_id``, ``name``, the fields).
+
+    The encounter inputs also keep where their cells were unreadable text (``unreadable:<field>``, bool), so
+    that stage 2 can say so; the astrometry's unreadable cells never reach stage 2 (the screen refuses them).
+    """
     cols = {"row": pa.array(np.asarray(chunk.rows, dtype=np.int64))}
     if chunk.source_id is not None:
         cols["source_id"] = pa.array(_plain(chunk.source_id))
@@ -285,16 +309,28 @@ def chunk_table(chunk: Chunk) -> pa.Table:
         cols["name"] = pa.array(np.asarray(chunk.name, dtype=str))
     for key, values in chunk.values.items():
         cols[key] = pa.array(np.asarray(values, dtype=float))
+    for key in ENCOUNTER_FIELDS:
+        if key in chunk.values:
+            flags = chunk.unreadable.get(key)
+            flags = np.zeros(len(chunk), dtype=bool) if flags is None else np.asarray(flags, dtype=bool)
+            cols[_UNREADABLE + key] = pa.array(flags)
     return pa.table(cols)
 
 
 def table_chunk(table: pa.Table) -> Chunk:
     """The inverse of :func:`chunk_table`."""
     names = table.column_names
-    values = {k: table.column(k).to_numpy() for k in names if k not in ("row", "source_id", "name")}
+    values = {k: table.column(k).to_numpy() for k in names
+              if k not in ("row", "source_id", "name") and not k.startswith(_UNREADABLE)}  # fmt: skip
+    unreadable = {}
+    for k in names:
+        if k.startswith(_UNREADABLE):
+            flags = np.asarray(table.column(k).to_numpy(zero_copy_only=False), dtype=bool)
+            if flags.any():
+                unreadable[k[len(_UNREADABLE) :]] = flags
     sid = table.column("source_id").to_numpy(zero_copy_only=False) if "source_id" in names else None
     name = table.column("name").to_numpy(zero_copy_only=False).astype(str) if "name" in names else None
-    return Chunk(table.column("row").to_numpy(), values, {}, sid, name)
+    return Chunk(table.column("row").to_numpy(), values, unreadable, sid, name)
 
 
 def _plain(ids) -> np.ndarray:

@@ -28,8 +28,8 @@ the FIRST check it fails (the first error the single-star path would raise):
    an absent column means 0, an empty cell in a present column is refused), infinite, outside [-1, 1];
 6. ``ra_error > 0`` at a celestial pole (``out_of_range``, field ``dec``);
 7. the correlation matrix not positive semi-definite (``not_positive_semidefinite``);
-8. ``mass`` (unreadable, infinite, <= 0), ``mass_error`` (unreadable, infinite, < 0),
-   ``ref_epoch`` (unreadable, infinite), where the columns exist;
+8. ``ref_epoch`` (unreadable, infinite), where the column exists (a bad ``mass`` or ``mass_error`` never refuses
+   a row: the single-star path reads a table row without it, with a caution, as stage 2 does);
 9. a covariance entry beyond the float range (``out_of_range``, field ``cov``);
 10. ``parallax <= 0`` (``nonpositive_parallax``: a distance prior is needed);
 11. no motion at all (``pmra = pmdec = radial_velocity = 0``) and then a perihelion or a sigma
@@ -105,7 +105,7 @@ STATUSES = MappingProxyType(
         "missing_value": "another required value is empty (or a cell of a present correlation column)",
         "unreadable_value": "a cell holds text that is not a number",
         "out_of_range": "a value outside what it can be (a declination beyond +-90 deg, a negative or "
-        "overflowing error, a correlation beyond +-1, an ra error at a pole, a mass <= 0, faster than light ...)",
+        "overflowing error, a correlation beyond +-1, an ra error at a pole, faster than light ...)",
         "nonpositive_parallax": "parallax <= 0: 1/parallax is no distance; the row needs a distance prior",
         "not_positive_semidefinite": "the correlation coefficients are mutually inconsistent (matrix not PSD)",
         "not_finite": "the perihelion or its linear sigma is not a finite number (e.g. the star does not move)",
@@ -531,18 +531,13 @@ def _check_psd(corrs: dict, verdict) -> None:
 
 
 def _read_meta(chunk, sl, n, verdict) -> None:
-    """Step 8: mass, mass_error and ref_epoch where the table has them."""
-    for name in ("mass", "mass_error", "ref_epoch"):
-        value, text = _field(chunk, name, sl, n)
-        if value is None:
-            continue
-        unit = "" if name == "ref_epoch" else f" in {FIELD_UNITS[name]}"
-        if text is not None:
-            verdict.fail(text, UNREADABLE, name, _UNREADABLE_TEXT, f"expected a number{unit}")
-        verdict.fail(np.isinf(value), OUT_OF_RANGE, name, value, f"expected a finite number{unit}")
-        if name != "ref_epoch":
-            bad = (value <= 0) if name == "mass" else (value < 0)
-            verdict.fail(bad, OUT_OF_RANGE, name, value, "expected a positive mass in M_sun")
+    """Step 8: ref_epoch where the table has it (a bad mass is left to stage 2, which reads it with a caution)."""
+    value, text = _field(chunk, "ref_epoch", sl, n)
+    if value is None:
+        return
+    if text is not None:
+        verdict.fail(text, UNREADABLE, "ref_epoch", _UNREADABLE_TEXT, "expected a number")
+    verdict.fail(np.isinf(value), OUT_OF_RANGE, "ref_epoch", value, "expected a finite number")
 
 
 def _screen_block(chunk: Chunk, sl: slice, levels: list, out: dict) -> None:

@@ -49,7 +49,7 @@ class FocusingDiagnostics:
 
 
 #: Diagnostics that hold one entry per evaluated row (arrays, or a mapping of arrays).
-_PER_ROW = ("straight_line", "focusing_delta_distance_pc", "focusing_delta_speed_kms")
+_PER_ROW = ("straight_line", "focusing_delta_distance_pc", "focusing_delta_speed_kms", "focusing_mass_msun")
 
 
 @dataclass(frozen=True, repr=False)
@@ -108,6 +108,8 @@ class ModelDiagnostics:
         The focusing wrapper's summary.
     focusing_delta_distance_pc, focusing_delta_speed_kms : ndarray
         Per-row change of d_ph [pc] and v_ph [km/s] by focusing.
+    focusing_mass_msun : ndarray
+        The star's mass focusing used for each row [M_sun] (the encounter effects use the same ones).
     extra : dict
         Any other key a model reported, in its order (after the fields above in ``to_dict()``).
     order : tuple of str
@@ -141,6 +143,7 @@ class ModelDiagnostics:
     focusing: FocusingDiagnostics | None = None
     focusing_delta_distance_pc: np.ndarray | None = None
     focusing_delta_speed_kms: np.ndarray | None = None
+    focusing_mass_msun: np.ndarray | None = None
     extra: dict = field(default_factory=dict)
     order: tuple = field(default=(), compare=False)
 

@@ -178,8 +178,9 @@ class Focused(ForwardModel):
             n_head_on=int(head_on.sum()),
         )  # fmt: skip
         diagnostics = replace(
-            raw.diagnostics, focusing=summary, focusing_delta_distance_pc=dd, focusing_delta_speed_kms=dv
-        )
+            raw.diagnostics, focusing=summary, focusing_delta_distance_pc=dd, focusing_delta_speed_kms=dv,
+            focusing_mass_msun=np.broadcast_to(np.asarray(masses, dtype=float), dd.shape).copy(),
+        )  # fmt: skip
         return Perihelion(raw.time_myr, q, vq, flags=flags, diagnostics=diagnostics)
 
     def nuisance(self, point) -> tuple:

@@ -3,8 +3,11 @@
 The page holds everything a reader needs to judge one star's closest approach: the inputs with their errors and
 correlations, t_ph, d_ph and v_ph (Monte Carlo median with its 16-84 % and 5-95 % intervals, the linear answer
 beside it), the threshold probabilities to the resolution their Monte Carlo error allows, the error budget (table
-and figure), the re-observation plan or what dominates the error, every caution once, the sentence on what the
-numbers are not (:data:`perierr.cautions.HAZARD`) and the provenance of the run.
+and figure), what the encounter does (:mod:`perierr.encounter`: the peak magnitude and proper motion, the Sun's
+impulse, the strength proxies, the near-side comets' impulses, each with its intervals and the input that dominates
+its budget; P(d_ph < r) for every Oort radius; why a quantity is not given; the sentence
+:data:`perierr.cautions.SHOWER` once), the re-observation plan or what dominates the error, every caution once, the
+sentence on what the numbers are not (:data:`perierr.cautions.HAZARD`) and the provenance of the run.
 
 Design:
 
@@ -44,10 +47,19 @@ from pathlib import Path
 import numpy as np
 
 from .._version import __version__
-from ..cautions import HAZARD
+from ..cautions import HAZARD, SHOWER
 from ..errors import InputError, PerierrError
 from ..star.fields import CORRELATIONS, split_correlation
-from ..units import AU_PER_PC, ERROR_LABELS, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_LABELS, OUTPUTS
+from ..units import (
+    AU_PER_PC,
+    ENCOUNTER_LABELS,
+    ERROR_LABELS,
+    INDEX,
+    INTERNAL_LABELS,
+    OBSERVABLES,
+    OUTPUT_LABELS,
+    OUTPUTS,
+)
 from .figures import PALETTE, budget_figure, corner_figure, distance_figure, separation_figure
 from .files import atomic_path
 from .rounding import round_interval
@@ -136,6 +148,8 @@ table{border-collapse:collapse;font-variant-numeric:tabular-nums}
 th,td{padding:.28rem .65rem;border-bottom:1px solid var(--line);text-align:left;vertical-align:middle}
 thead th{background:var(--soft);border-bottom:2px solid var(--accent);font-weight:600}
 th[scope=row]{font-weight:600;white-space:nowrap}
+th.wrap[scope=row]{white-space:normal;min-width:9rem}
+td.unit{white-space:nowrap}
 td.num{text-align:right;white-space:nowrap}
 td.text{min-width:16rem}
 td.prob{white-space:nowrap}
@@ -153,6 +167,7 @@ border:1px solid currentColor;border-radius:3px;padding:0 .3rem;margin-right:.45
 .tag.caution{color:var(--warn)}
 .tag.note{color:var(--accent)}
 .hazard{border-left:4px solid var(--ink);background:var(--soft);padding:.6rem .85rem;margin:.8rem 0}
+.missing{margin:.3rem 0}
 .lead{font-size:1.03rem}
 dl.prov{display:grid;grid-template-columns:max-content minmax(0,1fr);gap:.25rem 1rem;margin:.4rem 0}
 dl.prov dt{font-weight:600}
@@ -372,6 +387,7 @@ def _page(analysis, *, plan, global_budget, title) -> str:
         _section("inputs", "Inputs", _inputs(a)),
         _section("results", "Perihelion", _results(a)),
         _section("budget", "Error budget", _budget(a, gb)),
+        _section("encounter", "What the encounter does", _encounter(a)),
         _section("figures", "Figures", _figures(a, gb)),
     ]
     if plan is not None:
@@ -481,6 +497,9 @@ def _inputs(a) -> str:
         extra.append(("fractional parallax error", f"{star.fractional_parallax_error:.2%}"))
     if star.mass is not None:
         extra.append(("mass", _plus_minus(star.mass, star.mass_error or 0.0, unit="M_sun")))
+    if star.magnitude is not None:
+        band = f" ({star.magnitude_band})" if star.magnitude_band else ""
+        extra.append((f"magnitude{band}", _plus_minus(star.magnitude, star.magnitude_error or 0.0, unit="mag")))
     if extra:
         out.append('<dl class="prov">' + "".join(f"<dt>{_e(k)}</dt><dd>{v}</dd>" for k, v in extra) + "</dl>")
     out.append(_correlations(star))
@@ -608,8 +627,24 @@ def _side(mc) -> str:
 
 def _thresholds(mc) -> str:
     head = ['<th scope="col">threshold</th>', '<th scope="col">P(d_ph &lt; D)</th>', '<th scope="col">draws</th>']
+    return _table(head, _probability_rows(mc.thresholds, mc, "threshold")) + _PROBABILITY_NOTE
+
+
+#: How the page's probabilities read (below each table of them).
+_PROBABILITY_NOTE = (
+    '<p class="small">± is the Monte Carlo (binomial) error of the probability; when no draw or every draw '
+    "passed, a 95 % bound is given instead.</p>"
+)
+
+
+def _probability_rows(probabilities, mc, attribute) -> list:
+    """One table row per :class:`~perierr.thresholds.ThresholdProbability`.
+
+    The probability to the place its Monte Carlo error allows (the text report's rule,
+    :func:`perierr.report.text.probability_parts`) and the draws that passed.
+    """
     rows = []
-    for t in mc.thresholds:
+    for t in probabilities:
         kind, r, why = probability_parts(t, mc.n)
         if kind == "value":
             p = (f'<span class="iv"><span data-part="value">{r.value}</span>% ± '
@@ -618,13 +653,10 @@ def _thresholds(mc) -> str:
             p = f"{'&lt;' if kind == 'upper' else '&gt;'} {r} <span class=\"small\">(95 % bound; {_e(why)})</span>"
         count = f"{t.count:,} of {mc.n:,}" if mc.samples.weights is None else "weighted"
         rows.append(
-            f'<tr data-threshold="{_e(t.label)}"><th scope="row">{_e(t.label)}</th>'
+            f'<tr data-{attribute}="{_e(t.label)}"><th scope="row">{_e(t.label)}</th>'
             f'<td class="prob" data-cell="probability">{p}</td><td class="num">{count}</td></tr>'
         )
-    return _table(head, rows) + (
-        '<p class="small">± is the Monte Carlo (binomial) error of the probability; when no draw or every draw '
-        "passed, a 95 % bound is given instead.</p>"
-    )
+    return rows
 
 
 # ------------------------------------------------------------------------------------------------ budget
@@ -663,6 +695,105 @@ def _budget(a, gb) -> str:
             out.append(f'<p class="small">Monte Carlo columns: Shapley shares estimated from the model itself, with '
                        f"their {conf} % bootstrap interval.</p>")
     return "\n".join(out)
+
+
+# ------------------------------------------------------------------------------------------------ encounter
+
+
+def _encounter_title(name, band) -> tuple:
+    """An encounter quantity in words and its unit (the band beside a magnitude's)."""
+    from ..encounter import quantity_words
+
+    kind = name.partition(":")[0]
+    unit = ENCOUNTER_LABELS[kind] + (f" ({band})" if kind == "peak_magnitude" and band else "")
+    return quantity_words(name), unit
+
+
+def _encounter(a) -> str:
+    """The section on what the encounter does.
+
+    Each quantity with its intervals and the input that dominates its budget, P(d_ph < r) for every Oort radius,
+    why a quantity is not given, and :data:`perierr.cautions.SHOWER` once.
+    """
+    enc = getattr(a, "encounter", None)
+    if enc is None:
+        return "<p>Not computed for this analysis.</p>"
+    mc = a.monte_carlo
+    budget = enc.budget
+    head = ['<th scope="col">quantity</th>', '<th scope="col">unit</th>', '<th scope="col">median, 16-84 %</th>',
+            '<th scope="col">median, 5-95 %</th>', '<th scope="col">largest share</th>']
+    rows, notes = [], {}
+    for name, s in enc.summaries.items():
+        title, unit = _encounter_title(name, enc.magnitude.get("band"))
+        med = s.median
+        c68 = _interval(med, s.quantile(0.16), s.quantile(0.84))
+        c90 = _interval(med, s.quantile(0.05), s.quantile(0.95))
+        rows.append(
+            f'<tr data-encounter="{_e(name)}"><th scope="row" class="wrap">{_e(title)}</th>'
+            f'<td class="unit">{_e(unit)}</td>'
+            f'<td class="num" data-cell="68">{c68}</td><td class="num" data-cell="90">{c90}</td>'
+            f'<td class="num" data-cell="share">{_encounter_share(budget, name)}</td></tr>'
+        )
+        if s.note:
+            notes.setdefault(s.note, []).append(title)
+    out = [
+        '<p class="small">Over each draw\'s perihelion: the impulse on the Sun, 2GM/(d_ph v_ph), and on a comet on the '
+        "line from the Sun toward the star's closest point (the near side), in the impulse approximation; the "
+        "strength proxies M/(v_ph d_ph) and M/(v_ph d_ph²); the peak proper motion v_ph/d_ph and the peak magnitude "
+        "by the distance modulus from today's (no extinction). Monte Carlo median with the distances to the ends of "
+        "its 68 % and 90 % intervals, rounded by the Particle Data Group rule.</p>",
+        _table(head, rows),
+    ]
+    out += [f'<p class="small">{_e(", ".join(t))}: {_e(note)}</p>' for note, t in notes.items()]
+    for name, why in getattr(budget, "undefined", {}).items():
+        if name in enc.summaries:
+            out.append(f'<p class="small" data-undefined="{_e(name)}">No largest share for the '
+                       f"{_e(_encounter_title(name, None)[0])}: {_e(why)}.</p>")
+    if budget is not None:
+        out.append('<p class="small">Largest share: the input carrying the largest share of the variance of log10 '
+                   "of the quantity (of the peak magnitude itself); linearized Shapley effects at the nominal inputs, "
+                   "with the star's mass and magnitude among the inputs.</p>")
+    used = []
+    if enc.mass:
+        used.append(f"mass {_plus_minus(enc.mass['mass_msun'], enc.mass['mass_error_msun'], unit='M_sun')} "
+                    f"(its draws: {_e(enc.mass.get('draws', '?'))})")
+    if enc.magnitude:
+        band = enc.magnitude.get("band")
+        used.append(f"magnitude{_e(' ' + band if band else '')} "
+                    f"{_plus_minus(enc.magnitude['magnitude'], enc.magnitude['magnitude_error'], unit='mag')}")
+    if used:
+        out.append(f'<p class="small">From the star\'s {"; ".join(used)}.</p>')
+    for p in enc.positions:
+        out.append(f'<p class="small" data-position="{_e(p["name"])}">Comet at '
+                   f'{_e(p["name"].replace("position", "position "))}: {p["distance_au"]:,.0f} au toward RA '
+                   f'{p["ra_deg"]:.4f}°, Dec {p["dec_deg"]:+.4f}° (heliocentric ICRS).</p>')
+    out += [f'<p class="missing" data-missing="{k}"><span class="tag note">not given</span>{_e(why)}</p>'
+            for k, why in enumerate(enc.missing)]
+    head = ['<th scope="col">Oort radius r</th>', '<th scope="col">P(d_ph &lt; r)</th>', '<th scope="col">draws</th>']
+    out.append("<h3>Chance that the star passes inside the Oort radius</h3>"
+               + _table(head, _probability_rows(enc.inside, mc, "oort")) + _PROBABILITY_NOTE)
+    passage = enc.passage
+    if passage:
+        periods = ", ".join(f"{period:,.0f} yr at {label}"
+                            for label, period in passage.get("comet_period_yr", {}).items())
+        out.append(f'<p class="small">Median passage time d_ph/v_ph: {passage["median_passage_yr"]:,.0f} yr; the '
+                   "impulse approximation needs it short against a comet's orbital period"
+                   + (f" ({_e(periods)})" if periods else "") + ".</p>")
+    out.append(f'<p class="hazard" id="shower">{_e(SHOWER)}</p>')
+    return "\n".join(out)
+
+
+def _encounter_share(budget, name) -> str:
+    """``star mass 84.2%``: the input dominating an encounter quantity's budget and its share."""
+    if budget is None or name not in budget.quantities:
+        return "—"
+    who = budget.dominant(name)
+    if who is None:
+        sigma = float(budget.sigma[budget.quantities.index(name)])
+        return "undefined (see below)" if name in getattr(budget, "undefined", {}) else (
+            "no spread" if sigma == 0 else "undefined")
+    return (f'<span data-part="input">{_e(input_label(who))}</span> '
+            f'<span data-part="share">{format_share(budget.share(name)[who], bounded=True)}</span>')
 
 
 def _global_columns(gb) -> list:
@@ -847,6 +978,8 @@ def _cautions(a, plan) -> str:
         found += [c for c in list(plan.cautions) + list(plan.star.cautions)
                   if (getattr(c, "code", ""), getattr(c, "subject", "")) not in kinds]
     seen, items = set(), []
+    if getattr(a, "encounter", None) is not None:
+        seen.add(SHOWER)  # the encounter section says it, once
     for c in found:
         text = str(c)
         if text in seen:
@@ -887,6 +1020,10 @@ def _provenance(a, plan) -> str:
         ("seed", f'<span id="seed">{_e(mc.samples.seed)}</span>'),
         ("quantile levels", _e(", ".join(f"{lv:g}" for lv in mc.levels))),
         ("thresholds", _e(", ".join(t.label for t in mc.thresholds))),
+    ]
+    if getattr(a, "encounter", None) is not None:
+        items.append(("Oort radii", _e(", ".join(label for label, _ in a.encounter.radii))))
+    items += [
         ("inputs SHA-256", f'<code id="digest">{input_digest(a)}</code>'),
     ]
     if a.calibration is not None and a.calibration.active:

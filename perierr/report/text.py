@@ -10,7 +10,7 @@ import math
 
 import numpy as np
 
-from ..cautions import DIRECT_FRACTION, HAZARD, map_tolerance, messages
+from ..cautions import DIRECT_FRACTION, HAZARD, SHOWER, map_tolerance, messages
 from ..units import AU_PER_PC, INDEX, INTERNAL_LABELS, OBSERVABLES, OUTPUT_TITLES, OUTPUTS
 from .rounding import round_interval
 from .shares import format_share, input_label
@@ -57,6 +57,8 @@ def format_analysis(analysis, *, hazard: bool = True) -> str:
     lines += _threshold_lines(mc)
     if a.budget is not None:
         lines += [""] + _budget_lines(a.budget)
+    if a.encounter is not None:
+        lines += [""] + encounter_lines(a.encounter, mc.n)
     if a.comparison:
         lines += [""] + _comparison_lines(a.comparison)
     if a.orbit_comparison:
@@ -90,6 +92,14 @@ def _input_lines(star) -> list:
         lines.append(f"  {name:<16}{shown:>14} ± {err:<10.4g} {unit}")
     if star.fractional_parallax_error < math.inf:
         lines.append(f"  fractional parallax error {star.fractional_parallax_error:.2%}")
+    if star.mass is not None:
+        err = star.mass_error or 0.0
+        lines.append(f"  {'mass':<16}{star.mass:>14g} ± {err:<10g} M_sun" + ("  (held exact)" if not err else ""))
+    if star.magnitude is not None:
+        err = star.magnitude_error or 0.0
+        band = f" ({star.magnitude_band})" if star.magnitude_band else ""
+        lines.append(f"  {'magnitude':<16}{star.magnitude:>14g} ± {err:<10g} mag{band}" +
+                     ("  (held exact)" if not err else ""))
     return lines
 
 
@@ -226,6 +236,73 @@ def _budget_lines(b) -> list:
         f"  largest share: {_dominant(b, 'distance_pc')} for the distance, {_dominant(b, 'time_myr')} for the time"
     )
     return lines
+
+
+def encounter_lines(enc, n: int) -> list:
+    """What the encounter does and what an observer sees: medians, 5-95 % intervals, the largest budget share.
+
+    Parameters
+    ----------
+    enc : EncounterEffects
+    n : int
+        Draws of the run (for the probabilities' resolution).
+    """
+    from ..encounter import quantity_title, three_digits
+
+    band = enc.magnitude.get("band")
+    head = f"  {'':<50}{'MC median':>11}   {'5 % … 95 %':<25}largest share"
+    lines = ["What the encounter does and what an observer sees (impulse approximation; each draw)", head]
+    for name, s in enc.summaries.items():
+        q = s.quantile
+        err = (q(0.84) - q(0.16)) / 20
+        if not (math.isfinite(err) and err > 0):
+            err = abs(s.median) * 1e-3
+        # each number to the place its own Monte Carlo error allows (a far quantile of a heavy tail has a large one)
+        low, median, high = (_significant(q(level), max(err, s.quantile_error(level))) for level in (0.05, 0.5, 0.95))
+        share = "" if enc.budget is None or name not in enc.budget.quantities else _top_share(enc.budget, name)
+        lines.append(f"  {quantity_title(name, band):<50}{median:>11}   {low + ' … ' + high:<25}{share}")
+    for t in enc.inside:
+        kind, value, why = probability_parts(t, n)
+        shown = f"< {value} (95 % bound; {why})" if kind == "upper" else (
+            f"> {value} (95 % bound; {why})" if kind == "lower" else f"{value.value}% ± {value.plus}%")
+        lines.append(f"  {'P(inside the Oort radius ' + t.label + ')':<50}{shown}")
+    for p in enc.positions:
+        lines.append(f"  comet at {p['name'].replace('position', 'position ')}: {p['distance_au']:,.0f} au toward "
+                     f"RA {p['ra_deg']:.4f}°, Dec {p['dec_deg']:+.4f}° (heliocentric ICRS)")
+    if enc.passage:
+        lines.append(f"  passage time d/v: median {three_digits(enc.passage['median_passage_yr'])} yr")
+    lines += [f"  not given: {why}" for why in enc.missing]
+    if enc.budget is not None:
+        lines += [f"  shares of the {quantity_title(q, band)}: {why}" for q, why in enc.budget.undefined.items()]
+        extra = [name for name in ("mass", "magnitude") if name in enc.budget.inputs]
+        among = f", the star's {' and '.join(extra)} among the inputs" if extra else ""
+        itself = " (the peak magnitude itself)" if "peak_magnitude" in enc.budget.quantities else ""
+        lines.append(f"  shares: linearized, of log10 of each quantity{itself}{among}")
+    return lines + [f"  {SHOWER}"]
+
+
+def _significant(x, err) -> str:
+    """``x`` to the place two significant digits of ``err`` allow; very large or small numbers in e-notation.
+
+    ``1.1e-05`` with an error of 3e-8 reads ``1.1042e-05`` (the digits the error supports, trailing zeros kept).
+    """
+    if not math.isfinite(x):
+        return str(x)
+    if x != 0 and (abs(x) >= 1e6 or abs(x) < 1e-3):
+        top = math.floor(math.log10(abs(x)))
+        place = math.floor(math.log10(err)) - 1 if err > 0 and math.isfinite(err) else top - 3
+        digits = min(12, max(1, top - place))
+        return f"{x:.{digits}e}"
+    return format_value(x, err)
+
+
+def _top_share(budget, name) -> str:
+    who = budget.dominant(name)
+    if who is None:
+        if name in budget.undefined:
+            return "see below"
+        return "no spread" if budget.sigma[budget.quantities.index(name)] == 0 else "undefined"
+    return f"{input_label(who)} {format_share(budget.share(name)[who], bounded=True)}"
 
 
 def _comparison_lines(comparison) -> list:

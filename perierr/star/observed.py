@@ -49,15 +49,16 @@ class ObservedStar:
         Reference epoch of the astrometry [Julian year]; perihelion times are
         relative to it.
     mass : float or None
-        Star mass [M_sun] (used only by gravitational focusing).
+        Star mass [M_sun] (gravitational focusing, and the encounter's impulses and strength).
     mass_error : float or None
         Its standard error [M_sun].
     cautions : tuple of Caution
         Facts about how the input was read (e.g. inputs held exact) and cautions about
         implausible values, for the reports (see :mod:`perierr.cautions`); ``notes`` lists their text.
     magnitude : float or None
-        Apparent magnitude [mag] in ``magnitude_band``, for the cost of new measurements (the
-        propagation never reads it). Read from ``phot_g_mean_mag`` (band ``"G"``) or ``mag``.
+        Apparent magnitude [mag] in ``magnitude_band``, for the cost of new measurements and the peak
+        magnitude of the encounter (the propagation never reads it). Read from ``phot_g_mean_mag`` (band
+        ``"G"``) or ``mag``.
     magnitude_error : float or None
         Its standard error [mag] (``phot_g_mean_mag_error`` or ``mag_error``).
     magnitude_band : str or None

@@ -52,7 +52,9 @@ def star_from_mapping(cls, mapping, *, row=None, strict=True):
     mean = np.array([values[n] for n in OBSERVABLES])
     photometry, dropped = _read_photometry(data, row, strict)
     cautions.extend(dropped)
-    star = cls(mean, cov, cautions=tuple(cautions), **_read_meta(data, row), **photometry)
+    meta, dropped = _read_meta(data, row, strict)
+    cautions.extend(dropped)
+    star = cls(mean, cov, cautions=tuple(cautions), **meta, **photometry)
     emit(star.cautions)
     return star
 
@@ -120,14 +122,22 @@ def _covariance(values, corrs, row) -> np.ndarray:
     return corr * np.outer(sigma, sigma)
 
 
-def _read_meta(data, row) -> dict:
-    """Name, source_id, epoch, mass and its error (optional)."""
-    meta = {}
-    for key in ("mass", "mass_error"):
-        if key in data and not _is_missing(data[key]):
-            meta[key] = _to_float(key, data[key], row)
-            if meta[key] < 0 or (key == "mass" and meta[key] == 0):
-                raise InputError(key, meta[key], "expected a positive mass in M_sun", row)
+def _read_meta(data, row, strict=True) -> tuple:
+    """Name, source_id, epoch, mass and its error (optional), and the cautions of reading them.
+
+    Strict reading refuses a bad mass or mass error naming the field; otherwise (table rows) the star is read
+    without a mass, which only the encounter's impulses and focusing use, and a caution says why, as for a bad
+    magnitude (:func:`_read_photometry`).
+    """
+    meta, cautions = {}, []
+    try:
+        meta.update(_read_mass(data, row))
+    except InputError as exc:
+        if strict:
+            raise
+        message = (f"{exc.field} = {exc.value!r}: {exc.expected}; the star is read without a mass (only the "
+                   "encounter's impulses and focusing use one)")
+        cautions.append(Caution("mass-dropped", message, "caution", exc.field, row))
     epoch = data.get("ref_epoch")
     # a Julian year (2016.0); the archives' tables give it the unit yr
     meta["ref_epoch"] = None if _is_missing(epoch) else _to_float("ref_epoch", epoch, row, unit=u.yr)
@@ -136,7 +146,20 @@ def _read_meta(data, row) -> dict:
         name = str(source_id) if not _is_missing(source_id) else (f"row {row}" if row is not None else "star")
     meta["name"] = str(name)
     meta["source_id"] = None if _is_missing(source_id) else str(source_id)
-    return meta
+    return meta, cautions
+
+
+def _read_mass(data, row) -> dict:
+    """The mass and its error [M_sun], each when given; a bad value is an :class:`InputError` naming its field."""
+    out = {}
+    for key in ("mass", "mass_error"):
+        if key in data and not _is_missing(data[key]):
+            out[key] = _to_float(key, data[key], row)
+            if key == "mass" and not out[key] > 0:
+                raise InputError(key, out[key], "expected a positive mass in M_sun", row)
+            if key == "mass_error" and out[key] < 0:
+                raise InputError(key, out[key], "expected an error >= 0 in M_sun", row)
+    return out
 
 
 def _read_photometry(data, row, strict=True) -> tuple:
@@ -144,7 +167,8 @@ def _read_photometry(data, row, strict=True) -> tuple:
 
     Strict reading (star files, ``from_mapping`` by default) refuses a bad or incomplete magnitude with an
     :class:`InputError` naming the field. Otherwise (table rows, :func:`read_catalogue`) the star is read
-    without a magnitude, which only the cost of new measurements uses, and a reading caution says why: a note
+    without a magnitude, which only the cost of new measurements and the peak magnitude use, and a reading caution
+    says why: a note
     for a magnitude that is missing beside its error or band (a masked cell), a caution for a bad value
     (e.g. a sentinel such as 99).
     """
@@ -156,7 +180,8 @@ def _read_photometry(data, row, strict=True) -> tuple:
         missing = exc.expected.startswith("given without its magnitude")
         what = (f"{exc.field} given without its magnitude" if missing
                 else f"{exc.field} = {exc.value} not used ({exc.expected})")  # fmt: skip
-        message = f"{what}: the star is read without a magnitude (only the cost of new measurements uses one)"
+        message = (f"{what}: the star is read without a magnitude (only the cost of new measurements and the "
+                   "peak magnitude use one)")
         return {}, [Caution("magnitude-dropped", message, "note" if missing else "caution", exc.field, row)]
 
 
