@@ -19,7 +19,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ._version import __version__
-from .budget import LinearBudget, star_budget
+from .budget import LinearBudget, linear_budget
 from .budget.inputs import budget_inputs
 from .calibration import CalibrationInfo
 from .cautions import Caution, emit, from_warnings, messages, reading_cautions, unique
@@ -275,8 +275,8 @@ def analyze(
             linear, mc, prior_block, with_prior, found, reference = _under_prior(
                 star, model, distance_prior, prior_method, n_samples, seed, levels, thresholds, progress
             )
-        budget = None if linear is None else star_budget(star, linear, calibration=calibration)
         parts = None if linear is None else budget_inputs(star, linear, calibration=calibration)
+        budget = None if parts is None else linear_budget(parts[0], parts[1], inputs=parts[2])
         encounter = encounter_effects(
             star, mc, linear=linear, budget_inputs=parts, radii=oort_radii, comet_positions=comet_positions
         )
