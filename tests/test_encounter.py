@@ -15,12 +15,12 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.coordinates import Distance, SkyCoord
+from encounter_runs import run, star_of
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate, stats
 
 import perierr
-from perierr import ObservedStar
 from perierr.cautions import SHOWER
 from perierr.encounter import (
     LINEAR_REACH,
@@ -36,7 +36,7 @@ from perierr.encounter import (
     sun_impulse,
     truncated_normal,
 )
-from perierr.errors import InputError, PerierrWarning
+from perierr.errors import InputError
 from perierr.units import ENCOUNTER_LABELS
 
 LN10 = math.log(10.0)
@@ -69,17 +69,6 @@ WEAK = dict(
 )  # fmt: skip
 
 
-def star_of(fields, **changes):
-    data = {**fields, **changes}
-    return ObservedStar.from_values(**{k: v for k, v in data.items() if v is not None})
-
-
-def run(star, *, n=20_000, seed=11, **kw):
-    """A straight-line analysis (no model comparison), its cautions silenced."""
-    kw.setdefault("model", "straight_line")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", PerierrWarning)
-        return perierr.analyze(star, n_samples=n, seed=seed, compare=False, **kw)
 
 
 @pytest.fixture(scope="module")

@@ -16,10 +16,11 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.coordinates import CartesianRepresentation, SkyCoord
+from encounter_runs import run as shared_run
+from encounter_runs import star_of
 from scipy import stats
 
 import perierr
-from perierr import ObservedStar
 from perierr.budget.inputs import budget_inputs
 from perierr.calibration import Calibration
 from perierr.cautions import SHOWER
@@ -35,7 +36,7 @@ from perierr.encounter import (
     parse_radii,
     quantity_words,
 )
-from perierr.errors import InputError, PerierrWarning
+from perierr.errors import InputError
 from perierr.models.focusing import Focused
 
 LN10 = math.log(10.0)
@@ -77,17 +78,9 @@ METHOD = (
 )
 
 
-def star_of(fields, **changes):
-    data = {**fields, **changes}
-    return ObservedStar.from_values(**{k: v for k, v in data.items() if v is not None})
-
-
-def run(star, *, n=2_000, seed=11, **kw):
-    """A straight-line analysis (no model comparison), its cautions silenced."""
-    kw.setdefault("model", "straight_line")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", PerierrWarning)
-        return perierr.analyze(star, n_samples=n, seed=seed, compare=False, **kw)
+def run(star, *, n=2_000, **kw):
+    """The shared quiet straight-line analysis, with fewer draws by default."""
+    return shared_run(star, n=n, **kw)
 
 
 def hazen(x, q, w=None):
